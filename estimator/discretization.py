@@ -1,0 +1,52 @@
+"""Exact discretisation of linear models driven by white noise.
+
+Van Loan's method gives, for ``ds/dt = A s + L w`` with ``w`` white noise of
+intensity ``qc``, the transition matrix ``Φ = exp(A·dt)`` and the covariance of the
+noise accumulated over one step ``Qd = ∫₀^dt exp(Aτ) L qc Lᵀ exp(Aᵀτ) dτ``.
+
+Source: C. F. Van Loan, "Computing integrals involving the matrix exponential",
+IEEE Trans. Automatic Control AC-23(3), 395-404, 1978. The computation is done by
+filterpy's ``van_loan_discretization``; this module adds validation, the noise
+intensity as an explicit argument, and symmetrisation of the result.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from filterpy.common import van_loan_discretization
+
+from estimator.errors import ParameterError
+
+__all__ = ["van_loan"]
+
+
+def van_loan(
+    A: np.ndarray, L: np.ndarray, qc: float, dt_s: float
+) -> tuple[np.ndarray, np.ndarray]:
+    """Return ``(Φ, Qd)`` for one step of ``dt_s`` seconds.
+
+    Args:
+        A: continuous state matrix, shape (n, n).
+        L: noise input matrix, shape (n, 1) or (n,).
+        qc: white-noise intensity (power spectral density, two-sided), ≥ 0, in the
+            squared unit of ``w`` per second.
+        dt_s: step in seconds, > 0.
+
+    Returns:
+        ``Φ`` with shape (n, n) and the symmetric ``Qd`` with shape (n, n).
+    """
+    if not (math.isfinite(dt_s) and dt_s > 0.0):
+        raise ParameterError(f"time step dt_s = {dt_s!r}: must be a finite number > 0 seconds")
+    if not (math.isfinite(qc) and qc >= 0.0):
+        raise ParameterError(f"noise intensity qc = {qc!r}: must be a finite number >= 0")
+    A = np.asarray(A, dtype=float)
+    L = np.asarray(L, dtype=float).reshape(-1, 1)
+    if A.ndim != 2 or A.shape[0] != A.shape[1] or L.shape[0] != A.shape[0]:
+        raise ParameterError(
+            f"shapes A {A.shape} and L {L.shape} do not match: need (n, n), (n, 1)"
+        )
+    phi, Qd = van_loan_discretization(A, L * math.sqrt(qc), dt_s)
+    Qd = 0.5 * (Qd + Qd.T)
+    return np.ascontiguousarray(phi), Qd

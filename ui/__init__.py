@@ -1,0 +1,1 @@
+"""Composition and people: the command line, the dashboard, reports."""

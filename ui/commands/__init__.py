@@ -1,0 +1,1 @@
+"""One module per `forcelens` sub-command; each exposes `register(subparsers)`."""
