@@ -66,6 +66,7 @@ __all__ = [
     "ForceObserver",
     "ObserverTuning",
     "augmented_model",
+    "concat_estimates",
     "process_noise_for_bandwidth",
 ]
 
@@ -184,6 +185,12 @@ class _SteadyState:
     Z: np.ndarray  # (3, 3) complex unitary Schur vectors
     g: np.ndarray  # (3,) complex: Zᴴ K
     c: np.ndarray  # (3,) complex: H Φ Z, maps u[n−1] to the predicted measurement
+    # Modal (eigenvector) form, used when the eigenvectors are well conditioned:
+    lam: np.ndarray | None = None  # (3,) eigenvalues of (I − KH)Φ
+    V: np.ndarray | None = None  # (3, 3) eigenvectors (columns)
+    h: np.ndarray | None = None  # (3,) V⁻¹ K
+    modes: tuple[tuple[int, bool], ...] = ()  # (eigen index, is real) filtered; pairs once
+    phi_row: np.ndarray | None = None  # (3,) first row of Φ: predicted displacement
 
 
 @dataclass
@@ -320,7 +327,15 @@ class ForceObserver:
         T, Z = scipy.linalg.schur(A_cl.astype(complex), output="complex")
         g = Z.conj().T @ K[:, 0]
         c = (H @ phi @ Z)[0]
-        return _SteadyState(P, P_post, K, S, T, Z, g, c)
+        ss = _SteadyState(P, P_post, K, S, T, Z, g, c, phi_row=phi[0].copy())
+        lam, V = np.linalg.eig(A_cl)
+        # Conjugate pairs are run once (the partner is the complex conjugate);
+        # an ill-conditioned basis falls back to the Schur chain.
+        modes = tuple((i, bool(lam[i].imag == 0)) for i in range(3) if lam[i].imag >= 0)
+        paired = sum(2 if real is False else 1 for _, real in modes) == 3
+        if paired and np.linalg.cond(V) < 1e6:
+            ss.lam, ss.V, ss.h, ss.modes = lam, V, np.linalg.solve(V, K[:, 0]), modes
+        return ss
 
     def _riccati_step(self, P_prior: np.ndarray, phi: np.ndarray, Q: np.ndarray) -> np.ndarray:
         """One update (Joseph form) and predict of the covariance; returns the next prior."""
@@ -342,6 +357,7 @@ class ForceObserver:
         self._t_last: float | None = None
         self._steady = False
         self._u = np.zeros(3, complex)  # state in the Schur basis (steady path)
+        self._s_last = np.zeros(3)  # last posterior state on the steady path
         self._zf: list[np.ndarray] = []  # lfilter states of the three modes
         self._held: list[tuple[float, np.ndarray, np.ndarray, float]] = []  # samples since _anchor
         self._held_rejected = 0
@@ -501,18 +517,19 @@ class ForceObserver:
                 kf.update(z)
                 self._held.clear()
                 self._held_rejected = 0
-            elif self._held_rejected + 1 >= self.tuning.reacquire_after:
-                self._reacquire(z, phi, Q, dt)
-                flags |= FLAG_REACQUIRED
-                self.counters.reacquired += 1
             else:
                 if not self._held:
-                    self._anchor = before
-                kf.update(None)
-                self._held.append((z, phi, Q, dt))
-                self._held_rejected += 1
-                flags |= FLAG_REJECTED
-                self.counters.rejected += 1
+                    self._anchor = before  # the state before the first gated sample
+                if self._held_rejected + 1 >= self.tuning.reacquire_after:
+                    self._reacquire(z, phi, Q, dt)
+                    flags |= FLAG_REACQUIRED
+                    self.counters.reacquired += 1
+                else:
+                    kf.update(None)
+                    self._held.append((z, phi, Q, dt))
+                    self._held_rejected += 1
+                    flags |= FLAG_REJECTED
+                    self.counters.rejected += 1
         x, P = kf.x[:, 0], kf.P
         out[i] = (t, x[2], math.sqrt(P[2, 2]), x[0], x[1], y, nis, flags)
         if self.covariance_log is not None:
@@ -583,13 +600,21 @@ class ForceObserver:
 
     def _enter_steady(self, x: np.ndarray) -> None:
         ss = self._ss
+        self._steady = True
+        self._s_last = np.array(x, dtype=float)
+        if ss.V is not None:
+            w = np.linalg.solve(ss.V, x.astype(complex))
+            self._zf = [
+                np.array([ss.lam[i].real * w[i].real]) if real else np.array([ss.lam[i] * w[i]])
+                for i, real in ss.modes
+            ]
+            return
         self._u = ss.Z.conj().T @ x.astype(complex)
         self._zf = [np.array([ss.T[j, j] * self._u[j]]) for j in range(3)]
-        self._steady = True
 
     def _leave_steady(self) -> None:
         ss = self._ss
-        x = (ss.Z @ self._u).real
+        x = self._s_last if ss.V is not None else (ss.Z @ self._u).real
         self._kf.x = x.reshape(3, 1).copy()
         self._kf.P = ss.P_post.copy()
         self._steady = False
@@ -608,6 +633,8 @@ class ForceObserver:
             return i0
         ss = self._ss
         zc = z[i0:stop]
+        if ss.V is not None:
+            return self._run_modal(t, zc, i0, out)
         u3, zf3 = scipy.signal.lfilter([ss.g[2]], [1.0, -ss.T[2, 2]], zc, zi=self._zf[2])
         u3_prev = _shift(u3, self._u[2])
         e2 = ss.T[1, 2] * u3_prev + ss.g[1] * zc
@@ -644,6 +671,60 @@ class ForceObserver:
             self._leave_steady()
         return i0 + m
 
+    def _run_modal(self, t: np.ndarray, zc: np.ndarray, i0: int, out: np.ndarray) -> int:
+        """Steady path in the eigenvector basis: one first-order recursion per mode."""
+        ss = self._ss
+        V = ss.V
+        n = zc.size
+        rows: list[np.ndarray] = []  # x, v, F posterior, shape (n,) each
+        zf_new = []
+        for (i, real), zi in zip(ss.modes, self._zf, strict=True):
+            if real:
+                w, zf = scipy.signal.lfilter([ss.h[i].real], [1.0, -ss.lam[i].real], zc, zi=zi)
+                parts = [V[r, i].real * w for r in range(3)]
+            else:
+                w, zf = scipy.signal.lfilter([ss.h[i]], [1.0, -ss.lam[i]], zc, zi=zi)
+                wr, wi = np.ascontiguousarray(w.real), np.ascontiguousarray(w.imag)
+                parts = []
+                for r in range(3):
+                    part = (2.0 * V[r, i].real) * wr
+                    part -= (2.0 * V[r, i].imag) * wi
+                    parts.append(part)
+            if rows:
+                for r in range(3):
+                    rows[r] += parts[r]
+            else:
+                rows = parts
+            zf_new.append(zf)
+        x, v, f = rows
+        # Predicted displacement of sample n from the posterior at n − 1.
+        ahead = ss.phi_row[0] * x
+        ahead += ss.phi_row[1] * v
+        ahead += ss.phi_row[2] * f
+        innov = np.empty(n)
+        s0 = self._s_last  # same operations, in the same order, as for `ahead`
+        innov[0] = zc[0] - (ss.phi_row[0] * s0[0] + ss.phi_row[1] * s0[1] + ss.phi_row[2] * s0[2])
+        np.subtract(zc[1:], ahead[:-1], out=innov[1:])
+        nis = innov * innov / ss.S
+        gated = np.nonzero(nis > self.tuning.gate_sigma**2)[0]
+        m = int(gated[0]) if gated.size else n
+        if m:
+            seg = out[i0 : i0 + m]
+            seg["time_s"] = t[i0 : i0 + m]
+            seg["displacement_m"] = x[:m]
+            seg["velocity_m_s"] = v[:m]
+            seg["force_n"] = f[:m]
+            seg["force_u_n"] = math.sqrt(ss.P_post[2, 2])
+            seg["innovation_m"] = innov[:m]
+            seg["nis"] = nis[:m]
+            seg["flags"] = FLAG_STEADY
+            self.counters.steady += m
+            self._zf = zf_new  # used only when the whole stretch was accepted
+            self._s_last = np.array([x[m - 1], v[m - 1], f[m - 1]])
+        if m < n:
+            self._leave_steady()
+        return i0 + m
+
 
 def _shift(u: np.ndarray, before: complex) -> np.ndarray:
     """``u`` delayed by one sample, ``before`` first."""
@@ -657,3 +738,8 @@ def _relative_distance(P: np.ndarray, P_ref: np.ndarray) -> float:
     """Largest ``|P − P_ref|ᵢⱼ / √(P_refᵢᵢ P_refⱼⱼ)``: a unit-free covariance distance."""
     d = np.sqrt(np.diag(P_ref))
     return float(np.max(np.abs(P - P_ref) / np.outer(d, d)))
+
+
+def concat_estimates(blocks: list[np.ndarray]) -> np.ndarray:
+    """Join estimate blocks into one ``ESTIMATE_DTYPE`` array (empty when none)."""
+    return np.concatenate(blocks) if blocks else np.empty(0, ESTIMATE_DTYPE)

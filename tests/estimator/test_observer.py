@@ -316,3 +316,14 @@ def test_bad_input_is_named() -> None:
     with pytest.raises(ParameterError, match="measurement variance"):
         ForceObserver(CELL, DT, 0.0, 0.0)
     assert issubclass(EstimatorError, ValueError)
+
+
+def test_reacquire_after_one_restarts_from_the_state_before_the_jump() -> None:
+    # With reacquire_after = 1 the first gated sample itself re-acquires; the anchor
+    # must be the state just before it (a stale anchor once gave the whole step as error).
+    t, z, _ = step_run(CELL, [10.0, 60.0], 0.5, seed=5)
+    obs = make_observer(reacquire_after=1)
+    est = obs.process(t, z)
+    assert obs.counters.reacquired >= 1 and obs.counters.rejected == 0
+    after = (t > 0.5 + 0.005) & (t < 0.6)
+    assert np.max(np.abs(est["force_n"][after] - 60.0)) < 0.02 * 50.0  # 2 % of the step

@@ -1,0 +1,91 @@
+"""Plain CSV files of displacement against time.
+
+The first non-comment line is a header naming the columns with their units:
+``time_s`` and one of ``displacement_m`` / ``displacement_mm``. Other columns are
+ignored. Lines starting with ``#`` are comments. An empty displacement field or
+``nan`` marks a missing sample.
+"""
+
+from __future__ import annotations
+
+import os
+from pathlib import Path
+
+import numpy as np
+
+from daq.errors import FramingError, SourceError
+
+__all__ = ["DISPLACEMENT_UNITS", "read_displacement_csv"]
+
+#: Accepted displacement columns and their factor to metres.
+DISPLACEMENT_UNITS = {"displacement_m": 1.0, "displacement_mm": 1e-3, "displacement_um": 1e-6}
+
+
+def read_displacement_csv(path: str | os.PathLike[str]) -> tuple[np.ndarray, np.ndarray]:
+    """Read ``(time_s, displacement_m)`` arrays from a plain CSV file.
+
+    Raises:
+        SourceError: the file cannot be read.
+        FramingError: no usable header, or a row that is not numbers; the message
+            names the file, the line and what to fix.
+    """
+    p = Path(path)
+    try:
+        text = p.read_text(encoding="utf-8-sig")
+    except OSError as exc:
+        raise SourceError(f"{p}: cannot read ({exc.strerror or exc})") from exc
+    lines = text.splitlines()
+    header_at = next(
+        (i for i, line in enumerate(lines) if line.strip() and not line.lstrip().startswith("#")),
+        None,
+    )
+    if header_at is None:
+        raise FramingError(f"{p}: no header line; expected e.g. 'time_s,displacement_m'")
+    names = [c.strip().lower() for c in lines[header_at].split(",")]
+    if "time_s" not in names:
+        raise FramingError(
+            f"{p}:{header_at + 1}: header {lines[header_at]!r} has no 'time_s' column "
+            "(time in seconds)"
+        )
+    found = [n for n in names if n in DISPLACEMENT_UNITS]
+    if len(found) != 1:
+        raise FramingError(
+            f"{p}:{header_at + 1}: header {lines[header_at]!r} needs exactly one of "
+            f"{', '.join(DISPLACEMENT_UNITS)}"
+        )
+    it, ix = names.index("time_s"), names.index(found[0])
+    rows = [
+        (i + 1, line)
+        for i, line in enumerate(lines[header_at + 1 :], start=header_at + 1)
+        if line.strip() and not line.lstrip().startswith("#")
+    ]
+    t = np.empty(len(rows))
+    x = np.empty(len(rows))
+    try:
+        body = np.array([line.split(",") for _, line in rows], dtype=object)
+        if body.ndim != 2:
+            raise ValueError("rows have different numbers of fields")
+        t[:] = _to_float(body[:, it])
+        x[:] = _to_float(body[:, ix])
+    except (ValueError, IndexError):
+        for lineno, line in rows:  # slow path: find and name the first bad line
+            fields = line.split(",")
+            try:
+                float(fields[it])
+                _to_float(np.array([fields[ix]], dtype=object))
+            except (ValueError, IndexError):
+                raise FramingError(
+                    f"{p}:{lineno}: {line.strip()!r} is not numbers in columns "
+                    f"time_s and {found[0]}"
+                ) from None
+        raise
+    if not np.all(np.isfinite(t)):
+        bad = rows[int(np.nonzero(~np.isfinite(t))[0][0])]
+        raise FramingError(f"{p}:{bad[0]}: time_s must be a finite number, got {bad[1]!r}")
+    return t, x * DISPLACEMENT_UNITS[found[0]]
+
+
+def _to_float(column: np.ndarray) -> np.ndarray:
+    stripped = np.char.strip(column.astype(str))
+    stripped[stripped == ""] = "nan"
+    return stripped.astype(float)

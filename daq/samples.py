@@ -1,0 +1,63 @@
+"""The one sample record shared by every source, decoder and recorder.
+
+A block of samples is a 1-D NumPy structured array of `SAMPLE_DTYPE`, shape (n,):
+
+=================  =====  ==========================================================
+field              dtype  meaning
+=================  =====  ==========================================================
+``seq``            <i8    device sequence number (never wraps)
+``device_time_s``  <f8    device clock at conversion, s
+``host_time_s``    <f8    host monotonic clock when the bytes arrived, s (NaN: unknown)
+``counts``         <i8    raw ADC reading, counts
+``displacement_m`` <f8    counts scaled to displacement, m
+``flags``          <u4    bit set of ``FLAG_*`` values
+=================  =====  ==========================================================
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+
+import numpy as np
+
+from daq.errors import FramingError
+
+__all__ = ["FLAG_GAP_BEFORE", "SAMPLE_DTYPE", "concat_blocks", "empty_block"]
+
+SAMPLE_DTYPE = np.dtype(
+    [
+        ("seq", "<i8"),
+        ("device_time_s", "<f8"),
+        ("host_time_s", "<f8"),
+        ("counts", "<i8"),
+        ("displacement_m", "<f8"),
+        ("flags", "<u4"),
+    ]
+)
+
+#: Sequence numbers are missing just before this sample (samples were lost).
+FLAG_GAP_BEFORE = 1
+
+
+def empty_block(n: int = 0) -> np.ndarray:
+    """Return a zero-filled block of `n` samples, shape (n,), dtype `SAMPLE_DTYPE`."""
+    if n < 0:
+        raise FramingError(f"empty_block: n={n!r} is negative; pass a count >= 0")
+    return np.zeros(n, dtype=SAMPLE_DTYPE)
+
+
+def concat_blocks(blocks: Sequence[np.ndarray]) -> np.ndarray:
+    """Join sample blocks end to end; returns shape (sum of lengths,), dtype `SAMPLE_DTYPE`.
+
+    An empty sequence gives an empty block. Every block must have dtype `SAMPLE_DTYPE`.
+    """
+    for i, block in enumerate(blocks):
+        if not isinstance(block, np.ndarray) or block.dtype != SAMPLE_DTYPE:
+            dtype = getattr(block, "dtype", type(block).__name__)
+            raise FramingError(
+                f"concat_blocks: blocks[{i}] has dtype {dtype}; "
+                "pass arrays made with daq.samples.SAMPLE_DTYPE"
+            )
+    if not blocks:
+        return empty_block()
+    return np.concatenate([np.ravel(b) for b in blocks])

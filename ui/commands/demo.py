@@ -1,0 +1,231 @@
+"""``forcelens demo``: the whole job on the built-in simulated cell.
+
+An invented sprung-platen cell runs an invented load programme and sends its
+readings as ASCII lines to a pseudo-terminal; forcelens connects to that port
+through pyserial exactly as to a real device, estimates force live, and ends with a
+table comparing the observer with the static conversion k·x.
+"""
+
+from __future__ import annotations
+
+import argparse
+import math
+import sys
+import time
+from pathlib import Path
+from typing import Any
+
+__all__ = ["register"]
+
+CAUTION = (
+    "Caution: force testing stores energy. Stay within the cell's rated capacity, keep "
+    "hands clear of pinch points, guard against parts that may fly, and follow your "
+    "laboratory's procedures and local codes; forcelens does not replace accredited "
+    "calibration."
+)
+
+_HOLD_S = 0.02  # live settling rule: the last 20 ms lie within the band
+_BAND = 0.02  # 2 % of the reading (common practice)
+
+
+def register(subparsers: Any) -> None:
+    p = subparsers.add_parser(
+        "demo",
+        help="run the observer live on the built-in simulated cell (invented data)",
+        description=(
+            "Start the built-in simulated cell (an invented cell and load programme) on a "
+            "pseudo-terminal, connect to it through pyserial, estimate force live and print "
+            "a summary per load step. Writes estimates.csv, truth.csv, summary.txt and "
+            "demo.png to --out."
+        ),
+    )
+    p.add_argument("--profile", help="cell profile (TOML); default: the invented demo cell")
+    p.add_argument("--out", default="forcelens-demo", help="output folder (default: %(default)s)")
+    p.add_argument("--seed", type=int, default=1, help="simulator seed (default: %(default)s)")
+    p.add_argument(
+        "--speed", type=float, default=1.0, help="simulated time per real second (default: 1)"
+    )
+    p.add_argument("--no-plot", action="store_true", help="skip the PNG plot")
+    p.set_defaults(run=run)
+
+
+def run(args: argparse.Namespace) -> int:
+    import numpy as np
+
+    from daq.lines import LineDecoder
+    from daq.programme import demo_programme
+    from daq.samples import concat_blocks
+    from daq.scaling import Scaling
+    from daq.serial_source import SerialSource
+    from daq.simulator import PtyCell, SimulatedCell, write_truth_csv
+    from estimator.observer import ForceObserver, concat_estimates
+    from estimator.profile import default_demo_profile, load_profile
+    from estimator.settling import is_settled
+
+    profile = load_profile(args.profile) if args.profile else default_demo_profile()
+    out_dir = Path(args.out)
+    out_dir.mkdir(parents=True, exist_ok=True)
+    tr, pl, acq = profile.transducer, profile.plant, profile.acquisition
+    scaling = Scaling(tr.volts_per_count, tr.metres_per_volt, tr.zero_volts)
+    cell = SimulatedCell(
+        pl.mass_kg, pl.stiffness_n_per_m, pl.damping_ratio, tr.noise_m, scaling,
+        acq.sample_rate_hz, seed=args.seed,
+    )  # fmt: skip
+    programme = demo_programme()
+    truth = cell.generate(programme)
+    print(CAUTION)
+    print(
+        f"Invented demo: cell '{profile.cell.name}' (fn {pl.natural_freq_hz:.1f} Hz, "
+        f"ζ {pl.damping_ratio:g}, k {pl.stiffness_n_per_m:g} N/m) at {acq.sample_rate_hz:g} Hz, "
+        f"{programme.duration_s:.1f} s of load steps."
+    )
+    observer = ForceObserver.from_profile(profile)
+    k = pl.stiffness_n_per_m
+    samples, estimates = [], []
+    live = _StatusLine()
+    recent = max(1, round(_HOLD_S * acq.sample_rate_hz))
+    pty = PtyCell(truth, speed=args.speed)  # the port exists from here on
+    try:
+        print(f"simulated cell on {pty.port_name}; connecting through pyserial")
+        decoder = LineDecoder(scaling)
+        deadline = time.monotonic() + programme.duration_s / args.speed + 15.0
+        quiet_since = None
+        # Open the port before the cell starts sending: pyserial discards what
+        # arrived before it opened the port, as with a real device.
+        with SerialSource(pty.port_name, acq.baudrate, decoder) as source:
+            pty.start()
+            while time.monotonic() < deadline:
+                block = source.read_block(0.05)
+                if block.size:
+                    quiet_since = None
+                    samples.append(block)
+                    est = observer.process(block["device_time_s"], block["displacement_m"])
+                    estimates.append(est)
+                    live.maybe_show(estimates, recent, decoder, is_settled)
+                elif pty.finished:
+                    quiet_since = quiet_since or time.monotonic()
+                    if time.monotonic() - quiet_since > 0.3:
+                        break
+        live.finish()
+        if pty.error is not None:
+            raise OSError(f"simulated cell stopped: {pty.error}")
+    finally:
+        pty.stop()
+    got = concat_blocks(samples)
+    est = concat_estimates(estimates)
+    print(
+        f"received {got.size} of {len(truth)} samples; malformed lines {decoder.lines_malformed}, "
+        f"lost {decoder.samples_lost}; observer rejected {observer.counters.rejected}, "
+        f"re-acquired {observer.counters.reacquired}"
+    )
+    truth_f = np.asarray(truth.true_force_n)[got["seq"]]
+    table = _summary(programme, got["device_time_s"], est, k * got["displacement_m"], truth_f)
+    print(table)
+    from ui.estimates_csv import write_estimates_csv
+
+    write_estimates_csv(est, out_dir / "estimates.csv")
+    write_truth_csv(truth, out_dir / "truth.csv")
+    (out_dir / "summary.txt").write_text(table + "\n", encoding="utf-8")
+    written = ["estimates.csv", "truth.csv", "summary.txt"]
+    if not args.no_plot:
+        from ui.plots import RunTraces, render_run_png
+
+        render_run_png(
+            RunTraces(
+                time_s=est["time_s"],
+                displacement_m=got["displacement_m"],
+                force_n=est["force_n"],
+                force_expanded_u_n=2.0 * est["force_u_n"],
+                static_force_n=k * got["displacement_m"],
+                truth_time_s=got["device_time_s"],
+                truth_force_n=truth_f,
+                title="forcelens demo — invented cell and load programme",
+                zoom_s=_zoom_window(programme),
+            ),
+            out_dir / "demo.png",
+        )
+        written.append("demo.png")
+    print(f"wrote {', '.join(written)} to {out_dir.resolve()}")
+    return 0
+
+
+def _zoom_window(programme: Any) -> tuple[float, float] | None:
+    """Around the largest load step: 10 ms before to 60 ms after."""
+    steps = programme.step_changes()
+    if not steps:
+        return None
+    t0 = max(steps, key=lambda s: abs(s[2] - s[1]))[0]
+    return (t0 - 0.01, t0 + 0.06)
+
+
+def _summary(programme: Any, t: Any, est: Any, kx: Any, truth_f: Any) -> str:
+    """Per load step: applied, estimate, k·x, and time to enter and stay within 2 %."""
+    import numpy as np
+
+    from estimator.settling import time_to_settle
+
+    steps = programme.step_changes()
+    ends = [s[0] for s in steps[1:]] + [programme.duration_s]
+    head = (
+        f"{'step at':>8} {'applied':>9} {'observer':>10} {'U (k=2)':>8} {'k·x':>10}"
+        f" {'observer':>9} {'k·x':>9} {'faster':>7}\n"
+        f"{'s':>8} {'N':>9} {'N':>10} {'N':>8} {'N':>10}"
+        f" {'settle ms':>9} {'settle ms':>9} {'×':>7}"
+    )
+    rows = [head, "-" * len(head.splitlines()[0])]
+    for (t0, f_from, f_to), t_end in zip(steps, ends, strict=True):
+        band = 0.02 * abs(f_to - f_from)  # 2 % of the step (common practice)
+        tail = (t >= t0 + 0.7 * (t_end - t0)) & (t < t_end)
+        f_obs = float(np.mean(est["force_n"][tail]))
+        u_obs = 2.0 * float(np.mean(est["force_u_n"][tail]))
+        f_kx = float(np.mean(kx[tail]))
+        ts_obs = time_to_settle(t, est["force_n"], t0, t_end, f_to, band)
+        ts_kx = time_to_settle(t, kx, t0, t_end, f_to, band)
+        ratio = ts_kx / ts_obs if ts_obs > 0 else math.inf
+        rows.append(
+            f"{t0:8.2f} {f_to:9.3f} {f_obs:10.3f} {u_obs:8.3f} {f_kx:10.3f}"
+            f" {ts_obs * 1e3:9.1f} {ts_kx * 1e3:9.1f} {ratio:7.1f}"
+        )
+    rows.append(
+        "settle: time from the load change until the reading enters and stays within 2 % of "
+        "the step. Observer and k·x values are means over the last 30 % of each hold. "
+        "Invented data."
+    )
+    return "\n".join(rows)
+
+
+class _StatusLine:
+    """A live status line: force ± U, displacement, settled or not, losses."""
+
+    def __init__(self) -> None:
+        self.tty = sys.stdout.isatty()
+        self.last = 0.0
+        self.period = 0.1 if self.tty else 0.5
+
+    def maybe_show(self, estimates: list, recent: int, decoder: Any, is_settled: Any) -> None:
+        now = time.monotonic()
+        if now - self.last < self.period:
+            return
+        self.last = now
+        import numpy as np
+
+        tail = estimates[-1]
+        if tail.size < recent and len(estimates) > 1:
+            tail = np.concatenate(estimates[-4:])
+        tail = tail[-recent:]
+        e = tail[-1]
+        settled = is_settled(tail["force_n"], float(e["force_u_n"]), _BAND)
+        state = "settled " if settled else "changing"
+        line = (
+            f"t {e['time_s']:6.2f} s   F {e['force_n']:9.3f} N ± {2 * e['force_u_n']:.3f} N "
+            f"(U, k=2)   x {e['displacement_m'] * 1e3:8.5f} mm   {state}   "
+            f"lost {decoder.samples_lost}  bad lines {decoder.lines_malformed}"
+        )
+        if self.tty:
+            print("\r" + line, end="", flush=True)
+        else:
+            print(line, flush=True)
+
+    def finish(self) -> None:
+        if self.tty:
+            print()

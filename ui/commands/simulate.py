@@ -1,0 +1,140 @@
+"""``forcelens simulate``: play a simulated cell on a pseudo-terminal.
+
+The cell's mechanics and transducer come from a profile (the built-in demo profile by
+default); the load programme from ``--programme`` (compact text spec), ``--programme-csv``
+or the built-in demo scenario. Any serial client can open the printed port and read the
+ASCII line stream (docs/ascii-line-format.md). NumPy, SciPy and the profile reader are
+imported only inside the run function.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+import time
+from typing import TYPE_CHECKING
+
+if TYPE_CHECKING:
+    from daq.simulator import SimulatedRun
+
+__all__ = ["register", "run_simulate"]
+
+#: How long the port stays open after the last line, s, so a reader can drain it.
+LINGER_S = 0.5
+
+
+def register(subparsers: argparse._SubParsersAction) -> None:
+    """Add the ``simulate`` sub-command to ``subparsers``."""
+    parser = subparsers.add_parser(
+        "simulate",
+        help="play a simulated cell on a pseudo-terminal (a stand-in serial device)",
+        description=(
+            "Simulate the cell described by a profile under a load programme and write "
+            "its samples, in real time, to a pseudo-terminal that any serial client can "
+            "open. The data are invented."
+        ),
+    )
+    parser.add_argument(
+        "--profile", metavar="FILE", help="cell profile (default: the built-in demo cell)"
+    )
+    source = parser.add_mutually_exclusive_group()
+    source.add_argument(
+        "--programme",
+        metavar="SPEC",
+        help=(
+            "load programme, e.g. 'hold 0.5 0; hold 1 50; ramp 1 0' "
+            "(keywords hold, ramp, sine, halfsine; s, N, Hz)"
+        ),
+    )
+    source.add_argument(
+        "--programme-csv", metavar="FILE", help="load programme as a time_s,force_n CSV"
+    )
+    parser.add_argument(
+        "--rate", type=float, metavar="HZ", help="sample rate, Hz (default: the profile's)"
+    )
+    parser.add_argument("--seed", type=int, default=0, metavar="N", help="noise seed (default 0)")
+    parser.add_argument(
+        "--truth",
+        metavar="FILE",
+        help="also write the true force and displacement (first pass) as CSV",
+    )
+    parser.add_argument(
+        "--loop", action="store_true", help="repeat the programme until Ctrl-C (fresh noise)"
+    )
+    parser.add_argument(
+        "--speed",
+        type=float,
+        default=1.0,
+        metavar="X",
+        help="time-scale factor, 2 plays twice as fast (default 1)",
+    )
+    parser.set_defaults(run=run_simulate)
+
+
+def run_simulate(args: argparse.Namespace) -> int:
+    """Run the ``simulate`` sub-command; returns the exit status."""
+    from daq.programme import demo_programme, load_programme_csv, parse_programme
+    from daq.scaling import Scaling
+    from daq.simulator import PtyCell, SimulatedCell, write_truth_csv
+    from estimator.profile import default_demo_profile, load_profile
+
+    profile = load_profile(args.profile) if args.profile else default_demo_profile()
+    if args.programme is not None:
+        programme = parse_programme(args.programme)
+    elif args.programme_csv is not None:
+        programme = load_programme_csv(args.programme_csv)
+    else:
+        programme = demo_programme()
+    if args.seed < 0:
+        raise ValueError(f"--seed = {args.seed}: must be >= 0")
+    rate_hz = args.rate if args.rate is not None else profile.acquisition.sample_rate_hz
+    tr = profile.transducer
+    plant = profile.plant
+    cell = SimulatedCell(
+        mass_kg=plant.mass_kg,
+        stiffness_n_per_m=plant.stiffness_n_per_m,
+        damping_ratio=plant.damping_ratio,
+        noise_m=tr.noise_m,
+        scaling=Scaling(tr.volts_per_count, tr.metres_per_volt, tr.zero_volts),
+        sample_rate_hz=rate_hz,
+        seed=args.seed,
+    )
+    run = cell.generate(programme)
+    if run.n_clipped:
+        print(
+            f"warning: {run.n_clipped} sample(s) clipped at the ADC range; "
+            "lower the programme's forces",
+            file=sys.stderr,
+        )
+    if args.truth:
+        write_truth_csv(run, args.truth)
+
+    def regenerate(repetition: int) -> SimulatedRun:
+        return cell.generate(programme, seed=args.seed + repetition)
+
+    with PtyCell(run, speed=args.speed, loop=args.loop, regenerate=regenerate) as pty:
+        print(
+            f"simulated cell on {pty.port_name} — connect any serial client; Ctrl-C stops",
+            flush=True,
+        )
+        print(
+            f"  {len(run)} samples at {rate_hz:g} Hz, programme {programme.duration_s:g} s"
+            + (", looping" if args.loop else ""),
+            flush=True,
+        )
+        try:
+            while not pty.wait(0.2):
+                if pty.error is not None:
+                    raise pty.error
+        except KeyboardInterrupt:
+            print(f"\nstopped: {pty.lines_written} lines written", flush=True)
+            return 0
+        if pty.error is not None:
+            raise pty.error
+        time.sleep(LINGER_S)
+        print(
+            f"programme finished: {pty.lines_written} lines written, "
+            f"{pty.bytes_dropped} bytes dropped",
+            flush=True,
+        )
+    return 0
