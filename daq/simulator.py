@@ -355,7 +355,12 @@ class PtyCell:
         return self._error
 
     def __enter__(self) -> PtyCell:
-        return self.start()
+        """The port lives for the ``with`` block; sending begins only at :meth:`start`.
+
+        A client must open the port before the first line is sent, because opening a
+        serial port discards what arrived before (pyserial flushes its input).
+        """
+        return self
 
     def __exit__(
         self,

@@ -116,6 +116,9 @@ def test_pty_cell_end_to_end_every_line_arrives() -> None:
 def test_pty_cell_real_time_pace() -> None:
     run = make_run(0.4)
     with PtyCell(run, speed=1.0) as pty:
+        time.sleep(0.1)
+        assert pty.lines_written == 0  # entering the block does not start sending
+        pty.start()
         t0 = time.monotonic()
         assert pty.wait(5.0)
         elapsed = time.monotonic() - t0
@@ -149,6 +152,7 @@ def test_pty_cell_drops_only_after_the_reader_stalls() -> None:
     run = make_run(20.0)  # 40 000 lines, ~0.6 MB: more than a pty buffers
     total = len(lines(run))
     with PtyCell(run, speed=1000.0, stall_timeout_s=0.2) as pty:
+        pty.start()
         assert pty.wait(10.0)
         assert pty.bytes_dropped > 0
         assert pty.bytes_written + pty.bytes_dropped == total

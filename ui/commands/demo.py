@@ -84,14 +84,13 @@ def run(args: argparse.Namespace) -> int:
     samples, estimates = [], []
     live = _StatusLine()
     recent = max(1, round(_HOLD_S * acq.sample_rate_hz))
-    pty = PtyCell(truth, speed=args.speed)  # the port exists from here on
-    try:
+    with PtyCell(truth, speed=args.speed) as pty:  # the port exists from here on
         print(f"simulated cell on {pty.port_name}; connecting through pyserial")
         decoder = LineDecoder(scaling)
         deadline = time.monotonic() + programme.duration_s / args.speed + 15.0
         quiet_since = None
-        # Open the port before the cell starts sending: pyserial discards what
-        # arrived before it opened the port, as with a real device.
+        # Open the port before the cell starts sending: opening discards what
+        # arrived before, as with a real device.
         with SerialSource(pty.port_name, acq.baudrate, decoder) as source:
             pty.start()
             while time.monotonic() < deadline:
@@ -109,8 +108,6 @@ def run(args: argparse.Namespace) -> int:
         live.finish()
         if pty.error is not None:
             raise OSError(f"simulated cell stopped: {pty.error}")
-    finally:
-        pty.stop()
     got = concat_blocks(samples)
     est = concat_estimates(estimates)
     print(

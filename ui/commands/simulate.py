@@ -68,6 +68,16 @@ def register(subparsers: argparse._SubParsersAction) -> None:
         metavar="X",
         help="time-scale factor, 2 plays twice as fast (default 1)",
     )
+    parser.add_argument(
+        "--start-delay",
+        type=float,
+        default=2.0,
+        metavar="S",
+        help=(
+            "seconds between printing the port and the first sample, so a client can open "
+            "the port first (opening a port discards what arrived before; default 2)"
+        ),
+    )
     parser.set_defaults(run=run_simulate)
 
 
@@ -87,6 +97,8 @@ def run_simulate(args: argparse.Namespace) -> int:
         programme = demo_programme()
     if args.seed < 0:
         raise ValueError(f"--seed = {args.seed}: must be >= 0")
+    if not 0.0 <= args.start_delay <= 3600.0:
+        raise ValueError(f"--start-delay = {args.start_delay}: must be 0 to 3600 seconds")
     rate_hz = args.rate if args.rate is not None else profile.acquisition.sample_rate_hz
     tr = profile.transducer
     plant = profile.plant
@@ -123,6 +135,8 @@ def run_simulate(args: argparse.Namespace) -> int:
             flush=True,
         )
         try:
+            time.sleep(args.start_delay)
+            pty.start()
             while not pty.wait(0.2):
                 if pty.error is not None:
                     raise pty.error
