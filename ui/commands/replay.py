@@ -47,7 +47,7 @@ def run(args: argparse.Namespace) -> int:
     observer = ForceObserver.from_profile(profile)
     show = _Progress(t.size)
     if args.smooth:
-        print(f"smoothing {t.size} samples (about 10k samples/s)...", file=sys.stderr)
+        print(f"smoothing {t.size} samples...", file=sys.stderr)
         estimates = rts_smooth(observer, t, x)
     else:
         parts = []
