@@ -451,38 +451,49 @@ class ForceObserver:
         out = np.empty(t.size, ESTIMATE_DTYPE)
         if t.size == 0:
             return out
-        if not np.all(np.isfinite(t)):
-            bad = int(np.nonzero(~np.isfinite(t))[0][0])
-            raise EstimatorError(f"time_s[{bad}] = {t[bad]!r}: sample times must be finite")
         if np.any(np.isinf(z)):
             bad = int(np.nonzero(np.isinf(z))[0][0])
             raise EstimatorError(
-                f"displacement_m[{bad}] = {z[bad]!r}: use NaN for a missing sample, not inf"
+                f"displacement_m[{bad}] = {float(z[bad])!r}: use NaN for a missing sample, not inf"
             )
-        prev = np.empty_like(t)
-        prev[0] = t[0] if self._t_last is None else self._t_last
-        prev[1:] = t[:-1]
-        dt = t - prev
-        if self._t_last is None:
-            dt[0] = self.dt_s
-        if np.any(dt <= 0):
-            bad = int(np.nonzero(dt <= 0)[0][0])
-            raise EstimatorError(
-                f"time_s[{bad}] = {t[bad]!r} does not come after {prev[bad]!r}: "
-                "sample times must strictly increase"
-            )
-        uniform = np.abs(dt - self.dt_s) <= self.tuning.timing_tolerance * self.dt_s
+        t_before = t[0] - self.dt_s if self._t_last is None else self._t_last
+        dt = np.empty_like(t)
+        dt[0] = t[0] - t_before
+        np.subtract(t[1:], t[:-1], out=dt[1:])
+        # min() propagates NaN, so one reduction screens for NaN and for order; finite
+        # ends of a strictly increasing series make every time finite.
+        if not (dt.min() > 0 and math.isfinite(t[0]) and math.isfinite(t[-1])):
+            self._raise_bad_times(t, dt, t_before)
+        tol = self.tuning.timing_tolerance * self.dt_s
+        if dt.min() >= self.dt_s - tol and dt.max() <= self.dt_s + tol:
+            uniform = None  # every step is nominal: the common case, no mask needed
+        else:
+            uniform = np.abs(dt - self.dt_s) <= tol
         i = 0
         n = t.size
         while i < n:
             if self._steady:
                 i = self._run_steady(t, z, uniform, i, out)
             else:
-                self._step_varying(t[i], z[i], dt[i], bool(uniform[i]), out, i)
+                is_uniform = True if uniform is None else bool(uniform[i])
+                self._step_varying(t[i], z[i], dt[i], is_uniform, out, i)
                 i += 1
         self._t_last = float(t[-1])
         self.counters.samples += n
         return out
+
+    def _raise_bad_times(self, t: np.ndarray, dt: np.ndarray, t_before: float) -> None:
+        """Name the first sample time that is not finite or does not increase."""
+        finite = np.isfinite(t)
+        if not finite.all():
+            bad = int(np.nonzero(~finite)[0][0])
+            raise EstimatorError(f"time_s[{bad}] = {float(t[bad])!r}: sample times must be finite")
+        bad = int(np.nonzero(~(dt > 0))[0][0])
+        prev = t_before if bad == 0 else t[bad - 1]
+        raise EstimatorError(
+            f"time_s[{bad}] = {float(t[bad])!r} does not come after {float(prev)!r}: "
+            "sample times must strictly increase"
+        )
 
     def _step_varying(
         self, t: float, z: float, dt: float, uniform: bool, out: np.ndarray, i: int
@@ -620,14 +631,24 @@ class ForceObserver:
         self._steady = False
 
     def _run_steady(
-        self, t: np.ndarray, z: np.ndarray, uniform: np.ndarray, i0: int, out: np.ndarray
+        self,
+        t: np.ndarray,
+        z: np.ndarray,
+        uniform: np.ndarray | None,
+        i0: int,
+        out: np.ndarray,
     ) -> int:
-        """Run the steady path from ``i0``; return the index of the first sample not done."""
+        """Run the steady path from ``i0``; return the index of the first sample not done.
+
+        ``uniform`` is None when every step of the block is nominal.
+        """
         n = t.size
         stop = min(n, i0 + _CHUNK)
-        bad = np.nonzero(~uniform[i0:stop] | np.isnan(z[i0:stop]))[0]
-        if bad.size:
-            stop = i0 + int(bad[0])
+        unusable = np.isnan(z[i0:stop])
+        if uniform is not None:
+            unusable |= ~uniform[i0:stop]
+        if unusable.any():
+            stop = i0 + int(np.argmax(unusable))
         if stop == i0:
             self._leave_steady()
             return i0

@@ -306,6 +306,12 @@ def test_bad_input_is_named() -> None:
     obs = make_observer()
     with pytest.raises(EstimatorError, match="strictly increase"):
         obs.process(np.array([0.0, 0.001, 0.001]), np.zeros(3))
+    with pytest.raises(EstimatorError, match=r"time_s\[1\] = nan: sample times must be finite"):
+        make_observer().process(np.array([0.0, np.nan, 0.001]), np.zeros(3))
+    with pytest.raises(EstimatorError, match=r"time_s\[0\] = 0.0 does not come after 0.0005"):
+        obs2 = make_observer()
+        obs2.process(np.array([0.0005]), np.zeros(1))
+        obs2.process(np.array([0.0]), np.zeros(1))
     with pytest.raises(EstimatorError, match="must match"):
         obs.process(np.zeros(2), np.zeros(3))
     with pytest.raises(EstimatorError, match="NaN for a missing sample"):
