@@ -11,3 +11,7 @@ class FramingError(DaqError, ValueError):
 
 class SourceError(DaqError, OSError):
     """A port or file that cannot be opened, read or written."""
+
+
+class RunFormatError(DaqError, ValueError):
+    """A run folder that is missing, incomplete, corrupt, tampered with or of unknown layout."""

@@ -22,7 +22,16 @@ import numpy as np
 
 from daq.errors import FramingError
 
-__all__ = ["FLAG_GAP_BEFORE", "SAMPLE_DTYPE", "concat_blocks", "empty_block"]
+__all__ = [
+    "DEVICE_STATUS_SHIFT",
+    "FLAG_GAP_BEFORE",
+    "FLAG_RECONNECT_BEFORE",
+    "SAMPLE_DTYPE",
+    "SAMPLE_UNITS",
+    "concat_blocks",
+    "device_status",
+    "empty_block",
+]
 
 SAMPLE_DTYPE = np.dtype(
     [
@@ -35,8 +44,28 @@ SAMPLE_DTYPE = np.dtype(
     ]
 )
 
-#: Sequence numbers are missing just before this sample (samples were lost).
+#: Units of each field, as recorded in run descriptions and CSV headers.
+SAMPLE_UNITS = {
+    "seq": "1",
+    "device_time_s": "s",
+    "host_time_s": "s",
+    "counts": "count",
+    "displacement_m": "m",
+    "flags": "1",
+}
+
+#: Sequence numbers are missing just before this sample (samples were lost), or the
+#: sequence went backwards (device restart).
 FLAG_GAP_BEFORE = 1
+#: The port was lost and reopened just before this sample (set by the serial reader).
+FLAG_RECONNECT_BEFORE = 2
+#: Bits 8..15 of ``flags`` carry the device's own status byte (binary frames), unchanged.
+DEVICE_STATUS_SHIFT = 8
+
+
+def device_status(block: np.ndarray) -> np.ndarray:
+    """The device status byte of each sample (bits 8..15 of ``flags``); uint8, shape (n,)."""
+    return ((block["flags"] >> DEVICE_STATUS_SHIFT) & 0xFF).astype(np.uint8)
 
 
 def empty_block(n: int = 0) -> np.ndarray:
