@@ -38,6 +38,9 @@ if TYPE_CHECKING:
 
 __all__ = [
     "ALLOWED_FRAMINGS",
+    "ALLOWED_LINE_COLUMNS",
+    "ALLOWED_PARITIES",
+    "ALLOWED_STOP_BITS",
     "PROFILE_FORMAT",
     "PROFILE_VERSION",
     "SUPPORTED_VERSIONS",
@@ -63,7 +66,13 @@ PROFILE_VERSION = 1
 #: Versions this software reads.
 SUPPORTED_VERSIONS: tuple[int, ...] = (1,)
 #: Framings of the serial stream this software understands.
-ALLOWED_FRAMINGS: tuple[str, ...] = ("ascii-lines",)
+ALLOWED_FRAMINGS: tuple[str, ...] = ("ascii-lines", "binary-24", "binary-32")
+#: Serial parity settings.
+ALLOWED_PARITIES: tuple[str, ...] = ("none", "even", "odd", "mark", "space")
+#: Serial stop bits.
+ALLOWED_STOP_BITS: tuple[float, ...] = (1.0, 1.5, 2.0)
+#: Meanings an ASCII line column may have (see docs/ascii-line-format.md).
+ALLOWED_LINE_COLUMNS: tuple[str, ...] = ("seq", "time_us", "time_ms", "counts", "ignore")
 
 #: One line per key: what it is and its unit. Used in error messages, in the
 #: comments the writer puts beside each key, and mirrored in docs/cell-profile.md.
@@ -93,6 +102,12 @@ KEY_HELP: dict[str, dict[str, str]] = {
         "port": 'serial port name, "" for the built-in simulated cell',
         "baudrate": "serial line speed in bit/s",
         "framing": "how samples are framed on the line; one of: " + ", ".join(ALLOWED_FRAMINGS),
+        "parity": "serial parity; one of: " + ", ".join(ALLOWED_PARITIES),
+        "stop_bits": "serial stop bits: 1, 1.5 or 2",
+        "data_bits": "serial data bits per character, 5..8",
+        "line_delimiter": "ascii-lines only: the one character between fields",
+        "line_columns": "ascii-lines only: comma-separated column meanings from: "
+        + ", ".join(ALLOWED_LINE_COLUMNS),
     },
     "observer": {
         "force_bandwidth_hz": "bandwidth the observer allows the force, Hz",
@@ -303,6 +318,11 @@ class AcquisitionSection:
     port: str = ""
     baudrate: int = 921600
     framing: str = "ascii-lines"
+    parity: str = "none"
+    stop_bits: float = 1.0
+    data_bits: int = 8
+    line_delimiter: str = ","
+    line_columns: str = "seq,time_us,counts"
 
     def __post_init__(self) -> None:
         t = self.TABLE
@@ -313,6 +333,50 @@ class AcquisitionSection:
         if framing not in ALLOWED_FRAMINGS:
             allowed = ", ".join(_toml_string(f) for f in ALLOWED_FRAMINGS)
             raise _fail(t, "framing", framing, f"not supported; allowed: {allowed}")
+        parity = _text(t, "parity", self.parity)
+        if parity not in ALLOWED_PARITIES:
+            allowed = ", ".join(_toml_string(p) for p in ALLOWED_PARITIES)
+            raise _fail(t, "parity", parity, f"not supported; allowed: {allowed}")
+        stop = _real(t, "stop_bits", self.stop_bits)
+        if stop not in ALLOWED_STOP_BITS:
+            raise _fail(t, "stop_bits", self.stop_bits, "must be 1, 1.5 or 2")
+        _set(self, "stop_bits", stop)
+        bits = _integer(t, "data_bits", self.data_bits, at_least=5)
+        if bits > 8:
+            raise _fail(t, "data_bits", bits, "must be 5, 6, 7 or 8")
+        _set(self, "data_bits", bits)
+        delim = _text(t, "line_delimiter", self.line_delimiter)
+        if len(delim) != 1 or not delim.isascii() or delim in "0123456789-\r\n":
+            raise _fail(
+                t,
+                "line_delimiter",
+                delim,
+                "must be one ASCII character other than a digit, - or CR/LF",
+            )
+        columns = self.columns
+        unknown = [c for c in columns if c not in ALLOWED_LINE_COLUMNS]
+        if unknown:
+            raise _fail(
+                t,
+                "line_columns",
+                self.line_columns,
+                f"unknown column meaning {unknown[0]!r}; "
+                f"allowed: {', '.join(ALLOWED_LINE_COLUMNS)}",
+            )
+        for kind in ("seq", "time_us", "time_ms", "counts"):
+            if columns.count(kind) > 1:
+                raise _fail(t, "line_columns", self.line_columns, f"{kind!r} appears twice")
+        if "counts" not in columns:
+            raise _fail(t, "line_columns", self.line_columns, "must contain 'counts'")
+        if "time_us" in columns and "time_ms" in columns:
+            raise _fail(t, "line_columns", self.line_columns, "give time_us or time_ms, not both")
+
+    @property
+    def columns(self) -> tuple[str, ...]:
+        """``line_columns`` split into its column meanings."""
+        return tuple(
+            c.strip() for c in _text(self.TABLE, "line_columns", self.line_columns).split(",")
+        )
 
     @property
     def sample_period_s(self) -> float:

@@ -243,7 +243,16 @@ INVALID_CASES = [
     ("zero sensitivity", _set("transducer", "metres_per_volt", 0.0), "metres_per_volt"),
     ("negative noise", _set("transducer", "noise_m", -1e-9), "noise_m"),
     ("zero sample rate", _set("acquisition", "sample_rate_hz", 0.0), "sample_rate_hz"),
-    ("other framing", _set("acquisition", "framing", "binary"), '"ascii-lines"'),
+    ("other framing", _set("acquisition", "framing", "binary"), '"binary-24"'),
+    ("parity", _set("acquisition", "parity", "N"), '[acquisition] parity = "N"'),
+    ("stop bits", _set("acquisition", "stop_bits", 3), "stop_bits = 3: must be 1, 1.5 or 2"),
+    ("data bits", _set("acquisition", "data_bits", 9), "data_bits = 9"),
+    ("digit delimiter", _set("acquisition", "line_delimiter", "1"), "line_delimiter"),
+    ("long delimiter", _set("acquisition", "line_delimiter", ";;"), "line_delimiter"),
+    ("column kind", _set("acquisition", "line_columns", "seq,time_s,counts"), "'time_s'"),
+    ("no counts", _set("acquisition", "line_columns", "seq,time_us"), "must contain 'counts'"),
+    ("twice", _set("acquisition", "line_columns", "seq,seq,counts"), "'seq' appears twice"),
+    ("two clocks", _set("acquisition", "line_columns", "time_ms,time_us,counts"), "not both"),
     ("gate of one sigma", _set("observer", "gate_sigma", 1.0), "gate_sigma"),
     ("reacquire zero", _set("observer", "reacquire_after", 0), "reacquire_after"),
     ("zero process noise", _set("observer", "process_noise_n2_per_s", 0.0), "process_noise"),
@@ -268,6 +277,23 @@ def test_each_invalid_value_is_refused_naming_the_key(mutate: Any, expected: str
     message = str(info.value)
     assert message.startswith("profile.toml: ")
     assert expected in message
+
+
+def test_serial_and_line_settings_round_trip() -> None:
+    data = demo_mapping()
+    data["acquisition"].update(
+        framing="ascii-lines",
+        parity="even",
+        stop_bits=1.5,
+        data_bits=7,
+        line_delimiter=";",
+        line_columns="time_ms, counts, ignore",
+    )
+    profile = profile_from_mapping(data)
+    acq = profile.acquisition
+    assert (acq.parity, acq.stop_bits, acq.data_bits) == ("even", 1.5, 7)
+    assert acq.columns == ("time_ms", "counts", "ignore")
+    assert profile_from_mapping(tomllib.loads(profile_to_toml(profile))) == profile
 
 
 def test_unchanged_demo_mapping_is_accepted() -> None:
