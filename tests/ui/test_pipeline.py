@@ -1,0 +1,121 @@
+"""The estimation pipeline shared by live runs and replays: block independence and zero."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from daq.programme import parse_programme
+from daq.samples import SAMPLE_DTYPE, empty_block
+from daq.simulator import SimulatedCell
+from estimator.observer import ESTIMATE_DTYPE
+from estimator.profile import default_demo_profile
+from ui.pipeline import (
+    TARE_EVENT,
+    EstimationPipeline,
+    Tare,
+    estimate_samples,
+    tares_from_events,
+)
+from ui.wiring import scaling_for
+
+PROFILE = default_demo_profile()
+RATE = PROFILE.acquisition.sample_rate_hz
+OFFSET_M = 2.0e-5  # invented zero offset of the transducer, m (test data)
+
+
+def _samples(programme: str, *, seed: int = 3, offset_m: float = 0.0) -> tuple[np.ndarray, object]:
+    pl, tr = PROFILE.plant, PROFILE.transducer
+    cell = SimulatedCell(
+        pl.mass_kg,
+        pl.stiffness_n_per_m,
+        pl.damping_ratio,
+        tr.noise_m,
+        scaling_for(PROFILE),
+        RATE,
+        seed=seed,
+        zero_offset_m=offset_m,
+    )
+    run = cell.generate(parse_programme(programme))
+    block = empty_block(len(run))
+    block["seq"] = run.seq
+    block["device_time_s"] = run.device_time_us * 1e-6
+    block["counts"] = run.counts
+    block["displacement_m"] = scaling_for(PROFILE).to_metres(run.counts)
+    return block, run
+
+
+class _Recorder:
+    def __init__(self) -> None:
+        self.streams: dict[str, list[np.ndarray]] = {}
+        self.events: list[dict] = []
+
+    def append(self, block: np.ndarray, stream: str = "samples") -> None:
+        self.streams.setdefault(stream, []).append(block.copy())
+
+    def event(self, kind: str, message: str, **fields: object) -> None:
+        self.events.append({"kind": kind, "message": message, **fields})
+
+
+def test_estimates_do_not_depend_on_block_sizes_even_across_a_zero() -> None:
+    samples, _ = _samples("hold 0.3 0; hold 0.3 40; hold 0.3 0", offset_m=OFFSET_M)
+    rng = np.random.default_rng(7)
+    recorder = _Recorder()
+    live = EstimationPipeline(PROFILE, recorder=recorder)
+    parts, i = [], 0
+    tare_done = False
+    while i < samples.size:
+        n = int(rng.integers(1, 700))
+        parts.append(live.process(samples[i : i + n]))
+        i += n
+        if not tare_done and i >= int(0.2 * RATE):  # unloaded and at rest: zero here
+            live.tare()
+            tare_done = True
+    got = np.concatenate(parts)
+    assert got.dtype == ESTIMATE_DTYPE and got.size == samples.size
+    tares = tares_from_events(recorder.events)
+    assert len(tares) == 1 and recorder.events[0]["kind"] == TARE_EVENT
+    replay = estimate_samples(PROFILE, samples, tares, block_size=4096)
+    assert replay.tobytes() == got.tobytes()  # bit for bit, as the replay promise needs
+    assert np.concatenate(recorder.streams["samples"]).tobytes() == samples.tobytes()
+    assert np.concatenate(recorder.streams["estimates"]).tobytes() == got.tobytes()
+
+
+def test_zero_removes_a_transducer_offset() -> None:
+    samples, _ = _samples("hold 0.4 0; hold 0.4 50", offset_m=OFFSET_M)
+    k = PROFILE.plant.stiffness_n_per_m
+    untared = estimate_samples(PROFILE, samples)
+    pipe = EstimationPipeline(PROFILE)
+    first = int(0.3 * RATE)
+    pipe.process(samples[:first])
+    tare = pipe.tare()
+    # The offset is the mean of the last 0.1 s of raw displacement: the invented offset
+    # within a few noise standard deviations of a 200-sample mean (plus one count).
+    tol = (
+        4 * PROFILE.transducer.noise_m / np.sqrt(tare.n_samples) + PROFILE.transducer.resolution_m
+    )
+    assert tare.seq == first and tare.offset_m == pytest.approx(OFFSET_M, abs=tol)
+    est = np.concatenate([pipe.process(samples[first:])])
+    hold = (samples["device_time_s"][first:] > 0.6) & (samples["device_time_s"][first:] < 0.8)
+    # Without the zero the force is off by k·offset (8 N); with it, within the 2 % band.
+    assert np.mean(untared["force_n"][first:][hold]) == pytest.approx(50 + k * OFFSET_M, rel=0.02)
+    assert np.mean(est["force_n"][hold]) == pytest.approx(50.0, rel=0.02)
+
+
+def test_zero_before_any_sample_is_refused() -> None:
+    with pytest.raises(ValueError, match="no sample has arrived"):
+        EstimationPipeline(PROFILE).tare()
+
+
+def test_wrong_block_dtype_is_refused() -> None:
+    with pytest.raises(ValueError, match="SAMPLE_DTYPE"):
+        EstimationPipeline(PROFILE).process(np.zeros(3))
+    assert SAMPLE_DTYPE.names is not None
+
+
+def test_damaged_tare_event_is_named() -> None:
+    with pytest.raises(ValueError, match="event 1"):
+        tares_from_events([{"kind": "mark"}, {"kind": TARE_EVENT, "seq": 4}])
+    assert tares_from_events([{"kind": TARE_EVENT, "seq": 9, "offset_m": 1e-6}]) == [
+        Tare(9, 1e-6, 0)
+    ]

@@ -1,0 +1,229 @@
+"""The one path from samples to force estimates, shared by live runs and replays.
+
+`EstimationPipeline` takes sample blocks (``daq.samples.SAMPLE_DTYPE``) in stream
+order and returns estimate blocks (``estimator.observer.ESTIMATE_DTYPE``), one row per
+sample. Live acquisition feeds it blocks as they arrive and records both the samples
+and the estimates; a replay feeds the recorded samples, in blocks of any size, through
+a fresh pipeline built from the recorded profile and the recorded tare events. Because
+the observer's output does not depend on how the stream is cut into blocks, the
+replayed estimates are bit-identical to the ones computed live.
+
+Zero (tare): the transducer's zero offset and a constant force cannot be told apart,
+so the zero is set explicitly with the cell unloaded and at rest. `tare` takes the mean
+raw displacement of the most recent samples as the new offset; it applies from the
+next sample on, whose sequence number is stored with the offset in a ``tare`` event.
+At that sample the observer restarts from scratch on the re-zeroed displacement.
+"""
+
+from __future__ import annotations
+
+import math
+from collections import deque
+from collections.abc import Iterable, Mapping, Sequence
+from dataclasses import dataclass
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+
+from daq.samples import SAMPLE_DTYPE
+from estimator.observer import ESTIMATE_DTYPE, ForceObserver, concat_estimates
+
+if TYPE_CHECKING:
+    from estimator.profile import CellProfile
+
+__all__ = [
+    "ESTIMATE_STREAM",
+    "ESTIMATE_UNITS",
+    "TARE_EVENT",
+    "EstimationPipeline",
+    "Tare",
+    "estimate_samples",
+    "tares_from_events",
+]
+
+#: Name of the run stream holding the estimates computed live.
+ESTIMATE_STREAM = "estimates"
+#: Units of each ESTIMATE_DTYPE field (force_u_n is a standard uncertainty, k = 1).
+ESTIMATE_UNITS: dict[str, str] = {
+    "time_s": "s",
+    "force_n": "N",
+    "force_u_n": "N",
+    "displacement_m": "m",
+    "velocity_m_s": "m/s",
+    "innovation_m": "m",
+    "nis": "1",
+    "flags": "1",
+}
+#: Event kind recording a zero (tare).
+TARE_EVENT = "tare"
+
+_TARE_WINDOW_S = 0.1  # default averaging time of a tare, s
+
+
+@dataclass(frozen=True)
+class Tare:
+    """A zero offset applied from sample ``seq`` on (inclusive).
+
+    Attributes:
+        seq: first sequence number read against the new zero.
+        offset_m: raw displacement subtracted from every later sample, m.
+        n_samples: how many samples were averaged to find the offset.
+    """
+
+    seq: int
+    offset_m: float
+    n_samples: int = 0
+
+    def event_fields(self) -> dict[str, Any]:
+        """The fields stored in the run's ``tare`` event."""
+        return {"seq": self.seq, "offset_m": self.offset_m, "n_samples": self.n_samples}
+
+
+def tares_from_events(events: Iterable[Mapping[str, Any]]) -> list[Tare]:
+    """The tares stored in a run's event log, in order of ``seq``.
+
+    Raises ValueError naming the event if a ``tare`` event lacks ``seq`` or ``offset_m``.
+    """
+    tares = []
+    for i, ev in enumerate(events):
+        if ev.get("kind") != TARE_EVENT:
+            continue
+        try:
+            seq = int(ev["seq"])
+            offset = float(ev["offset_m"])
+        except (KeyError, TypeError, ValueError) as exc:
+            raise ValueError(
+                f"event {i} (tare) lacks a valid seq or offset_m ({exc}); "
+                "the run's event log is damaged"
+            ) from None
+        if not math.isfinite(offset):
+            raise ValueError(f"event {i} (tare): offset_m = {offset!r} is not finite")
+        tares.append(Tare(seq, offset, int(ev.get("n_samples", 0))))
+    return sorted(tares, key=lambda t: t.seq)
+
+
+class EstimationPipeline:
+    """Samples in, force estimates out, with zero (tare) and optional recording.
+
+    Args:
+        profile: the cell profile the observer is built from.
+        recorder: when given, an object with ``append(block, stream=...)`` and
+            ``event(kind, message, **fields)`` (a ``daq.runs.RunWriter``); every sample
+            block and its estimates are appended, and tares are logged.
+        tares: tares to apply at their sequence numbers (a replay passes the recorded
+            ones; a live run starts with none and calls `tare`).
+        tare_window_s: averaging time of `tare`, s.
+    """
+
+    def __init__(
+        self,
+        profile: CellProfile,
+        *,
+        recorder: Any = None,
+        tares: Sequence[Tare] = (),
+        tare_window_s: float = _TARE_WINDOW_S,
+    ) -> None:
+        if not (math.isfinite(tare_window_s) and tare_window_s > 0):
+            raise ValueError(f"tare_window_s = {tare_window_s!r}: must be a number > 0 s")
+        self.profile = profile
+        self.observer = ForceObserver.from_profile(profile)
+        self.recorder = recorder
+        self._pending = deque(sorted(tares, key=lambda t: t.seq))
+        self.offset_m = 0.0
+        self.tares_applied: list[Tare] = []
+        n_window = max(1, round(tare_window_s * profile.acquisition.sample_rate_hz))
+        self._recent: deque[np.ndarray] = deque()
+        self._recent_n = 0
+        self._window = n_window
+        self._last_seq: int | None = None
+        self.samples_in = 0
+
+    # ---------------------------------------------------------------- feeding
+    def process(self, block: np.ndarray) -> np.ndarray:
+        """Estimate force for `block` (SAMPLE_DTYPE, shape (n,)); returns ESTIMATE_DTYPE (n,)."""
+        if not isinstance(block, np.ndarray) or block.dtype != SAMPLE_DTYPE:
+            dtype = getattr(block, "dtype", type(block).__name__)
+            raise ValueError(f"pipeline: block has dtype {dtype}; pass daq.samples.SAMPLE_DTYPE")
+        if block.size == 0:
+            return np.zeros(0, ESTIMATE_DTYPE)
+        parts = []
+        start = 0
+        seq = block["seq"]
+        while self._pending:
+            tare = self._pending[0]
+            # First sample at or after the tare's sequence number (seq increases within a
+            # stream; a device restart makes it drop, which a tare never straddles).
+            hits = np.flatnonzero(seq[start:] >= tare.seq)
+            if hits.size == 0:
+                break
+            cut = start + int(hits[0])
+            if cut > start:
+                parts.append(self._estimate(block[start:cut]))
+            self._apply(self._pending.popleft())
+            start = cut
+        parts.append(self._estimate(block[start:]))
+        est = parts[0] if len(parts) == 1 else concat_estimates(parts)
+        self._remember(block)
+        if self.recorder is not None:
+            self.recorder.append(block)
+            self.recorder.append(est, ESTIMATE_STREAM)
+        self.samples_in += block.size
+        return est
+
+    def _estimate(self, part: np.ndarray) -> np.ndarray:
+        x = part["displacement_m"]
+        if self.offset_m != 0.0:
+            x = x - self.offset_m
+        return self.observer.process(part["device_time_s"], x)
+
+    def _apply(self, tare: Tare) -> None:
+        self.offset_m = tare.offset_m
+        self.observer.reset()
+        self.tares_applied.append(tare)
+
+    def _remember(self, block: np.ndarray) -> None:
+        self._recent.append(block["displacement_m"].copy())
+        self._recent_n += block.size
+        while self._recent and self._recent_n - self._recent[0].size >= self._window:
+            self._recent_n -= self._recent.popleft().size
+        self._last_seq = int(block["seq"][-1])
+
+    # ------------------------------------------------------------------- zero
+    def tare(self) -> Tare:
+        """Zero on the mean raw displacement of the last `tare_window_s`; applies next sample.
+
+        Only valid with the cell unloaded and at rest; the caller confirms that with the
+        operator. Logs a ``tare`` event when recording. Raises ValueError before any
+        sample has arrived or when the recent samples hold no finite value.
+        """
+        if self._last_seq is None:
+            raise ValueError("cannot zero yet: no sample has arrived; wait for data")
+        recent = np.concatenate(list(self._recent))[-self._window :]
+        finite = recent[np.isfinite(recent)]
+        if finite.size == 0:
+            raise ValueError("cannot zero: the recent samples hold no valid displacement")
+        tare = Tare(self._last_seq + 1, float(np.mean(finite)), int(finite.size))
+        self._pending.append(tare)
+        if self.recorder is not None:
+            self.recorder.event(
+                TARE_EVENT,
+                f"zero set to {tare.offset_m:.6e} m from {tare.n_samples} samples",
+                **tare.event_fields(),
+            )
+        return tare
+
+
+def estimate_samples(
+    profile: CellProfile,
+    samples: np.ndarray,
+    tares: Sequence[Tare] = (),
+    *,
+    block_size: int = 200_000,
+) -> np.ndarray:
+    """Replay `samples` (SAMPLE_DTYPE, (n,)) through a fresh pipeline; ESTIMATE_DTYPE (n,)."""
+    pipeline = EstimationPipeline(profile, tares=tares)
+    parts = [
+        pipeline.process(np.asarray(samples[i : i + block_size]))
+        for i in range(0, samples.size, block_size)
+    ]
+    return concat_estimates(parts) if parts else np.zeros(0, ESTIMATE_DTYPE)

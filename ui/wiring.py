@@ -1,0 +1,91 @@
+"""Build the `daq` objects a cell profile describes (scaling, decoder, port, simulated cell).
+
+`daq` and `estimator` never import each other; this module is where a profile's numbers
+become acquisition objects.
+"""
+
+from __future__ import annotations
+
+from typing import TYPE_CHECKING
+
+if TYPE_CHECKING:
+    from daq.decoding import Decoder
+    from daq.scaling import Scaling
+    from daq.serial_source import PortSettings
+    from daq.simulator import SimulatedCell
+    from estimator.profile import CellProfile
+
+__all__ = [
+    "decoder_for",
+    "port_settings_for",
+    "profile_from_text",
+    "scaling_for",
+    "simulated_cell_for",
+]
+
+
+def scaling_for(profile: CellProfile) -> Scaling:
+    """Counts → metres as the profile's ``[transducer]`` table says."""
+    from daq.scaling import Scaling
+
+    tr = profile.transducer
+    return Scaling(tr.volts_per_count, tr.metres_per_volt, tr.zero_volts)
+
+
+def decoder_for(profile: CellProfile) -> Decoder:
+    """The frame decoder of the profile's ``[acquisition]`` framing."""
+    from daq.decoding import make_decoder
+
+    acq = profile.acquisition
+    return make_decoder(
+        acq.framing,
+        scaling_for(profile),
+        acq.sample_rate_hz,
+        delimiter=acq.line_delimiter.encode("ascii"),
+        columns=acq.columns,
+    )
+
+
+def port_settings_for(profile: CellProfile, port: str | None = None) -> PortSettings:
+    """Serial settings of the profile; `port` overrides ``[acquisition] port``."""
+    from daq.serial_source import PortSettings
+
+    acq = profile.acquisition
+    return PortSettings(
+        port=port if port is not None else acq.port,
+        baudrate=acq.baudrate,
+        parity=acq.parity,
+        stop_bits=acq.stop_bits,
+        data_bits=acq.data_bits,
+    )
+
+
+def simulated_cell_for(
+    profile: CellProfile, *, seed: int = 0, sample_rate_hz: float | None = None
+) -> SimulatedCell:
+    """A simulated cell with the profile's mechanics, noise and scaling (invented data)."""
+    from daq.simulator import SimulatedCell
+
+    pl, tr = profile.plant, profile.transducer
+    return SimulatedCell(
+        mass_kg=pl.mass_kg,
+        stiffness_n_per_m=pl.stiffness_n_per_m,
+        damping_ratio=pl.damping_ratio,
+        noise_m=tr.noise_m,
+        scaling=scaling_for(profile),
+        sample_rate_hz=sample_rate_hz or profile.acquisition.sample_rate_hz,
+        seed=seed,
+    )
+
+
+def profile_from_text(text: str, origin: str) -> CellProfile:
+    """Parse a profile stored as TOML text (as a run keeps it); errors name `origin`."""
+    import tomllib
+
+    from estimator.profile import ProfileError, profile_from_mapping
+
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise ProfileError(f"{origin}: not valid TOML: {exc}") from exc
+    return profile_from_mapping(data, origin=origin)
