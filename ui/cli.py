@@ -15,7 +15,17 @@ from collections.abc import Sequence
 from ui.version import software_version
 
 #: Sub-command modules, in the order ``--help`` lists them.
-COMMAND_MODULES = ("demo", "simulate", "replay", "profile")
+COMMAND_MODULES = (
+    "demo",
+    "live",
+    "replay",
+    "verify",
+    "runs",
+    "export",
+    "ports",
+    "simulate",
+    "profile",
+)
 
 
 def build_parser() -> argparse.ArgumentParser:

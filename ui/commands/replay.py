@@ -1,30 +1,50 @@
-"""``forcelens replay``: estimates from a recorded displacement file."""
+"""``forcelens replay``: estimates from a recorded run or a plain CSV of displacement.
+
+A run (a folder written by ``forcelens live --record``) is replayed with the profile and
+the zero (tare) events recorded with it, through the same pipeline as the live run;
+when the run holds the estimates computed live, the replay is compared with them
+sample by sample and must be bit-identical.
+"""
 
 from __future__ import annotations
 
 import argparse
+import math
 import sys
 import time
+from pathlib import Path
 from typing import Any
 
 __all__ = ["register"]
 
 _BLOCK = 200_000  # samples per observer call; any size gives the same numbers
+_PACED_BLOCK_S = 0.05  # device time per block when pacing, s
 
 
 def register(subparsers: Any) -> None:
     p = subparsers.add_parser(
         "replay",
-        help="estimate force from a CSV of time and displacement",
+        help="estimate force again from a recorded run or a CSV of time and displacement",
         description=(
-            "Run the force observer over a plain CSV file (header: time_s and displacement_m "
-            "or displacement_mm) and write time_s, force_N, force_u_N, displacement_m, "
-            "velocity_m_s, nis, flags. force_u_N is the standard uncertainty (k = 1)."
+            "Replay a recorded run (a run folder) or a plain CSV file (header: time_s and "
+            "displacement_m, displacement_mm or displacement_um) through the force observer. "
+            "A run is replayed with its own profile and zero events and compared with the "
+            "estimates recorded live. --out writes time_s, force_N, force_u_N, "
+            "displacement_m, velocity_m_s, nis, flags; force_u_N is the standard "
+            "uncertainty (k = 1)."
         ),
     )
-    p.add_argument("file", help="input CSV with time_s and displacement_m/displacement_mm")
-    p.add_argument("--profile", required=True, help="cell profile (TOML)")
-    p.add_argument("--out", required=True, help="output CSV")
+    p.add_argument("source", metavar="RUN_OR_CSV", help="run folder or CSV file")
+    p.add_argument(
+        "--profile", help="cell profile (TOML); required for CSV, overrides a run's own"
+    )
+    p.add_argument("--out", help="write the estimates to this CSV (required for a CSV input)")
+    p.add_argument(
+        "--speed",
+        default="max",
+        metavar="X",
+        help="'max' (default: as fast as possible), 1 for real time, or a factor such as 5",
+    )
     p.add_argument(
         "--smooth",
         action="store_true",
@@ -33,36 +53,160 @@ def register(subparsers: Any) -> None:
     p.set_defaults(run=run)
 
 
+def _speed(text: str) -> float:
+    if text == "max":
+        return math.inf
+    try:
+        value = float(text)
+    except ValueError:
+        value = math.nan
+    if not (math.isfinite(value) and value > 0):
+        raise ValueError(f"--speed = {text!r}: give 'max' or a factor > 0 such as 1 or 5")
+    return value
+
+
 def run(args: argparse.Namespace) -> int:
+    speed = _speed(args.speed)
+    source = Path(args.source)
+    if source.is_dir():
+        return _replay_run(args, source, speed)
+    return _replay_csv(args, source, speed)
+
+
+def _replay_csv(args: argparse.Namespace, source: Path, speed: float) -> int:
     import numpy as np
 
     from daq.csvfile import read_displacement_csv
-    from estimator.observer import ForceObserver
+    from daq.samples import empty_block
     from estimator.profile import load_profile
-    from estimator.smoother import rts_smooth
-    from ui.estimates_csv import write_estimates_csv
 
+    if not args.profile:
+        raise ValueError(f"{source}: a CSV carries no profile; give --profile FILE")
+    if not args.out:
+        raise ValueError(f"{source}: give --out FILE for the estimates")
     profile = load_profile(args.profile)
-    t, x = read_displacement_csv(args.file)
-    observer = ForceObserver.from_profile(profile)
-    show = _Progress(t.size)
-    if args.smooth:
-        print(f"smoothing {t.size} samples...", file=sys.stderr)
-        estimates = rts_smooth(observer, t, x)
-    else:
-        parts = []
-        for start in range(0, t.size, _BLOCK):
-            parts.append(observer.process(t[start : start + _BLOCK], x[start : start + _BLOCK]))
-            show("estimating", start + parts[-1].size)
-        estimates = np.concatenate(parts) if parts else observer.process(t, x)
-    write_estimates_csv(estimates, args.out, progress=lambda d, n: show("writing", d))
-    show.done()
+    t, x = read_displacement_csv(source)
+    samples = empty_block(t.size)
+    samples["seq"] = np.arange(t.size)
+    samples["device_time_s"] = t
+    samples["host_time_s"] = math.nan
+    samples["displacement_m"] = x
+    estimates, observer = _estimate(args, profile, samples, [], speed)
+    _write(args, estimates)
     c = observer.counters
     print(
-        f"wrote {args.out}: {t.size} samples; rejected {c.rejected}, missing {c.missing}, "
+        f"{source}: {t.size} samples; rejected {c.rejected}, missing {c.missing}, "
         f"gaps {c.gaps}, re-acquired {c.reacquired}"
     )
     return 0
+
+
+def _replay_run(args: argparse.Namespace, folder: Path, speed: float) -> int:
+    import numpy as np
+
+    from daq.runs import read_run
+    from estimator.profile import load_profile
+    from ui.pipeline import ESTIMATE_STREAM, tares_from_events
+    from ui.wiring import profile_from_text
+
+    data = read_run(folder)
+    for warning in data.warnings:
+        print(f"warning: {warning}", file=sys.stderr)
+    recorded_profile = profile_from_text(
+        data.description["profile_toml"], f"{folder / 'run.json'} [profile_toml]"
+    )
+    profile = load_profile(args.profile) if args.profile else recorded_profile
+    own_profile = profile == recorded_profile
+    tares = tares_from_events(data.events)
+    state = "closed" if data.closed else "NOT closed (ended without its closing record)"
+    print(f"run {data.description['run_id']}: {data.samples.size} samples, {state}")
+    estimates, observer = _estimate(args, profile, data.samples, tares, speed)
+    if args.out:
+        _write(args, estimates)
+    c = observer.counters
+    print(
+        f"replayed {estimates.size} samples; rejected {c.rejected}, gaps {c.gaps}, "
+        f"re-acquired {c.reacquired}, zero events {len(tares)}"
+    )
+    live = data.streams.get(ESTIMATE_STREAM)
+    if live is None or args.smooth:
+        return 0
+    n = min(live.size, estimates.size)
+    same = np.asarray(live[:n]).tobytes() == estimates[:n].tobytes()
+    if same and live.size == estimates.size:
+        print(f"identical to the {n} estimates computed live (bit for bit)")
+        return 0
+    if not own_profile:
+        print("differs from the live estimates, as expected: --profile replaces the run's own")
+        return 0
+    if same:
+        print(
+            f"the first {n} estimates are identical to the live ones; the live stream holds "
+            f"{live.size} and the samples {estimates.size} (the run ended mid-flush)"
+        )
+        return 0
+    live_rows = np.asarray(live[:n]).view(np.uint8).reshape(n, -1)
+    replay_rows = estimates[:n].view(np.uint8).reshape(n, -1)
+    first = int(np.flatnonzero((live_rows != replay_rows).any(axis=1))[0])
+    print(
+        f"DIFFERS from the live estimates from sample {first} on "
+        f"(seq {int(data.samples['seq'][first])}); the run or the software has changed",
+        file=sys.stderr,
+    )
+    return 1
+
+
+def _estimate(
+    args: argparse.Namespace, profile: Any, samples: Any, tares: list, speed: float
+) -> tuple[Any, Any]:
+    from estimator.observer import concat_estimates
+    from estimator.smoother import rts_smooth
+    from ui.pipeline import EstimationPipeline
+    from ui.status import StatusLine, format_status
+
+    pipeline = EstimationPipeline(profile, tares=tares)
+    if args.smooth:
+        if tares:
+            raise ValueError("--smooth cannot replay a run with zero events yet; leave it out")
+        print(f"smoothing {samples.size} samples...", file=sys.stderr)
+        est = rts_smooth(pipeline.observer, samples["device_time_s"], samples["displacement_m"])
+        return est, pipeline.observer
+    parts = []
+    if math.isinf(speed):
+        show = _Progress(samples.size)
+        for start in range(0, samples.size, _BLOCK):
+            parts.append(pipeline.process(samples[start : start + _BLOCK]))
+            show("estimating", start + parts[-1].size)
+        show.done()
+    else:
+        status = StatusLine()
+        t = samples["device_time_s"]
+        t0_dev = float(t[0]) if t.size else 0.0
+        t0 = time.monotonic()
+        start = 0
+        while start < samples.size:
+            stop = int(t.searchsorted(t[start] + _PACED_BLOCK_S * speed, side="right"))
+            stop = max(stop, start + 1)
+            due = t0 + (float(t[stop - 1]) - t0_dev) / speed
+            wait = due - time.monotonic()
+            if wait > 0:
+                time.sleep(wait)
+            parts.append(pipeline.process(samples[start:stop]))
+            start = stop
+            if status.due():
+                status.show(format_status(parts[-1], state=f"replay ×{speed:g}"))
+        status.finish()
+    est = concat_estimates(parts) if parts else pipeline.process(samples[:0])
+    return est, pipeline.observer
+
+
+def _write(args: argparse.Namespace, estimates: Any) -> None:
+    from ui.estimates_csv import write_estimates_csv
+
+    show = _Progress(estimates.size)
+    write_estimates_csv(estimates, args.out, progress=lambda d, n: show("writing", d))
+    show.done()
+    print(f"wrote {args.out}")
 
 
 class _Progress:

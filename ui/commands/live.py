@@ -1,0 +1,248 @@
+"""``forcelens live``: headless live estimation with a status line and optional recording.
+
+Reads the serial port named by ``--port`` or by the profile; with neither, the built-in
+simulated cell (invented data) is started on a pseudo-terminal and read through pyserial
+exactly like a device. Samples pass through the same `ui.pipeline.EstimationPipeline` a
+replay uses, so a recorded run replays to bit-identical estimates.
+"""
+
+from __future__ import annotations
+
+import argparse
+import signal
+import time
+from pathlib import Path
+from typing import Any
+
+__all__ = ["register", "run_live"]
+
+DEFAULT_RUNS_ROOT = "recordings"
+CAUTION = (
+    "Caution: force testing stores energy. Stay within the cell's rated capacity, keep hands "
+    "clear of pinch points, guard against parts that may fly, and follow your laboratory's "
+    "procedures and local codes; forcelens does not replace accredited calibration."
+)
+
+
+def register(subparsers: Any) -> None:
+    """Add the ``live`` sub-command to `subparsers`."""
+    p = subparsers.add_parser(
+        "live",
+        help="estimate force live from a serial port (or the built-in simulated cell)",
+        description=(
+            "Read samples from a serial port, estimate force with its uncertainty live and "
+            "show a status line; optionally record the run. Without --port and without a "
+            "port in the profile, the built-in simulated cell (invented data) is used. "
+            "Stop with Ctrl-C; the run is closed cleanly."
+        ),
+    )
+    p.add_argument("--profile", metavar="FILE", help="cell profile (default: the demo cell)")
+    p.add_argument("--port", metavar="PORT", help="serial port; overrides the profile's")
+    p.add_argument(
+        "--record",
+        metavar="DIR",
+        nargs="?",
+        const=DEFAULT_RUNS_ROOT,
+        help=f"record the run in a new folder under DIR (default DIR: {DEFAULT_RUNS_ROOT})",
+    )
+    p.add_argument("--note", default="", help="operator note stored with the run")
+    p.add_argument(
+        "--tag", action="append", default=[], help="tag stored with the run (repeatable)"
+    )
+    p.add_argument(
+        "--duration", type=float, metavar="S", help="stop after S seconds (default: Ctrl-C)"
+    )
+    p.add_argument("--quiet", action="store_true", help="no status line")
+    sim = p.add_argument_group("built-in simulated cell (used when no port is given)")
+    sim.add_argument(
+        "--sim-programme",
+        metavar="SPEC",
+        help="load programme, e.g. 'hold 0.5 0; hold 1 50' (default: the demo programme)",
+    )
+    sim.add_argument("--sim-speed", type=float, default=1.0, metavar="X", help="time scale")
+    sim.add_argument("--sim-seed", type=int, default=0, metavar="N", help="noise seed")
+    sim.add_argument("--sim-once", action="store_true", help="play the programme once, then stop")
+    sim.add_argument(
+        "--sim-faults",
+        metavar="SPEC",
+        default="",
+        help=(
+            "faults to inject, comma-separated KIND@T[:DURATION][*COUNT], T in simulated s; "
+            "kinds garbage, drop, corrupt, disconnect, stall; e.g. 'drop@1*50,disconnect@2:0.5'"
+        ),
+    )
+    p.set_defaults(run=run_live)
+
+
+def parse_faults(spec: str) -> list[Any]:
+    """Parse ``KIND@T[:DURATION][*COUNT],...`` into `daq.simulator.Fault` values."""
+    from daq.simulator import Fault
+
+    faults = []
+    for item in filter(None, (s.strip() for s in spec.split(","))):
+        kind, at, rest = item.partition("@")
+        if not at:
+            raise ValueError(f"--sim-faults: {item!r} lacks '@T' (e.g. drop@1.5*20)")
+        count = 1
+        if "*" in rest:
+            rest, _, count_text = rest.partition("*")
+            try:
+                count = int(count_text)
+            except ValueError:
+                raise ValueError(
+                    f"--sim-faults: {item!r}: count {count_text!r} is not whole"
+                ) from None
+        time_text, _, duration_text = rest.partition(":")
+        try:
+            at_s = float(time_text)
+            duration_s = float(duration_text) if duration_text else 0.0
+        except ValueError:
+            raise ValueError(f"--sim-faults: {item!r}: time or duration is not a number") from None
+        faults.append(Fault(kind.strip(), at_s, duration_s=duration_s, count=count))
+    return faults
+
+
+class _Stop:
+    """Turns SIGTERM into a clean stop (Ctrl-C arrives as KeyboardInterrupt)."""
+
+    def __init__(self) -> None:
+        self.requested = False
+        self._old: Any = None
+
+    def __enter__(self) -> _Stop:
+        try:
+            self._old = signal.signal(signal.SIGTERM, self._handle)
+        except ValueError:  # not the main thread (tests); Ctrl-C still works
+            self._old = None
+        return self
+
+    def _handle(self, signum: int, frame: Any) -> None:
+        self.requested = True
+
+    def __exit__(self, *exc: object) -> None:
+        if self._old is not None:
+            signal.signal(signal.SIGTERM, self._old)
+
+
+def run_live(args: argparse.Namespace) -> int:
+    """Run the ``live`` sub-command; returns the exit status."""
+    from estimator.profile import default_demo_profile, load_profile
+
+    profile = load_profile(args.profile) if args.profile else default_demo_profile()
+    if args.duration is not None and not args.duration > 0:
+        raise ValueError(f"--duration = {args.duration}: must be > 0 seconds")
+    print(CAUTION)
+    port = args.port if args.port is not None else profile.acquisition.port
+    if port:
+        return _acquire(args, profile, port, cell=None)
+    cell = _simulated_cell(args, profile)
+    with cell:
+        print(f"built-in simulated cell (invented data) on {cell.port_name}", flush=True)
+        return _acquire(args, profile, cell.port_name, cell=cell)
+
+
+def _simulated_cell(args: argparse.Namespace, profile: Any) -> Any:
+    from daq.programme import demo_programme, parse_programme
+    from daq.simulator import PtyCell
+    from ui.wiring import simulated_cell_for
+
+    if not args.sim_speed > 0:
+        raise ValueError(f"--sim-speed = {args.sim_speed}: must be > 0")
+    programme = parse_programme(args.sim_programme) if args.sim_programme else demo_programme()
+    cell = simulated_cell_for(profile, seed=args.sim_seed)
+    run = cell.generate(programme)
+
+    def regenerate(rep: int) -> Any:
+        return cell.generate(programme, seed=args.sim_seed + rep)
+
+    return PtyCell(
+        run,
+        speed=args.sim_speed,
+        loop=not args.sim_once,
+        regenerate=regenerate,
+        framing=profile.acquisition.framing,
+        faults=parse_faults(args.sim_faults),
+    )
+
+
+def _acquire(args: argparse.Namespace, profile: Any, port: str, cell: Any) -> int:
+    from ui.recording import open_recording
+    from ui.session import LiveSession
+    from ui.status import StatusLine, format_status
+
+    recording = None
+    if args.record:
+        recording = open_recording(
+            Path(args.record),
+            profile,
+            note=args.note,
+            tags=args.tag,
+            acquisition={"port": port, "simulated": cell is not None},
+        )
+        print(f"recording to {recording.folder}", flush=True)
+    session = LiveSession(profile, port, recording=recording)
+    status = StatusLine(enabled=not args.quiet)
+    last_est = None
+    reason = "stopped by the operator"
+    outcome = "complete"
+    t_start = time.monotonic()
+    try:
+        with _Stop() as stop:
+            session.start()
+            while True:
+                was_connected = session.connected_once
+                got = session.poll()
+                if session.connected_once and not was_connected:
+                    print(f"connected to {port}", flush=True)
+                    if cell is not None:
+                        cell.start()
+                for ev in got.events:
+                    if ev.kind != "connected":
+                        status.finish()
+                        print(f"{ev.utc} {ev.kind}: {ev.message}", flush=True)
+                if got.estimates.size:
+                    last_est = got.estimates
+                if last_est is not None and status.due():
+                    st = session.reader.stats()
+                    status.show(
+                        format_status(
+                            last_est,
+                            state=session.reader.state,
+                            rate_hz=st.rate_hz,
+                            lost=st.decoder.samples_lost,
+                            rejected=st.decoder.rejected,
+                            recording=recording.run_id if recording else "",
+                        )
+                    )
+                if stop.requested:
+                    break
+                if args.duration is not None and time.monotonic() - t_start >= args.duration:
+                    reason = f"--duration {args.duration:g} s reached"
+                    break
+                if cell is not None and cell.error is not None:
+                    raise OSError(f"simulated cell stopped: {cell.error}")
+                if (
+                    cell is not None
+                    and cell.finished
+                    and session.reader.stats().seconds_since_data > 0.5
+                ):
+                    reason = "simulated programme finished"
+                    break
+                if not got.samples.size:
+                    time.sleep(0.01)
+    except KeyboardInterrupt:
+        pass
+    except BaseException:
+        outcome = "failed"
+        status.finish()
+        session.close("failed", reason="error")
+        raise
+    status.finish()
+    summary = session.close(outcome, reason=reason)
+    print(
+        f"{reason}: {summary['samples']} samples, lost {summary['samples_lost']}, "
+        f"bad frames {summary['rejected_frames']}, reconnects {summary['reconnects']}"
+    )
+    if recording is not None:
+        print(f"run {recording.run_id} closed in {recording.folder}")
+    return 0
