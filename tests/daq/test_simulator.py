@@ -1,19 +1,31 @@
-"""SimulatedCell: the plant integration against closed forms and SciPy, noise, quantisation."""
+"""SimulatedCell (plant against closed forms and SciPy, noise, quantisation) and PtyCell."""
 
 from __future__ import annotations
 
 import math
+import os
+import time
 from pathlib import Path
 
 import numpy as np
 import pytest
 import scipy.signal
 
-from daq.errors import FramingError
+from daq.binary import BinaryDecoder
+from daq.errors import FramingError, SourceError
 from daq.lines import LineDecoder
 from daq.programme import HalfSine, Hold, LoadProgramme, Ramp, Sine, Table
+from daq.samples import concat_blocks, device_status
 from daq.scaling import Scaling
-from daq.simulator import TRUTH_HEADER, SimulatedCell, lines, write_truth_csv
+from daq.serial_source import SerialSource
+from daq.simulator import (
+    TRUTH_HEADER,
+    Fault,
+    PtyCell,
+    SimulatedCell,
+    lines,
+    write_truth_csv,
+)
 
 # An invented cell: fn = sqrt(k/m)/2π ≈ 159 Hz, lightly damped.
 M_KG, K_N_PER_M, ZETA = 0.4, 4.0e5, 0.12
@@ -205,3 +217,130 @@ def test_scaling_validation() -> None:
         Scaling(1.0, math.inf)
     with pytest.raises(FramingError, match="adc_bits"):
         Scaling(1.0, 1.0, adc_bits=64)
+
+
+# ------------------------------------------------------------------ PtyCell
+def _read_all(src: SerialSource, n: int, limit_s: float = 5.0) -> np.ndarray:
+    blocks, got = [], 0
+    deadline = time.monotonic() + limit_s
+    while got < n and time.monotonic() < deadline:
+        b = src.read_block(0.02)
+        blocks.append(b)
+        got += b.size
+    return concat_blocks(blocks)
+
+
+@pytest.mark.parametrize("adc_bits", [24, 32])
+def test_pty_cell_binary_frames_decode_back_to_the_run(adc_bits: int) -> None:
+    # A coarse transducer so that 100 N overdrives the 24-bit ADC: the cell clips and the
+    # frames must say so (status bit 0, ADC over-range).
+    coarse = Scaling(volts_per_count=20.0 / 2**24, metres_per_volt=1e-6)
+    cell = SimulatedCell(M_KG, K_N_PER_M, ZETA, 5e-8, coarse, FS_HZ, seed=2)
+    run = cell.generate(LoadProgramme((Hold(0.1, 0.0), Hold(0.1, 100.0))))
+    assert run.n_clipped > 0
+    with PtyCell(run, speed=10.0, framing=f"binary-{adc_bits}") as pty:
+        decoder = BinaryDecoder(coarse, FS_HZ, adc_bits=adc_bits)
+        with SerialSource(pty.port_name, 921600, decoder) as src:
+            pty.start()
+            out = _read_all(src, len(run))
+        assert pty.wait(5.0) and pty.error is None
+        # 13 or 14 bytes per frame (interfaces: binary frame version 1).
+        assert pty.bytes_written == len(run) * (13 if adc_bits == 24 else 14)
+    np.testing.assert_array_equal(out["seq"], run.seq)
+    np.testing.assert_array_equal(out["counts"], run.counts)
+    np.testing.assert_array_equal(out["device_time_s"], run.seq / FS_HZ)
+    lo, hi = coarse.count_range
+    at_edge = (run.counts <= lo) | (run.counts >= hi)
+    assert at_edge.sum() == run.n_clipped
+    np.testing.assert_array_equal(run.over_range, at_edge)
+    np.testing.assert_array_equal(device_status(out), at_edge.astype(np.uint8))
+    assert src.decoder.stats().rejected == 0
+
+
+def test_pty_cell_port_is_a_stable_link_that_survives_a_disconnect() -> None:
+    run = make_cell(5e-8).generate(LoadProgramme((Hold(1.0, 10.0),)))  # 2000 samples
+    pty = PtyCell(run, speed=4.0, faults=[Fault("disconnect", 0.4, duration_s=0.05)])
+    folder = os.path.dirname(pty.port_name)
+    try:
+        assert os.path.islink(pty.port_name)
+        first_device = pty.device_name
+        assert os.path.realpath(pty.port_name) == first_device
+        assert first_device.startswith("/dev/")
+        src = SerialSource(pty.port_name, 921600, LineDecoder(SCALING)).open()
+        pty.start()
+        blocks = []
+        with pytest.raises(SourceError, match="cannot read"):
+            deadline = time.monotonic() + 5.0
+            while time.monotonic() < deadline:
+                blocks.append(src.read_block(0.02))
+        src.close()
+        before = concat_blocks(blocks)
+        assert before["seq"][-1] == 799  # the port closed just before sample 800 (0.4 s)
+        # Reopen the same name: it now leads to the new pseudo-terminal.
+        deadline = time.monotonic() + 5.0
+        while True:
+            try:
+                src.open()
+                break
+            except SourceError:
+                assert time.monotonic() < deadline, "the port did not come back"
+                time.sleep(0.01)
+        with src:
+            after = _read_all(src, 1)
+            while not pty.finished or after["seq"][-1] < len(run) - 1:
+                after = concat_blocks([after, src.read_block(0.02)])
+                assert time.monotonic() < deadline + 5.0
+        assert os.path.realpath(pty.port_name) == pty.device_name
+    finally:
+        pty.stop()
+    np.testing.assert_array_equal(np.concatenate([before["seq"], after["seq"]]), pty.sent_intact)
+    (kind, at_seq, detail), *rest = pty.fault_log
+    assert (kind, at_seq, rest) == ("disconnect", 800, [])
+    assert "a client reopened it" in detail
+    assert after["seq"][0] > 800 and f"seq 800..{after['seq'][0] - 1} never sent" in detail
+    assert not os.path.exists(folder)  # stop() removes the private folder
+
+
+def test_pty_cell_without_a_client_keeps_sample_boundaries_when_dropping() -> None:
+    run = make_cell().generate(LoadProgramme((Hold(10.0, 10.0),)))  # 20 000 lines
+    with PtyCell(run, speed=1000.0, stall_timeout_s=0.1) as pty:
+        pty.start()
+        assert pty.wait(10.0)
+        # Read what the pty kept: whole lines only, every one of them intact.
+        fd = os.open(pty.device_name, os.O_RDONLY | os.O_NONBLOCK | os.O_NOCTTY)
+        chunks = []
+        try:
+            while True:
+                try:
+                    chunk = os.read(fd, 1 << 16)
+                except BlockingIOError:
+                    break
+                if not chunk:
+                    break
+                chunks.append(chunk)
+        finally:
+            os.close(fd)
+    data = b"".join(chunks)
+    assert pty.bytes_dropped > 0 and pty.bytes_written == len(data)
+    assert pty.bytes_written + pty.bytes_dropped == len(lines(run))
+    dec = LineDecoder(SCALING)
+    out = dec.feed(data)
+    assert dec.lines_malformed == 0 and dec.bytes_buffered == 0  # cut on line ends only
+    np.testing.assert_array_equal(out["counts"], run.counts[out["seq"]])
+    np.testing.assert_array_equal(out["seq"], pty.sent_intact)
+
+
+def test_pty_cell_framing_and_settings_validation() -> None:
+    run = make_cell().generate(LoadProgramme((Hold(0.05, 1.0),)))
+    with pytest.raises(FramingError, match="framing="):
+        PtyCell(run, framing="ascii")
+    with pytest.raises(FramingError, match="reattach_timeout_s"):
+        PtyCell(run, reattach_timeout_s=0.0)
+    with pytest.raises(FramingError, match="fault_seed"):
+        PtyCell(run, fault_seed=-1)
+    pty = PtyCell(run, framing="binary-32")
+    folder = os.path.dirname(pty.port_name)
+    assert os.path.isdir(folder)
+    pty.stop()
+    pty.stop()  # idempotent
+    assert not os.path.exists(folder)
