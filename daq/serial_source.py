@@ -444,11 +444,11 @@ class SerialReader:
     # ---------------------------------------------------------------- control
     def start(self) -> SerialReader:
         """Start the reading thread (once); returns self."""
+        if self._stop_evt.is_set():
+            raise SourceError(
+                f"SerialReader on {self.settings.port!r}: already stopped; make a new one"
+            )
         if self._thread is not None:
-            if self._stop_evt.is_set():
-                raise SourceError(
-                    f"SerialReader on {self.settings.port!r}: already stopped; make a new one"
-                )
             return self
         self._state = "connecting"
         self._last_data_t = self._clock()
