@@ -8,6 +8,14 @@ Source: C. F. Van Loan, "Computing integrals involving the matrix exponential",
 IEEE Trans. Automatic Control AC-23(3), 395-404, 1978. The computation is done by
 filterpy's ``van_loan_discretization``; this module adds validation, the noise
 intensity as an explicit argument, and symmetrisation of the result.
+
+Long steps (a gap in the data of seconds on a cell that rings at hundreds of hertz):
+Van Loan's block matrix contains ``−A``, whose exponential grows as ``exp(ζ·ωn·dt)``;
+it overflows, and loses all precision well before that. Such a step is split into
+``2^k`` equal sub-steps whose growth factor stays below e, each discretised exactly,
+and recombined by exact doubling: ``Φ(2h) = Φ(h)²`` and
+``Qd(2h) = Φ(h)·Qd(h)·Φ(h)ᵀ + Qd(h)`` (the noise of the first half propagated through
+the second, plus the second's own; the halves are independent).
 """
 
 from __future__ import annotations
@@ -47,6 +55,11 @@ def van_loan(
         raise ParameterError(
             f"shapes A {A.shape} and L {L.shape} do not match: need (n, n), (n, 1)"
         )
-    phi, Qd = van_loan_discretization(A, L * math.sqrt(qc), dt_s)
+    growth = float(np.max(np.abs(np.linalg.eigvals(A).real), initial=0.0)) * dt_s
+    k = math.ceil(math.log2(growth)) if growth > 1.0 else 0
+    phi, Qd = van_loan_discretization(A, L * math.sqrt(qc), dt_s / 2**k)
+    for _ in range(k):
+        Qd = phi @ Qd @ phi.T + Qd
+        phi = phi @ phi
     Qd = 0.5 * (Qd + Qd.T)
     return np.ascontiguousarray(phi), Qd

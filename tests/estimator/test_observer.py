@@ -114,6 +114,33 @@ def test_van_loan_cell_matches_quadrature() -> None:
     assert np.max(np.abs(Qd - Qi) / scale) < 1e-10  # quadrature tolerance, well above eps
 
 
+def test_van_loan_long_gap_stays_finite_and_exact() -> None:
+    # A 4 s gap on the cell (ζ·ωn·dt ≈ 480): the block matrix would overflow. Checks:
+    # Φ against scipy.linalg.expm; the force state is a random walk, so its variance
+    # after dt is q·dt exactly (closed form); and the whole Qd against adaptive
+    # quadrature of its defining integral (scipy.integrate.quad_vec).
+    A, L = augmented_model(CELL)
+    q, dt = 3e-3, 4.0
+    with np.errstate(all="raise"):
+        phi, Qd = van_loan(A, L, q, dt)
+    assert np.all(np.isfinite(Qd))
+    np.testing.assert_allclose(phi, scipy.linalg.expm(A * dt), rtol=1e-9, atol=1e-14)
+    assert Qd[2, 2] == pytest.approx(q * dt, rel=1e-12)
+
+    def integrand(tau: float) -> np.ndarray:
+        v = scipy.linalg.expm(A * tau) @ L
+        return q * (v @ v.T)
+
+    # The cell states forget their start within ~0.05 s (1/(ζ·ωn) ≈ 8 ms), so the
+    # quadrature over [0, dt] is split where the integrand changes character.
+    Qi = sum(
+        scipy.integrate.quad_vec(integrand, a, b, epsabs=0.0, epsrel=1e-10)[0]
+        for a, b in ((0.0, 0.05), (0.05, 0.5), (0.5, dt))
+    )
+    scale = np.sqrt(np.outer(np.diag(Qi), np.diag(Qi)))
+    assert np.max(np.abs(Qd - Qi) / scale) < 1e-8  # quadrature tolerance
+
+
 def test_van_loan_refuses_bad_step() -> None:
     with pytest.raises(ParameterError, match="dt_s"):
         van_loan(np.zeros((2, 2)), np.ones(2), 1.0, 0.0)
