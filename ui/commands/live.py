@@ -9,6 +9,7 @@ replay uses, so a recorded run replays to bit-identical estimates.
 from __future__ import annotations
 
 import argparse
+import contextlib
 import signal
 import time
 from pathlib import Path
@@ -103,25 +104,31 @@ def parse_faults(spec: str) -> list[Any]:
 
 
 class _Stop:
-    """Turns SIGTERM into a clean stop (Ctrl-C arrives as KeyboardInterrupt)."""
+    """Turns Ctrl-C and SIGTERM into a clean stop between two polls.
+
+    A signal only sets a flag, so a block already drained from the reader is always
+    estimated and recorded before the run is closed. A second Ctrl-C interrupts at once.
+    """
 
     def __init__(self) -> None:
         self.requested = False
-        self._old: Any = None
+        self._old: dict[int, Any] = {}
 
     def __enter__(self) -> _Stop:
-        try:
-            self._old = signal.signal(signal.SIGTERM, self._handle)
-        except ValueError:  # not the main thread (tests); Ctrl-C still works
-            self._old = None
+        for sig in (signal.SIGINT, signal.SIGTERM):
+            # Outside the main thread (tests) signals cannot be caught: keep the defaults.
+            with contextlib.suppress(ValueError):
+                self._old[sig] = signal.signal(sig, self._handle)
         return self
 
     def _handle(self, signum: int, frame: Any) -> None:
+        if self.requested and signum == signal.SIGINT:
+            raise KeyboardInterrupt
         self.requested = True
 
     def __exit__(self, *exc: object) -> None:
-        if self._old is not None:
-            signal.signal(signal.SIGTERM, self._old)
+        for sig, old in self._old.items():
+            signal.signal(sig, old)
 
 
 def run_live(args: argparse.Namespace) -> int:
@@ -186,8 +193,8 @@ def _acquire(args: argparse.Namespace, profile: Any, port: str, cell: Any) -> in
     reason = "stopped by the operator"
     outcome = "complete"
     t_start = time.monotonic()
-    try:
-        with _Stop() as stop:
+    with _Stop() as stop:
+        try:
             session.start()
             while True:
                 was_connected = session.connected_once
@@ -230,15 +237,14 @@ def _acquire(args: argparse.Namespace, profile: Any, port: str, cell: Any) -> in
                     break
                 if not got.samples.size:
                     time.sleep(0.01)
-    except KeyboardInterrupt:
-        pass
-    except BaseException:
-        outcome = "failed"
+        except KeyboardInterrupt:  # a second Ctrl-C: the block being handled is lost
+            outcome, reason = "aborted", "interrupted twice"
+        except BaseException:
+            status.finish()
+            session.close("failed", reason="error")
+            raise
         status.finish()
-        session.close("failed", reason="error")
-        raise
-    status.finish()
-    summary = session.close(outcome, reason=reason)
+        summary = session.close(outcome, reason=reason)
     print(
         f"{reason}: {summary['samples']} samples, lost {summary['samples_lost']}, "
         f"bad frames {summary['rejected_frames']}, reconnects {summary['reconnects']}"
