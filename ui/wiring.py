@@ -6,7 +6,7 @@ become acquisition objects.
 
 from __future__ import annotations
 
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 if TYPE_CHECKING:
     from daq.decoding import Decoder
@@ -17,6 +17,7 @@ if TYPE_CHECKING:
 
 __all__ = [
     "decoder_for",
+    "parse_faults",
     "port_settings_for",
     "profile_from_text",
     "scaling_for",
@@ -89,3 +90,31 @@ def profile_from_text(text: str, origin: str) -> CellProfile:
     except tomllib.TOMLDecodeError as exc:
         raise ProfileError(f"{origin}: not valid TOML: {exc}") from exc
     return profile_from_mapping(data, origin=origin)
+
+
+def parse_faults(spec: str, *, option: str = "faults") -> list[Any]:
+    """Parse ``KIND@T[:DURATION][*COUNT],...`` into `daq.simulator.Fault` values."""
+    from daq.simulator import Fault
+
+    faults = []
+    for item in filter(None, (s.strip() for s in spec.split(","))):
+        kind, at, rest = item.partition("@")
+        if not at:
+            raise ValueError(f"{option}: {item!r} lacks '@T' (e.g. drop@1.5*20)")
+        count = 1
+        if "*" in rest:
+            rest, _, count_text = rest.partition("*")
+            try:
+                count = int(count_text)
+            except ValueError:
+                raise ValueError(
+                    f"{option}: {item!r}: count {count_text!r} is not whole"
+                ) from None
+        time_text, _, duration_text = rest.partition(":")
+        try:
+            at_s = float(time_text)
+            duration_s = float(duration_text) if duration_text else 0.0
+        except ValueError:
+            raise ValueError(f"{option}: {item!r}: time or duration is not a number") from None
+        faults.append(Fault(kind.strip(), at_s, duration_s=duration_s, count=count))
+    return faults

@@ -75,34 +75,6 @@ def register(subparsers: Any) -> None:
     p.set_defaults(run=run_live)
 
 
-def parse_faults(spec: str) -> list[Any]:
-    """Parse ``KIND@T[:DURATION][*COUNT],...`` into `daq.simulator.Fault` values."""
-    from daq.simulator import Fault
-
-    faults = []
-    for item in filter(None, (s.strip() for s in spec.split(","))):
-        kind, at, rest = item.partition("@")
-        if not at:
-            raise ValueError(f"--sim-faults: {item!r} lacks '@T' (e.g. drop@1.5*20)")
-        count = 1
-        if "*" in rest:
-            rest, _, count_text = rest.partition("*")
-            try:
-                count = int(count_text)
-            except ValueError:
-                raise ValueError(
-                    f"--sim-faults: {item!r}: count {count_text!r} is not whole"
-                ) from None
-        time_text, _, duration_text = rest.partition(":")
-        try:
-            at_s = float(time_text)
-            duration_s = float(duration_text) if duration_text else 0.0
-        except ValueError:
-            raise ValueError(f"--sim-faults: {item!r}: time or duration is not a number") from None
-        faults.append(Fault(kind.strip(), at_s, duration_s=duration_s, count=count))
-    return faults
-
-
 class _Stop:
     """Turns Ctrl-C and SIGTERM into a clean stop between two polls.
 
@@ -151,7 +123,7 @@ def run_live(args: argparse.Namespace) -> int:
 def _simulated_cell(args: argparse.Namespace, profile: Any) -> Any:
     from daq.programme import demo_programme, parse_programme
     from daq.simulator import PtyCell
-    from ui.wiring import simulated_cell_for
+    from ui.wiring import parse_faults, simulated_cell_for
 
     if not args.sim_speed > 0:
         raise ValueError(f"--sim-speed = {args.sim_speed}: must be > 0")
@@ -168,7 +140,7 @@ def _simulated_cell(args: argparse.Namespace, profile: Any) -> Any:
         loop=not args.sim_once,
         regenerate=regenerate,
         framing=profile.acquisition.framing,
-        faults=parse_faults(args.sim_faults),
+        faults=parse_faults(args.sim_faults, option="--sim-faults"),
     )
 
 

@@ -3,8 +3,8 @@
 The cell's mechanics and transducer come from a profile (the built-in demo profile by
 default); the load programme from ``--programme`` (compact text spec), ``--programme-csv``
 or the built-in demo scenario. Any serial client can open the printed port and read the
-ASCII line stream (docs/ascii-line-format.md). NumPy, SciPy and the profile reader are
-imported only inside the run function.
+ASCII line stream (docs/ascii-line-format.md) or binary frames (docs/binary-frame.md).
+NumPy, SciPy and the profile reader are imported only inside the run function.
 """
 
 from __future__ import annotations
@@ -69,6 +69,20 @@ def register(subparsers: argparse._SubParsersAction) -> None:
         help="time-scale factor, 2 plays twice as fast (default 1)",
     )
     parser.add_argument(
+        "--framing",
+        choices=("ascii-lines", "binary-24", "binary-32"),
+        help="how samples are framed on the line (default: the profile's)",
+    )
+    parser.add_argument(
+        "--faults",
+        metavar="SPEC",
+        default="",
+        help=(
+            "faults to inject, comma-separated KIND@T[:DURATION][*COUNT], T in simulated s; "
+            "kinds garbage, drop, corrupt, disconnect, stall; e.g. 'drop@1*50,stall@2:0.3'"
+        ),
+    )
+    parser.add_argument(
         "--start-delay",
         type=float,
         default=2.0,
@@ -87,6 +101,7 @@ def run_simulate(args: argparse.Namespace) -> int:
     from daq.scaling import Scaling
     from daq.simulator import PtyCell, SimulatedCell, write_truth_csv
     from estimator.profile import default_demo_profile, load_profile
+    from ui.wiring import parse_faults
 
     profile = load_profile(args.profile) if args.profile else default_demo_profile()
     if args.programme is not None:
@@ -124,14 +139,23 @@ def run_simulate(args: argparse.Namespace) -> int:
     def regenerate(repetition: int) -> SimulatedRun:
         return cell.generate(programme, seed=args.seed + repetition)
 
-    with PtyCell(run, speed=args.speed, loop=args.loop, regenerate=regenerate) as pty:
+    framing = args.framing or profile.acquisition.framing
+    faults = parse_faults(args.faults, option="--faults")
+    with PtyCell(
+        run,
+        speed=args.speed,
+        loop=args.loop,
+        regenerate=regenerate,
+        framing=framing,
+        faults=faults,
+    ) as pty:
         print(
             f"simulated cell on {pty.port_name} — connect any serial client; Ctrl-C stops",
             flush=True,
         )
         print(
-            f"  {len(run)} samples at {rate_hz:g} Hz, programme {programme.duration_s:g} s"
-            + (", looping" if args.loop else ""),
+            f"  {len(run)} samples at {rate_hz:g} Hz, {framing}, "
+            f"programme {programme.duration_s:g} s" + (", looping" if args.loop else ""),
             flush=True,
         )
         try:
