@@ -153,6 +153,13 @@ def _fsync_folder(folder: Path) -> None:
         os.close(fd)
 
 
+def _umask() -> int:
+    """The process's file-creation mask (read by setting it and restoring it)."""
+    mask = os.umask(0o022)
+    os.umask(mask)
+    return mask
+
+
 def _write_atomic_json(path: Path, value: object) -> None:
     """Write ``value`` as JSON to ``path``: temp file, fsync, rename, fsync of the folder."""
     text = json.dumps(value, indent=2, ensure_ascii=False, allow_nan=False) + "\n"
@@ -162,6 +169,8 @@ def _write_atomic_json(path: Path, value: object) -> None:
             handle.write(text)
             handle.flush()
             os.fsync(handle.fileno())
+        # mkstemp makes the file private; a run is as readable as its data files.
+        os.chmod(tmp_name, 0o666 & ~_umask())
         os.replace(tmp_name, path)
     except BaseException:
         with contextlib.suppress(FileNotFoundError):

@@ -1,14 +1,16 @@
 """Benchmark: sustained live rate through a pseudo-terminal, and a memory soak.
 
-The built-in simulated cell (invented data) streams binary frames to a pseudo-terminal;
-a `ui.session.LiveSession` reads it through pyserial, decodes, estimates force and
+The simulated cell (invented data) runs as its own process (``forcelens simulate``),
+like a real device, and streams binary frames to a pseudo-terminal; in this process a
+`ui.session.LiveSession` reads it through pyserial, decodes, estimates force and
 records the run, exactly as ``forcelens live --record`` does. Two passes on the same
 stream, in this run:
 
 * baseline: reading and decoding only (no estimation, no recording);
 * full: decode + estimate + record.
 
-For each pass it prints the samples received, lost and the consumer's CPU time per
+For each pass it prints the samples received, the backlog still waiting in the reader at
+the end (0 when the consumer keeps up), the samples lost, and this process's CPU time per
 second of data; the ratio full/baseline is the cost of estimation and recording, and
 1 / (CPU fraction) the headroom over the sample rate. Not a test; run it by hand:
 
@@ -23,18 +25,17 @@ from __future__ import annotations
 
 import argparse
 import dataclasses
+import re
 import resource
+import subprocess
 import sys
 import tempfile
 import time
 from pathlib import Path
 
-from daq.programme import parse_programme
-from daq.simulator import PtyCell
-from estimator.profile import default_demo_profile
+from estimator.profile import default_demo_profile, save_profile
 from ui.recording import open_recording
 from ui.session import LiveSession
-from ui.wiring import simulated_cell_for
 
 # Invented load programme, 10 s, repeated with fresh noise.
 PROGRAMME = "hold 1 0; hold 2 30; hold 2 90; ramp 1 50; hold 2 50; hold 2 0"
@@ -50,57 +51,64 @@ def rss_mb() -> float:
 
 
 def one_pass(rate_hz: float, seconds: float, *, full: bool, soak: bool, framing: str) -> dict:
+    """Stream for `seconds` from a simulator process; consume with or without estimation."""
     base = default_demo_profile()
     acq = dataclasses.replace(base.acquisition, sample_rate_hz=rate_hz, framing=framing)
     profile = base.with_updates(acquisition=acq)
-    cell_model = simulated_cell_for(profile, seed=1)
-    programme = parse_programme(PROGRAMME)
-    first = cell_model.generate(programme)
-    with (
-        tempfile.TemporaryDirectory() as tmp,
-        PtyCell(
-            first,
-            loop=True,
-            regenerate=lambda rep: cell_model.generate(programme, seed=1 + rep),
-            framing=framing,
-        ) as cell,
-    ):
-        recording = open_recording(Path(tmp), profile, note="benchmark") if full else None
-        session = LiveSession(profile, cell.port_name, recording=recording)
-        session.start()
-        while not session.connected_once:
-            session.poll()
-            time.sleep(0.01)
-        cell.start()
-        cpu0 = time.process_time()
-        t0 = time.monotonic()
-        received = 0
-        next_report = 30.0
-        rss = [(0.0, rss_mb())]
-        while (elapsed := time.monotonic() - t0) < seconds:
-            if full:
-                got = session.poll()
-                n = got.samples.size
-            else:
-                got_samples = session.reader.drain()
-                session.reader.drain_events()
-                n = got_samples.size
-            received += n
-            if soak and elapsed >= next_report:
-                rss.append((elapsed, rss_mb()))
-                print(f"  {elapsed:6.0f} s  RSS {rss[-1][1]:7.1f} MB  received {received}")
-                next_report += 30.0
-            if n == 0:
-                time.sleep(0.005)
-        cpu = time.process_time() - cpu0
-        wall = time.monotonic() - t0
-        cell.stop()
-        summary = session.close("complete", reason="benchmark")
-        sent = cell.lines_written
+    with tempfile.TemporaryDirectory() as tmp:
+        profile_path = Path(tmp) / "cell.toml"
+        save_profile(profile, profile_path)
+        # The device: `forcelens simulate` in its own process, like real hardware.
+        sim = subprocess.Popen(
+            [sys.executable, "-m", "ui.cli", "simulate", "--profile", str(profile_path),
+             "--programme", PROGRAMME, "--loop", "--start-delay", "1.5"],
+            stdout=subprocess.PIPE, text=True,
+        )  # fmt: skip
+        try:
+            port = re.search(r"on (\S+)", sim.stdout.readline()).group(1)
+            runs = Path(tmp) / "runs"
+            recording = open_recording(runs, profile, note="benchmark") if full else None
+            session = LiveSession(profile, port, recording=recording)
+            session.start()
+            while not session.connected_once:
+                session.poll()
+                time.sleep(0.01)
+            while session.reader.stats().bytes_read == 0:  # the simulator's start delay
+                session.poll()
+                time.sleep(0.001)
+            cpu0 = time.process_time()
+            t0 = time.monotonic()
+            received = 0
+            next_report = 30.0
+            rss = [(0.0, rss_mb())]
+            while (elapsed := time.monotonic() - t0) < seconds:
+                if full:
+                    n = session.poll().samples.size
+                else:
+                    n = session.reader.drain().size
+                    session.reader.drain_events()
+                received += n
+                if soak and elapsed >= next_report:
+                    rss.append((elapsed, rss_mb()))
+                    print(f"  {elapsed:6.0f} s  RSS {rss[-1][1]:7.1f} MB  received {received}")
+                    next_report += 30.0
+                if n == 0:
+                    time.sleep(0.005)
+            cpu = time.process_time() - cpu0
+            wall = time.monotonic() - t0
+            backlog = session.reader.stats().samples_unread
+            sim.terminate()
+            sim.wait(10)
+            summary = session.close("complete", reason="benchmark")
+        finally:
+            if sim.poll() is None:
+                sim.kill()
+    span = summary["samples"] + summary["samples_lost"]
     return {
         "received": received,
-        "sent": sent,
+        "backlog": backlog,
         "lost": summary["samples_lost"],
+        "span": span,
         "cpu_per_data_s": cpu / wall,
         "rate": received / wall,
         "rss": rss,
@@ -132,7 +140,8 @@ def main(argv: list[str] | None = None) -> int:
         r = one_pass(rate, seconds, full=full, soak=False, framing=args.framing)
         results[name] = r
         print(
-            f"{name:28s} received {r['received']:>10d}  lost {r['lost']:>4d}  "
+            f"{name:28s} received {r['received']:>10d}  backlog {r['backlog']:>7d}  "
+            f"lost {r['lost']:>4d}  "
             f"{r['rate']:>9.0f} S/s  CPU {100 * r['cpu_per_data_s']:5.1f} % of a core  "
             f"(headroom {1 / max(r['cpu_per_data_s'], 1e-9):5.1f}x)"
         )
