@@ -188,6 +188,11 @@ class EstimationPipeline:
             self._recent_n -= self._recent.popleft().size
         self._last_seq = int(block["seq"][-1])
 
+    @property
+    def last_seq(self) -> int | None:
+        """Sequence number of the last sample processed (None before the first)."""
+        return self._last_seq
+
     # ------------------------------------------------------------------- zero
     def tare(self) -> Tare:
         """Zero on the mean raw displacement of the last `tare_window_s`; applies next sample.

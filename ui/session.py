@@ -14,7 +14,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from ui.pipeline import EstimationPipeline
+from ui.pipeline import EstimationPipeline, Tare
 
 if TYPE_CHECKING:
     from daq.serial_source import ReaderEvent
@@ -93,10 +93,16 @@ class LiveSession:
                 writer.maybe_flush()
         return PollResult(samples, estimates, events)
 
-    def mark(self, message: str) -> None:
-        """Log an operator mark in the run (no-op without recording)."""
+    def mark(self, message: str) -> int | None:
+        """Log an operator mark in the run at the last sample; returns its seq (None: no data)."""
+        seq = self.pipeline.last_seq
         if self.recording is not None:
-            self.recording.writer.event("mark", message)
+            self.recording.writer.event("mark", message or "mark", seq=seq)
+        return seq
+
+    def tare(self) -> Tare:
+        """Zero on the last samples (cell unloaded and at rest); logged in the run."""
+        return self.pipeline.tare()
 
     def summary(self) -> dict[str, Any]:
         """Counters for the closing record and the final report."""

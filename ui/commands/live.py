@@ -11,6 +11,7 @@ from __future__ import annotations
 import argparse
 import contextlib
 import signal
+import sys
 import time
 from pathlib import Path
 from typing import Any
@@ -34,7 +35,9 @@ def register(subparsers: Any) -> None:
             "Read samples from a serial port, estimate force with its uncertainty live and "
             "show a status line; optionally record the run. Without --port and without a "
             "port in the profile, the built-in simulated cell (invented data) is used. "
-            "Stop with Ctrl-C; the run is closed cleanly."
+            "On a terminal, type m [note] to mark the run, z to zero (with the cell "
+            "unloaded, after a confirmation) and q to stop. Ctrl-C also stops; the run is "
+            "closed cleanly."
         ),
     )
     p.add_argument("--profile", metavar="FILE", help="cell profile (default: the demo cell)")
@@ -145,6 +148,7 @@ def _simulated_cell(args: argparse.Namespace, profile: Any) -> Any:
 
 
 def _acquire(args: argparse.Namespace, profile: Any, port: str, cell: Any) -> int:
+    from ui.console import HELP, Console, start_line_reader
     from ui.recording import open_recording
     from ui.session import LiveSession
     from ui.status import StatusLine, format_status
@@ -161,6 +165,11 @@ def _acquire(args: argparse.Namespace, profile: Any, port: str, cell: Any) -> in
         print(f"recording to {recording.folder}", flush=True)
     session = LiveSession(profile, port, recording=recording)
     status = StatusLine(enabled=not args.quiet)
+    console = Console(session)
+    typed = None
+    if sys.stdin.isatty() and not args.quiet:
+        typed = start_line_reader()
+        print(HELP, flush=True)
     last_est = None
     reason = "stopped by the operator"
     outcome = "complete"
@@ -193,7 +202,12 @@ def _acquire(args: argparse.Namespace, profile: Any, port: str, cell: Any) -> in
                             recording=recording.run_id if recording else "",
                         )
                     )
-                if stop.requested:
+                while typed is not None and not typed.empty():
+                    reply = console.handle(typed.get_nowait())
+                    if reply:
+                        status.finish()
+                        print(reply, flush=True)
+                if stop.requested or console.stop_requested:
                     break
                 if args.duration is not None and time.monotonic() - t_start >= args.duration:
                     reason = f"--duration {args.duration:g} s reached"
