@@ -16,6 +16,7 @@ def format_status(
     *,
     state: str = "",
     rate_hz: float | None = None,
+    drift_ppm: float | None = None,
     lost: int = 0,
     rejected: int = 0,
     recording: str = "",
@@ -23,7 +24,8 @@ def format_status(
     """One status line from the latest estimates (ESTIMATE_DTYPE, (n,), n ≥ 1).
 
     Shows device time, force ± U with k = 2, displacement, the connection state, the
-    measured sample rate and the counts of lost and rejected samples.
+    measured sample rate with its drift from the nominal rate, and the counts of lost
+    and rejected samples.
     """
     e = est[-1]
     parts = [
@@ -34,7 +36,8 @@ def format_status(
     if state:
         parts.append(state)
     if rate_hz is not None:
-        parts.append(f"{rate_hz:8.1f} S/s")
+        drift = f" ({drift_ppm:+.0f} ppm)" if drift_ppm is not None else ""
+        parts.append(f"{rate_hz:8.1f} S/s{drift}")
     parts.append(f"lost {lost}")
     parts.append(f"bad {rejected}")
     if recording:

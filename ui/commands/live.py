@@ -197,6 +197,7 @@ def _acquire(args: argparse.Namespace, profile: Any, port: str, cell: Any) -> in
                             last_est,
                             state=session.reader.state,
                             rate_hz=st.rate_hz,
+                            drift_ppm=st.drift_ppm,
                             lost=st.decoder.samples_lost,
                             rejected=st.decoder.rejected,
                             recording=recording.run_id if recording else "",
