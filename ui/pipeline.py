@@ -11,8 +11,12 @@ replayed estimates are bit-identical to the ones computed live.
 Zero (tare): the transducer's zero offset and a constant force cannot be told apart,
 so the zero is set explicitly with the cell unloaded and at rest. `tare` takes the mean
 raw displacement of the most recent samples as the new offset; it applies from the
-next sample on, whose sequence number is stored with the offset in a ``tare`` event.
-At that sample the observer restarts from scratch on the re-zeroed displacement.
+next sample on, whose position in the stream is stored with the offset in a ``tare``
+event. At that sample the observer restarts from scratch on the re-zeroed displacement.
+
+Device restart: when the device clock goes back (the device rebooted and its counter
+started again), the observer restarts at that sample and an ``observer-restart`` event
+is logged. Replays find the same samples from the recorded times alone.
 """
 
 from __future__ import annotations
@@ -34,6 +38,7 @@ if TYPE_CHECKING:
 __all__ = [
     "ESTIMATE_STREAM",
     "ESTIMATE_UNITS",
+    "RESTART_EVENT",
     "TARE_EVENT",
     "EstimationPipeline",
     "Tare",
@@ -56,50 +61,63 @@ ESTIMATE_UNITS: dict[str, str] = {
 }
 #: Event kind recording a zero (tare).
 TARE_EVENT = "tare"
+#: Event kind recording that the device clock went back and the observer restarted.
+RESTART_EVENT = "observer-restart"
 
 _TARE_WINDOW_S = 0.1  # default averaging time of a tare, s
 
 
 @dataclass(frozen=True)
 class Tare:
-    """A zero offset applied from sample ``seq`` on (inclusive).
+    """A zero offset applied from one sample of the stream on (inclusive).
 
     Attributes:
-        seq: first sequence number read against the new zero.
+        index: position in the stream (0 = the run's first sample) of the first sample read
+            against the new zero; positions, unlike sequence numbers, survive a device
+            restart.
         offset_m: raw displacement subtracted from every later sample, m.
         n_samples: how many samples were averaged to find the offset.
+        seq: sequence number of that first sample as expected when the zero was set
+            (for people reading the event log).
     """
 
-    seq: int
+    index: int
     offset_m: float
     n_samples: int = 0
+    seq: int | None = None
 
     def event_fields(self) -> dict[str, Any]:
         """The fields stored in the run's ``tare`` event."""
-        return {"seq": self.seq, "offset_m": self.offset_m, "n_samples": self.n_samples}
+        return {
+            "index": self.index,
+            "seq": self.seq,
+            "offset_m": self.offset_m,
+            "n_samples": self.n_samples,
+        }
 
 
 def tares_from_events(events: Iterable[Mapping[str, Any]]) -> list[Tare]:
-    """The tares stored in a run's event log, in order of ``seq``.
+    """The tares stored in a run's event log, in stream order.
 
-    Raises ValueError naming the event if a ``tare`` event lacks ``seq`` or ``offset_m``.
+    Raises ValueError naming the event if a ``tare`` event lacks ``index`` or ``offset_m``.
     """
     tares = []
     for i, ev in enumerate(events):
         if ev.get("kind") != TARE_EVENT:
             continue
         try:
-            seq = int(ev["seq"])
+            index = int(ev["index"])
             offset = float(ev["offset_m"])
         except (KeyError, TypeError, ValueError) as exc:
             raise ValueError(
-                f"event {i} (tare) lacks a valid seq or offset_m ({exc}); "
+                f"event {i} (tare) lacks a valid index or offset_m ({exc}); "
                 "the run's event log is damaged"
             ) from None
-        if not math.isfinite(offset):
-            raise ValueError(f"event {i} (tare): offset_m = {offset!r} is not finite")
-        tares.append(Tare(seq, offset, int(ev.get("n_samples", 0))))
-    return sorted(tares, key=lambda t: t.seq)
+        if not math.isfinite(offset) or index < 0:
+            raise ValueError(f"event {i} (tare): index {index} or offset_m {offset!r} is invalid")
+        seq = ev.get("seq")
+        tares.append(Tare(index, offset, int(ev.get("n_samples", 0)), seq))
+    return sorted(tares, key=lambda t: t.index)
 
 
 class EstimationPipeline:
@@ -128,7 +146,7 @@ class EstimationPipeline:
         self.profile = profile
         self.observer = ForceObserver.from_profile(profile)
         self.recorder = recorder
-        self._pending = deque(sorted(tares, key=lambda t: t.seq))
+        self._pending = deque(sorted(tares, key=lambda t: t.index))
         self.offset_m = 0.0
         self.tares_applied: list[Tare] = []
         n_window = max(1, round(tare_window_s * profile.acquisition.sample_rate_hz))
@@ -136,7 +154,13 @@ class EstimationPipeline:
         self._recent_n = 0
         self._window = n_window
         self._last_seq: int | None = None
+        self._t_last: float | None = None
         self.samples_in = 0
+        #: Times the device clock went back and the observer started afresh.
+        self.restarts = 0
+        self._totals = dict.fromkeys(
+            ("samples", "rejected", "missing", "gaps", "reacquired", "steady"), 0
+        )
 
     # ---------------------------------------------------------------- feeding
     def process(self, block: np.ndarray) -> np.ndarray:
@@ -147,23 +171,30 @@ class EstimationPipeline:
         if block.size == 0:
             return np.zeros(0, ESTIMATE_DTYPE)
         parts = []
+        first = self.samples_in  # stream position of block[0]
+        # Cut the block where the device clock goes back (a device restart: the observer
+        # starts afresh) and where a zero applies.
+        t = block["device_time_s"]
+        restart_at = {int(i) for i in np.flatnonzero(t[1:] <= t[:-1]) + 1}
+        if self._t_last is not None and t[0] <= self._t_last:
+            restart_at.add(0)
+        tares: dict[int, Tare] = {}
+        while self._pending and self._pending[0].index < first + block.size:
+            tare = self._pending.popleft()
+            tares[max(0, tare.index - first)] = tare
         start = 0
-        seq = block["seq"]
-        while self._pending:
-            tare = self._pending[0]
-            # First sample at or after the tare's sequence number (seq increases within a
-            # stream; a device restart makes it drop, which a tare never straddles).
-            hits = np.flatnonzero(seq[start:] >= tare.seq)
-            if hits.size == 0:
-                break
-            cut = start + int(hits[0])
+        for cut in sorted(restart_at | tares.keys()):
             if cut > start:
                 parts.append(self._estimate(block[start:cut]))
-            self._apply(self._pending.popleft())
-            start = cut
+                start = cut
+            if cut in restart_at:
+                self._restart(block[cut])
+            if cut in tares:
+                self._apply(tares[cut])
         parts.append(self._estimate(block[start:]))
         est = parts[0] if len(parts) == 1 else concat_estimates(parts)
         self._remember(block)
+        self._t_last = float(t[-1])
         if self.recorder is not None:
             self.recorder.append(block)
             self.recorder.append(est, ESTIMATE_STREAM)
@@ -176,9 +207,33 @@ class EstimationPipeline:
             x = x - self.offset_m
         return self.observer.process(part["device_time_s"], x)
 
+    def _reset_observer(self) -> None:
+        c = self.observer.counters
+        for name in self._totals:
+            self._totals[name] += getattr(c, name)
+        self.observer.reset()
+
+    def observer_totals(self) -> dict[str, int]:
+        """Observer counters (samples, rejected, missing, gaps, reacquired, steady) summed
+        over every restart and zero since the pipeline was built."""
+        c = self.observer.counters
+        return {name: total + getattr(c, name) for name, total in self._totals.items()}
+
+    def _restart(self, sample: np.ndarray) -> None:
+        """The device clock went back (device restart): start the observer afresh."""
+        self._reset_observer()
+        self.restarts += 1
+        if self.recorder is not None:
+            self.recorder.event(
+                RESTART_EVENT,
+                f"device clock went back to {float(sample['device_time_s']):.6f} s "
+                f"(seq {int(sample['seq'])}): observer restarted",
+                seq=int(sample["seq"]),
+            )
+
     def _apply(self, tare: Tare) -> None:
         self.offset_m = tare.offset_m
-        self.observer.reset()
+        self._reset_observer()
         self.tares_applied.append(tare)
 
     def _remember(self, block: np.ndarray) -> None:
@@ -207,7 +262,12 @@ class EstimationPipeline:
         finite = recent[np.isfinite(recent)]
         if finite.size == 0:
             raise ValueError("cannot zero: the recent samples hold no valid displacement")
-        tare = Tare(self._last_seq + 1, float(np.mean(finite)), int(finite.size))
+        tare = Tare(
+            self.samples_in,
+            float(np.mean(finite)),
+            int(finite.size),
+            self._last_seq + 1,
+        )
         self._pending.append(tare)
         if self.recorder is not None:
             self.recorder.event(

@@ -116,7 +116,8 @@ class LiveSession:
             "seq_restarts": d.seq_restarts,
             "reconnects": st.reconnects,
             "bytes_read": st.bytes_read,
-            "observer_rejected": self.pipeline.observer.counters.rejected,
+            "observer_rejected": self.pipeline.observer_totals()["rejected"],
+            "observer_restarts": self.pipeline.restarts,
             "measured_rate_hz": _number_or_none(st.rate_hz),
             "drift_ppm": _number_or_none(st.drift_ppm),
         }

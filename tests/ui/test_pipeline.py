@@ -11,6 +11,7 @@ from daq.simulator import SimulatedCell
 from estimator.observer import ESTIMATE_DTYPE
 from estimator.profile import default_demo_profile
 from ui.pipeline import (
+    RESTART_EVENT,
     TARE_EVENT,
     EstimationPipeline,
     Tare,
@@ -94,7 +95,11 @@ def test_zero_removes_a_transducer_offset() -> None:
     tol = (
         4 * PROFILE.transducer.noise_m / np.sqrt(tare.n_samples) + PROFILE.transducer.resolution_m
     )
-    assert tare.seq == first and tare.offset_m == pytest.approx(OFFSET_M, abs=tol)
+    assert (
+        tare.index == first
+        and tare.seq == first
+        and tare.offset_m == pytest.approx(OFFSET_M, abs=tol)
+    )
     est = np.concatenate([pipe.process(samples[first:])])
     hold = (samples["device_time_s"][first:] > 0.6) & (samples["device_time_s"][first:] < 0.8)
     # Without the zero the force is off by k·offset (8 N); with it, within the 2 % band.
@@ -116,6 +121,25 @@ def test_wrong_block_dtype_is_refused() -> None:
 def test_damaged_tare_event_is_named() -> None:
     with pytest.raises(ValueError, match="event 1"):
         tares_from_events([{"kind": "mark"}, {"kind": TARE_EVENT, "seq": 4}])
-    assert tares_from_events([{"kind": TARE_EVENT, "seq": 9, "offset_m": 1e-6}]) == [
+    assert tares_from_events([{"kind": TARE_EVENT, "index": 9, "offset_m": 1e-6}]) == [
         Tare(9, 1e-6, 0)
     ]
+
+
+def test_device_restart_restarts_the_observer_and_replays_identically() -> None:
+    # The device reboots after 0.4 s: its counter and clock start again from 0. The
+    # observer must not stop on the non-increasing time; it starts afresh at that sample.
+    a, _ = _samples("hold 0.4 30", seed=1)
+    b, _ = _samples("hold 0.4 30", seed=2)
+    samples = np.concatenate([a, b])
+    recorder = _Recorder()
+    live = EstimationPipeline(PROFILE, recorder=recorder)
+    got = np.concatenate([live.process(samples[i : i + 333]) for i in range(0, samples.size, 333)])
+    assert live.restarts == 1
+    assert [e["kind"] for e in recorder.events] == [RESTART_EVENT]
+    assert recorder.events[0]["seq"] == 0
+    replay = estimate_samples(PROFILE, samples, block_size=1000)
+    assert replay.tobytes() == got.tobytes()
+    # After the restart the force is found again: the last 0.2 s within 2 % of 30 N.
+    assert np.mean(got["force_n"][-400:]) == pytest.approx(30.0, rel=0.02)
+    assert live.observer_totals()["samples"] == samples.size
