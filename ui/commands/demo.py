@@ -15,14 +15,10 @@ import time
 from pathlib import Path
 from typing import Any
 
+from ui.safety import CAUTION
+
 __all__ = ["register"]
 
-CAUTION = (
-    "Caution: force testing stores energy. Stay within the cell's rated capacity, keep "
-    "hands clear of pinch points, guard against parts that may fly, and follow your "
-    "laboratory's procedures and local codes; forcelens does not replace accredited "
-    "calibration."
-)
 
 _HOLD_S = 0.02  # live settling rule: the last 20 ms lie within the band
 _BAND = 0.02  # 2 % of the reading (common practice)

@@ -16,14 +16,11 @@ import time
 from pathlib import Path
 from typing import Any
 
+from ui.safety import CAUTION
+
 __all__ = ["register", "run_live"]
 
 DEFAULT_RUNS_ROOT = "recordings"
-CAUTION = (
-    "Caution: force testing stores energy. Stay within the cell's rated capacity, keep hands "
-    "clear of pinch points, guard against parts that may fly, and follow your laboratory's "
-    "procedures and local codes; forcelens does not replace accredited calibration."
-)
 
 
 def register(subparsers: Any) -> None:
