@@ -1,0 +1,61 @@
+"""Dashboard pieces without Qt: the trace ring buffer and the min/max envelopes."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from ui.dashboard.buffer import TRACE_FIELDS, TraceBuffer
+from ui.dashboard.envelope import band_envelope, bin_edges, line_envelope
+
+
+def _cols(t: np.ndarray) -> np.ndarray:
+    return np.vstack([t, 2 * t, 3 * t, 0.1 + 0 * t, 4 * t])
+
+
+def test_ring_buffer_keeps_the_latest_samples_in_order_across_wraps() -> None:
+    buf = TraceBuffer(1000)
+    t = np.arange(3500) * 1e-3
+    rng = np.random.default_rng(2)
+    i = 0
+    while i < t.size:  # random block sizes, some larger than the capacity
+        n = int(rng.integers(1, 1400))
+        buf.append(_cols(t[i : i + n]))
+        i += n
+    assert buf.total == 3500
+    last = buf.latest(1000)
+    np.testing.assert_array_equal(last, _cols(t[-1000:]))
+    np.testing.assert_array_equal(buf.latest(10), _cols(t[-10:]))
+    win = buf.window(0.2)  # [3.299, 3.499] s
+    np.testing.assert_array_equal(win[0], t[(t >= 3.499 - 0.2 - 1e-12)])
+    assert win.shape[0] == len(TRACE_FIELDS)
+    np.testing.assert_array_equal(buf.window(0.05, end_s=2.6)[0], t[(t >= 2.55) & (t <= 2.6)])
+
+
+def test_line_envelope_keeps_every_extreme() -> None:
+    # 100 k samples of noise with one single-sample spike: 500 columns must still show
+    # the spike and the overall extremes exactly (peak-preserving decimation).
+    rng = np.random.default_rng(4)
+    t = np.arange(100_000) * 1e-4
+    y = rng.normal(0.0, 1.0, t.size)
+    y[54_321] = 25.0
+    x, e = line_envelope(t, y, 0.0, t[-1], 500)
+    assert x.size <= 1000 and e.max() == 25.0 and e.min() == y.min()
+    # Column by column: the envelope's min and max equal those of the raw samples.
+    edges = bin_edges(t, 0.0, t[-1], 500)
+    for j in (0, 17, 271, 499):
+        seg = y[edges[j] : edges[j + 1]]
+        assert e[2 * j] == seg.min() and e[2 * j + 1] == seg.max()
+    # Sparse windows are drawn as they are.
+    _, ys = line_envelope(t[:300], y[:300], 0.0, t[299], 500)
+    np.testing.assert_array_equal(ys, y[:300])
+
+
+def test_band_envelope_bounds_the_band_and_skips_gaps() -> None:
+    t = np.concatenate([np.arange(0, 1, 1e-3), np.arange(2, 3, 1e-3)])  # a 1 s gap
+    f = np.sin(t * 7)
+    u = 0.05 + 0.01 * np.cos(t)
+    x, lo, hi = band_envelope(t, f - u, f + u, 0.0, 3.0, 300)
+    assert x.size < 300  # the empty columns of the gap are left out
+    assert np.all(lo <= hi)
+    assert lo.min() == pytest.approx((f - u).min()) and hi.max() == pytest.approx((f + u).max())
