@@ -249,32 +249,34 @@ class EstimationPipeline:
         return self._last_seq
 
     # ------------------------------------------------------------------- zero
-    def tare(self) -> Tare:
-        """Zero on the mean raw displacement of the last `tare_window_s`; applies next sample.
+    def tare(self, offset_m: float | None = None) -> Tare:
+        """Zero from the next sample on; returns the tare (logged as a ``tare`` event).
 
-        Only valid with the cell unloaded and at rest; the caller confirms that with the
-        operator. Logs a ``tare`` event when recording. Raises ValueError before any
-        sample has arrived or when the recent samples hold no finite value.
+        Without `offset_m`: the mean raw displacement of the last `tare_window_s`, which
+        is only valid with the cell unloaded and at rest (the caller confirms that with
+        the operator); raises ValueError before any sample has arrived or when the
+        recent samples hold no finite value. With `offset_m`: that offset, m (a zero
+        carried over from before a recording began).
         """
-        if self._last_seq is None:
-            raise ValueError("cannot zero yet: no sample has arrived; wait for data")
-        recent = np.concatenate(list(self._recent))[-self._window :]
-        finite = recent[np.isfinite(recent)]
-        if finite.size == 0:
-            raise ValueError("cannot zero: the recent samples hold no valid displacement")
-        tare = Tare(
-            self.samples_in,
-            float(np.mean(finite)),
-            int(finite.size),
-            self._last_seq + 1,
-        )
+        if offset_m is not None:
+            if not math.isfinite(offset_m):
+                raise ValueError(f"tare: offset_m = {offset_m!r} is not a finite number")
+            seq = None if self._last_seq is None else self._last_seq + 1
+            tare = Tare(self.samples_in, float(offset_m), 0, seq)
+            message = f"zero carried over: {tare.offset_m:.6e} m"
+        else:
+            if self._last_seq is None:
+                raise ValueError("cannot zero yet: no sample has arrived; wait for data")
+            recent = np.concatenate(list(self._recent))[-self._window :]
+            finite = recent[np.isfinite(recent)]
+            if finite.size == 0:
+                raise ValueError("cannot zero: the recent samples hold no valid displacement")
+            tare = Tare(self.samples_in, float(np.mean(finite)), int(finite.size),
+                        self._last_seq + 1)  # fmt: skip
+            message = f"zero set to {tare.offset_m:.6e} m from {tare.n_samples} samples"
         self._pending.append(tare)
         if self.recorder is not None:
-            self.recorder.event(
-                TARE_EVENT,
-                f"zero set to {tare.offset_m:.6e} m from {tare.n_samples} samples",
-                **tare.event_fields(),
-            )
+            self.recorder.event(TARE_EVENT, message, **tare.event_fields())
         return tare
 
 

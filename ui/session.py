@@ -9,7 +9,9 @@ force, logs the events in the run and keeps the run's flush interval.
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
 from dataclasses import dataclass
+from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -69,6 +71,7 @@ class LiveSession:
         )
         self.connected_once = False
         self._closed = False
+        self._baseline: dict[str, Any] = {}  # reader counters when the recording began
 
     def start(self) -> LiveSession:
         """Start the reading thread; returns self."""
@@ -104,18 +107,59 @@ class LiveSession:
         """Zero on the last samples (cell unloaded and at rest); logged in the run."""
         return self.pipeline.tare()
 
-    def summary(self) -> dict[str, Any]:
-        """Counters for the closing record and the final report."""
+    def start_recording(
+        self, root: Path, *, note: str = "", tags: Sequence[str] = ()
+    ) -> Recording:
+        """Begin recording under `root` from the next sample on; returns the recording.
+
+        The recording gets a fresh pipeline starting at its first sample, with the
+        current zero carried over as a ``tare`` event at position 0, so that a replay
+        of the run, which starts from that sample too, gives exactly the live numbers.
+        The live force restarts there (the observer re-converges within ~0.1 s).
+        """
+        from ui.recording import open_recording
+
+        if self.recording is not None:
+            raise ValueError(f"already recording run {self.recording.run_id}; stop it first")
+        recording = open_recording(root, self.profile, note=note, tags=tags,
+                                   acquisition={"port": self.port})  # fmt: skip
+        offset = self.pipeline.offset_m
+        self.pipeline = EstimationPipeline(self.profile, recorder=recording.writer)
+        if offset != 0.0:
+            self.pipeline.tare(offset_m=offset)
+        self.recording = recording
+        self._baseline = self._counters()
+        return recording
+
+    def stop_recording(self, status: str = "complete", reason: str = "") -> dict[str, Any]:
+        """Seal the current recording (estimation goes on); returns its summary."""
+        if self.recording is None:
+            raise ValueError("not recording")
+        summary = {"reason": reason, **self.summary()}
+        recording, self.recording = self.recording, None
+        self.pipeline.recorder = None
+        recording.close(status, summary)
+        return summary
+
+    def _counters(self) -> dict[str, Any]:
         st = self.reader.stats()
         d = st.decoder
         return {
-            "samples": self.pipeline.samples_in,
             "samples_lost": d.samples_lost,
             "rejected_frames": d.rejected,
             "bytes_discarded": d.bytes_discarded,
             "seq_restarts": d.seq_restarts,
             "reconnects": st.reconnects,
             "bytes_read": st.bytes_read,
+        }
+
+    def summary(self) -> dict[str, Any]:
+        """Counters since the recording began (or the session started), for closing records."""
+        st = self.reader.stats()
+        counts = {k: v - self._baseline.get(k, 0) for k, v in self._counters().items()}
+        return {
+            "samples": self.pipeline.samples_in,
+            **counts,
             "observer_rejected": self.pipeline.observer_totals()["rejected"],
             "observer_restarts": self.pipeline.restarts,
             "measured_rate_hz": _number_or_none(st.rate_hz),
