@@ -244,6 +244,11 @@ class EstimationPipeline:
         self._last_seq = int(block["seq"][-1])
 
     @property
+    def next_offset_m(self) -> float:
+        """The zero the next sample will be read against (a pending tare included), m."""
+        return self._pending[-1].offset_m if self._pending else self.offset_m
+
+    @property
     def last_seq(self) -> int | None:
         """Sequence number of the last sample processed (None before the first)."""
         return self._last_seq

@@ -123,7 +123,7 @@ class LiveSession:
             raise ValueError(f"already recording run {self.recording.run_id}; stop it first")
         recording = open_recording(root, self.profile, note=note, tags=tags,
                                    acquisition={"port": self.port})  # fmt: skip
-        offset = self.pipeline.offset_m
+        offset = self.pipeline.next_offset_m
         self.pipeline = EstimationPipeline(self.profile, recorder=recording.writer)
         if offset != 0.0:
             self.pipeline.tare(offset_m=offset)
