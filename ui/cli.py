@@ -18,6 +18,7 @@ from ui.version import software_version
 COMMAND_MODULES = (
     "demo",
     "live",
+    "dashboard",
     "replay",
     "verify",
     "runs",

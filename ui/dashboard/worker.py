@@ -55,7 +55,8 @@ class WorkerStatus:
     force_n: float = float("nan")
     force_u_n: float = float("nan")
     displacement_m: float = float("nan")
-    messages: tuple[str, ...] = field(default_factory=tuple)
+    messages: tuple[str, ...] = field(default_factory=tuple)  # the latest ones, oldest first
+    message_total: int = 0  # messages said since the start (the window shows the new ones)
     error: str = ""
 
 
@@ -87,6 +88,7 @@ class AcquisitionWorker:
         self._commands: queue.Queue[tuple[str, tuple[Any, ...]]] = queue.Queue()
         self._status = WorkerStatus(port=port or "built-in simulated cell")
         self._messages: deque[str] = deque(maxlen=50)
+        self._message_total = 0
         self._lock = threading.Lock()
         self._stop = threading.Event()
         self._thread: threading.Thread | None = None
@@ -138,6 +140,7 @@ class AcquisitionWorker:
     def _say(self, text: str) -> None:
         stamp = time.strftime("%H:%M:%S")
         self._messages.append(f"{stamp} {text}")
+        self._message_total += 1
 
     def _run(self) -> None:
         cell = None
@@ -262,5 +265,10 @@ class AcquisitionWorker:
 
     def _publish(self, **changes: Any) -> None:
         with self._lock:
-            values = {**self._status.__dict__, **changes, "messages": tuple(self._messages)}
+            values = {
+                **self._status.__dict__,
+                **changes,
+                "messages": tuple(self._messages),
+                "message_total": self._message_total,
+            }
             self._status = WorkerStatus(**values)

@@ -1,0 +1,435 @@
+"""The dashboard window (PySide6 + pyqtgraph): live plots, readout, controls.
+
+Layout, left to right: the plots (displacement, then force with its ±U band and, on
+request, the static k·x), and a side panel with the force reading in large type, the
+connection figures, the recording and zero controls and a message log. The source
+(simulated cell or a serial port) and the profile are chosen in the top row.
+
+The window draws on a timer: each tick reads the worker's status snapshot and the
+samples inside the time window from the shared buffer, reduces them to min/max
+envelopes one column per pixel, and hands those to pyqtgraph. Acquisition never runs on
+this thread.
+"""
+
+from __future__ import annotations
+
+import math
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pyqtgraph as pg
+from pyqtgraph.Qt import QtCore, QtGui, QtWidgets
+
+from ui.dashboard.buffer import TraceBuffer
+from ui.dashboard.envelope import band_envelope, line_envelope
+from ui.dashboard.worker import AcquisitionWorker, SimulatedSource, WorkerStatus
+from ui.safety import CAUTION
+
+__all__ = ["SIMULATED_LABEL", "BandItem", "DashboardWindow"]
+
+SIMULATED_LABEL = "built-in simulated cell (invented data)"
+
+# Our own palette (shared in spirit with ui/plots.py): deep teal estimate, slate static
+# conversion, indigo displacement; the band is the estimate's colour, translucent.
+_ESTIMATE = (0, 110, 120)
+_BAND = (0, 110, 120, 55)
+_STATIC = (120, 128, 140)
+_DISPLACEMENT = (60, 60, 150)
+_PANEL_BG = "#f4f6f7"
+_MAX_WINDOW_S = 120.0
+
+
+class BandItem(pg.GraphicsObject):
+    """A filled band between two curves, drawn as one polygon (cheap for ~1000 points)."""
+
+    def __init__(self, brush: Any) -> None:
+        super().__init__()
+        self._brush = pg.mkBrush(brush)
+        self._path = QtGui.QPainterPath()
+        self._rect = QtCore.QRectF()
+
+    def set_band(self, x: np.ndarray, low: np.ndarray, high: np.ndarray) -> None:
+        """Set the band: for each x, the interval [low, high]; arrays of shape (m,)."""
+        self.prepareGeometryChange()
+        if x.size < 2:
+            self._path = QtGui.QPainterPath()
+            self._rect = QtCore.QRectF()
+        else:
+            xs = np.concatenate([x, x[::-1]])
+            ys = np.concatenate([high, low[::-1]])
+            self._path = pg.arrayToQPath(xs, ys, connect="all")
+            self._path.closeSubpath()
+            self._rect = self._path.boundingRect()
+        self.update()
+
+    def boundingRect(self) -> QtCore.QRectF:  # noqa: N802 - Qt's name
+        return self._rect
+
+    def paint(self, painter: QtGui.QPainter, *args: Any) -> None:
+        painter.setPen(QtCore.Qt.PenStyle.NoPen)
+        painter.setBrush(self._brush)
+        painter.drawPath(self._path)
+
+
+class DashboardWindow(QtWidgets.QMainWindow):
+    """The live dashboard.
+
+    Args:
+        profile: the cell profile to start with.
+        runs_root: folder that recordings go to.
+        simulated: options of the built-in simulated cell.
+        connect: connect at once to the first source (the simulated cell by default).
+        port: preselect this serial port instead of the simulated cell.
+    """
+
+    def __init__(
+        self,
+        profile: Any,
+        *,
+        profile_path: str = "",
+        runs_root: Path = Path("recordings"),
+        simulated: SimulatedSource | None = None,
+        connect: bool = False,
+        port: str | None = None,
+    ) -> None:
+        super().__init__()
+        self.profile = profile
+        self.profile_path = profile_path
+        self.runs_root = Path(runs_root)
+        self.simulated = simulated or SimulatedSource()
+        self.worker: AcquisitionWorker | None = None
+        self.buffer: TraceBuffer | None = None
+        self.frozen = False
+        self.window_s = 10.0
+        self.frames = 0
+        self._messages_shown = 0
+        self.setWindowTitle("forcelens — live force")
+        self.resize(1500, 900)
+        pg.setConfigOptions(antialias=False, background="w", foreground=(35, 35, 35))
+        self._build()
+        self._refresh_ports(select=port)
+        self.timer = QtCore.QTimer(self)
+        self.timer.setInterval(33)
+        self.timer.timeout.connect(self.redraw)
+        self.timer.start()
+        if connect:
+            self.connect_source()
+
+    # ------------------------------------------------------------------ layout
+    def _build(self) -> None:
+        central = QtWidgets.QWidget()
+        self.setCentralWidget(central)
+        outer = QtWidgets.QVBoxLayout(central)
+        outer.addLayout(self._build_source_row())
+        body = QtWidgets.QHBoxLayout()
+        outer.addLayout(body, stretch=1)
+        self.plots = pg.GraphicsLayoutWidget()
+        body.addWidget(self.plots, stretch=1)
+        self.p_x = self.plots.addPlot(row=0, col=0)
+        self.p_x.setLabel("left", "displacement", units="m")
+        self.p_x.showGrid(x=True, y=True, alpha=0.25)
+        self.p_f = self.plots.addPlot(row=1, col=0)
+        self.p_f.setLabel("left", "force", units="N")
+        self.p_f.setLabel("bottom", "device time", units="s")
+        self.p_f.showGrid(x=True, y=True, alpha=0.25)
+        self.p_f.setXLink(self.p_x)
+        self.plots.ci.layout.setRowStretchFactor(1, 2)
+        legend = self.p_f.addLegend(offset=(10, 10))
+        self.band = BandItem(_BAND)
+        self.p_f.addItem(self.band, ignoreBounds=True)  # the start-up band would dwarf the rest
+        legend.addItem(pg.PlotDataItem(pen=None, fillLevel=0, brush=_BAND), "±U (k = 2)")
+        self.c_static = self.p_f.plot(pen=pg.mkPen(_STATIC, width=1), name="k·x (static)")
+        self.c_force = self.p_f.plot(pen=pg.mkPen(_ESTIMATE, width=2), name="estimated force")
+        self.c_x = self.p_x.plot(pen=pg.mkPen(_DISPLACEMENT, width=1))
+        for c in (self.c_static, self.c_force, self.c_x):
+            c.setSkipFiniteCheck(True)
+        body.addWidget(self._build_panel())
+
+    def _build_source_row(self) -> QtWidgets.QHBoxLayout:
+        row = QtWidgets.QHBoxLayout()
+        row.addWidget(QtWidgets.QLabel("Source:"))
+        self.source = QtWidgets.QComboBox()
+        self.source.setMinimumWidth(320)
+        row.addWidget(self.source)
+        self.refresh_button = QtWidgets.QPushButton("Refresh ports")
+        self.refresh_button.clicked.connect(lambda: self._refresh_ports())
+        row.addWidget(self.refresh_button)
+        self.profile_button = QtWidgets.QPushButton("Cell profile…")
+        self.profile_button.clicked.connect(self._choose_profile)
+        row.addWidget(self.profile_button)
+        self.profile_label = QtWidgets.QLabel()
+        row.addWidget(self.profile_label, stretch=1)
+        self.connect_button = QtWidgets.QPushButton("Connect")
+        self.connect_button.clicked.connect(self._toggle_connection)
+        row.addWidget(self.connect_button)
+        self._show_profile()
+        return row
+
+    def _build_panel(self) -> QtWidgets.QWidget:
+        panel = QtWidgets.QFrame()
+        panel.setFixedWidth(380)
+        panel.setStyleSheet(f"QFrame#panel {{ background: {_PANEL_BG}; }}")
+        panel.setObjectName("panel")
+        lay = QtWidgets.QVBoxLayout(panel)
+        title = QtWidgets.QLabel("Force (estimated)")
+        title.setStyleSheet("color: #37474f; font-size: 11pt;")
+        lay.addWidget(title)
+        self.force_label = QtWidgets.QLabel("—")
+        self.force_label.setStyleSheet("font-size: 40pt; font-weight: 600; color: #00353a;")
+        self.force_label.setAlignment(QtCore.Qt.AlignmentFlag.AlignRight)
+        lay.addWidget(self.force_label)
+        self.u_label = QtWidgets.QLabel("± — N   (U, k = 2, ≈95 %)")
+        self.u_label.setStyleSheet("font-size: 14pt; color: #00535a;")
+        self.u_label.setAlignment(QtCore.Qt.AlignmentFlag.AlignRight)
+        lay.addWidget(self.u_label)
+        self.x_label = QtWidgets.QLabel("displacement — mm")
+        self.x_label.setAlignment(QtCore.Qt.AlignmentFlag.AlignRight)
+        lay.addWidget(self.x_label)
+        lay.addSpacing(8)
+        grid = QtWidgets.QGridLayout()
+        self.state_label = QtWidgets.QLabel("not connected")
+        self.rate_label = QtWidgets.QLabel("—")
+        self.lost_label = QtWidgets.QLabel("0")
+        self.rec_label = QtWidgets.QLabel("not recording")
+        for i, (name, widget) in enumerate(
+            (
+                ("connection", self.state_label),
+                ("sample rate", self.rate_label),
+                ("lost / bad", self.lost_label),
+                ("recording", self.rec_label),
+            )
+        ):
+            grid.addWidget(QtWidgets.QLabel(name), i, 0)
+            widget.setTextInteractionFlags(QtCore.Qt.TextInteractionFlag.TextSelectableByMouse)
+            grid.addWidget(widget, i, 1)
+        lay.addLayout(grid)
+        lay.addSpacing(8)
+        self.note_edit = QtWidgets.QLineEdit()
+        self.note_edit.setPlaceholderText("note for the recording")
+        lay.addWidget(self.note_edit)
+        buttons = QtWidgets.QGridLayout()
+        self.record_button = QtWidgets.QPushButton("Start recording")
+        self.record_button.setCheckable(True)
+        self.record_button.clicked.connect(self._toggle_recording)
+        self.mark_button = QtWidgets.QPushButton("Mark")
+        self.mark_button.clicked.connect(self._mark)
+        self.zero_button = QtWidgets.QPushButton("Zero…")
+        self.zero_button.clicked.connect(self._zero)
+        self.freeze_button = QtWidgets.QPushButton("Freeze view")
+        self.freeze_button.setCheckable(True)
+        self.freeze_button.toggled.connect(self._freeze)
+        buttons.addWidget(self.record_button, 0, 0, 1, 2)
+        buttons.addWidget(self.mark_button, 1, 0)
+        buttons.addWidget(self.zero_button, 1, 1)
+        buttons.addWidget(self.freeze_button, 2, 0)
+        self.static_check = QtWidgets.QCheckBox("show k·x")
+        self.static_check.setChecked(True)
+        self.static_check.toggled.connect(self.c_static.setVisible)
+        buttons.addWidget(self.static_check, 2, 1)
+        lay.addLayout(buttons)
+        span = QtWidgets.QHBoxLayout()
+        span.addWidget(QtWidgets.QLabel("time window"))
+        self.window_spin = QtWidgets.QDoubleSpinBox()
+        self.window_spin.setRange(0.1, _MAX_WINDOW_S)
+        self.window_spin.setDecimals(1)
+        self.window_spin.setSuffix(" s")
+        self.window_spin.setValue(self.window_s)
+        self.window_spin.valueChanged.connect(self._set_window)
+        span.addWidget(self.window_spin)
+        lay.addLayout(span)
+        lay.addSpacing(8)
+        lay.addWidget(QtWidgets.QLabel("messages"))
+        self.log = QtWidgets.QPlainTextEdit()
+        self.log.setReadOnly(True)
+        self.log.setMaximumBlockCount(200)
+        lay.addWidget(self.log, stretch=1)
+        caution = QtWidgets.QLabel(CAUTION)
+        caution.setWordWrap(True)
+        caution.setStyleSheet("color: #6d4c00; font-size: 8pt;")
+        lay.addWidget(caution)
+        self._controls_enabled(False)
+        return panel
+
+    # --------------------------------------------------------------- sources
+    def _refresh_ports(self, select: str | None = None) -> None:
+        from daq.ports import list_ports
+
+        current = select or self.source.currentText()
+        self.source.clear()
+        self.source.addItem(SIMULATED_LABEL, None)
+        try:
+            ports = list_ports()
+        except OSError as exc:
+            self._say(f"cannot list ports: {exc}")
+            ports = []
+        for p in ports:
+            self.source.addItem(f"{p.device} — {p.description}", p.device)
+        if select and self.source.findData(select) < 0:
+            self.source.addItem(select, select)  # a port pyserial does not list (pty, URL)
+        index = self.source.findData(select) if select else self.source.findText(current)
+        self.source.setCurrentIndex(max(0, index))
+
+    def _show_profile(self) -> None:
+        where = self.profile_path or "built-in demo profile (invented cell)"
+        acq = self.profile.acquisition
+        self.profile_label.setText(
+            f"{self.profile.cell.name} — {where}; {acq.sample_rate_hz:g} Hz, {acq.framing}"
+        )
+
+    def _choose_profile(self) -> None:
+        from estimator.profile import load_profile
+
+        path, _ = QtWidgets.QFileDialog.getOpenFileName(
+            self, "Cell profile", "", "Cell profiles (*.toml)"
+        )
+        if not path:
+            return
+        try:
+            self.profile = load_profile(path)
+        except (ValueError, OSError) as exc:
+            QtWidgets.QMessageBox.warning(self, "Cell profile", str(exc))
+            return
+        self.profile_path = path
+        self._show_profile()
+
+    def _toggle_connection(self) -> None:
+        if self.worker is None:
+            self.connect_source()
+        else:
+            self.disconnect_source()
+
+    def connect_source(self) -> None:
+        """Start acquiring from the selected source."""
+        port = self.source.currentData()
+        rate = self.profile.acquisition.sample_rate_hz
+        self.buffer = TraceBuffer(int(_MAX_WINDOW_S * rate) + 1)
+        self.worker = AcquisitionWorker(
+            self.profile, port, self.buffer, runs_root=self.runs_root, simulated=self.simulated
+        )
+        self.worker.start()
+        self.connect_button.setText("Disconnect")
+        self.source.setEnabled(False)
+        self.profile_button.setEnabled(False)
+        self._controls_enabled(True)
+        self._say(f"connecting to {port or SIMULATED_LABEL}")
+
+    def disconnect_source(self) -> None:
+        """Stop acquiring (a recording in progress is closed cleanly)."""
+        if self.worker is not None:
+            self.worker.stop()
+            self._show_messages(self.worker.status())
+            self.worker = None
+            self._messages_shown = 0
+        self.record_button.setChecked(False)
+        self.record_button.setText("Start recording")
+        self.connect_button.setText("Connect")
+        self.source.setEnabled(True)
+        self.profile_button.setEnabled(True)
+        self._controls_enabled(False)
+
+    def _controls_enabled(self, on: bool) -> None:
+        for w in (self.record_button, self.mark_button, self.zero_button):
+            w.setEnabled(on)
+
+    # -------------------------------------------------------------- controls
+    def _toggle_recording(self, checked: bool) -> None:
+        if self.worker is None:
+            return
+        if checked:
+            self.worker.start_recording(self.note_edit.text().strip())
+            self.record_button.setText("Stop recording")
+        else:
+            self.worker.stop_recording()
+            self.record_button.setText("Start recording")
+
+    def _mark(self) -> None:
+        if self.worker is not None:
+            self.worker.mark(self.note_edit.text().strip())
+
+    def _zero(self) -> None:
+        if self.worker is None:
+            return
+        answer = QtWidgets.QMessageBox.question(
+            self,
+            "Zero the cell",
+            "Zero now? The cell must be unloaded and at rest: the mean displacement of "
+            "the last 0.1 s becomes the new zero.",
+        )
+        if answer == QtWidgets.QMessageBox.StandardButton.Yes:
+            self.zero_now()
+
+    def zero_now(self) -> None:
+        """Zero without asking (the caller has confirmed the cell is unloaded)."""
+        if self.worker is not None:
+            self.worker.tare()
+
+    def _freeze(self, on: bool) -> None:
+        self.frozen = on
+        self.freeze_button.setText("Follow live" if on else "Freeze view")
+
+    def _set_window(self, value: float) -> None:
+        self.window_s = float(value)
+
+    def _say(self, text: str) -> None:
+        self.log.appendPlainText(text)
+
+    # ---------------------------------------------------------------- redraw
+    def redraw(self) -> None:
+        """One timer tick: update the readout and, unless frozen, the plots."""
+        if self.worker is None or self.buffer is None:
+            return
+        status = self.worker.status()
+        self._show_status(status)
+        if self.frozen:
+            return
+        data = self.buffer.window(self.window_s)
+        if data.shape[1] < 2:
+            return
+        t, x, f, u, kx = data
+        t1 = float(t[-1])
+        t0 = t1 - self.window_s
+        bins = max(100, int(self.p_f.getViewBox().width()))
+        self.c_x.setData(*line_envelope(t, x, t0, t1, bins))
+        self.c_force.setData(*line_envelope(t, f, t0, t1, bins))
+        if self.c_static.isVisible():
+            self.c_static.setData(*line_envelope(t, kx, t0, t1, bins))
+        self.band.set_band(*band_envelope(t, f - 2.0 * u, f + 2.0 * u, t0, t1, bins))
+        self.p_f.setXRange(t0, t1, padding=0.0)
+        self.frames += 1
+
+    def _show_status(self, s: WorkerStatus) -> None:
+        if math.isfinite(s.force_n):
+            self.force_label.setText(f"{s.force_n:.3f} N")
+            self.u_label.setText(f"± {2.0 * s.force_u_n:.3f} N   (U, k = 2, ≈95 %)")
+            self.x_label.setText(f"displacement {s.displacement_m * 1e3:.6f} mm")
+        self.state_label.setText(s.state + (f" — {s.error}" if s.error else ""))
+        if s.rate_hz is not None:
+            drift = f" ({s.drift_ppm:+.0f} ppm)" if s.drift_ppm is not None else ""
+            self.rate_label.setText(f"{s.rate_hz:.1f} S/s{drift}")
+        else:
+            self.rate_label.setText("measuring…")
+        self.lost_label.setText(f"{s.lost} lost, {s.rejected} bad frames")
+        self.rec_label.setText(s.recording or "not recording")
+        self._show_messages(s)
+
+    def _show_messages(self, s: WorkerStatus) -> None:
+        new = s.message_total - self._messages_shown
+        for m in s.messages[-new:] if new > 0 else ():
+            self._say(m)
+        self._messages_shown = s.message_total
+
+    def closeEvent(self, event: QtGui.QCloseEvent) -> None:  # noqa: N802 - Qt's name
+        """Closing the window closes a recording in progress cleanly."""
+        self.timer.stop()
+        self.disconnect_source()
+        super().closeEvent(event)
+
+
+def show_caution(parent: QtWidgets.QWidget | None = None) -> None:
+    """The usual cautions, once per start (the operator acknowledges them)."""
+    box = QtWidgets.QMessageBox(parent)
+    box.setWindowTitle("forcelens — before you load the cell")
+    box.setIcon(QtWidgets.QMessageBox.Icon.Warning)
+    box.setText(CAUTION)
+    box.exec()
