@@ -1,0 +1,65 @@
+"""The dashboard window, offscreen (pytest-qt): live data, the reading, record and replay."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import pytest
+
+from daq.runs import read_run
+from estimator.profile import default_demo_profile
+from ui.cli import main
+from ui.dashboard.window import DashboardWindow
+from ui.dashboard.worker import SimulatedSource
+
+# Invented programme: unloaded 0.5 s, then 40 N; simulated cell 4x faster than real time.
+SIM = SimulatedSource(programme="hold 0.5 0; hold 4 40", speed=4.0, loop=False)
+
+
+def test_window_reads_the_simulated_cell_records_and_the_run_replays(
+    qtbot, tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    window = DashboardWindow(default_demo_profile(), runs_root=tmp_path, simulated=SIM)
+    qtbot.addWidget(window)
+    window.show()
+    window.connect_source()
+    worker = window.worker
+    assert worker is not None
+    qtbot.waitUntil(lambda: worker.status().samples > 400, timeout=20_000)
+    window.zero_now()  # unloaded and at rest during the first 0.5 s (simulated)
+    window.note_edit.setText("dashboard test (invented data)")
+    window.record_button.click()
+    qtbot.waitUntil(lambda: worker.status().recording != "", timeout=10_000)
+    window.mark_button.click()
+    # After the 40 N step settles the readout shows it within 2 % (common practice band).
+    qtbot.waitUntil(lambda: worker.status().time_s > 1.5, timeout=20_000)
+    text = window.force_label.text()
+    assert text.endswith(" N") and float(text.split()[0]) == pytest.approx(40.0, rel=0.02)
+    assert "(U, k = 2" in window.u_label.text()
+    assert window.frames > 0
+    window.record_button.click()  # stop recording
+    qtbot.waitUntil(lambda: worker.status().recording == "", timeout=10_000)
+    window.close()  # stops the worker
+    assert window.worker is None
+    (folder,) = [p.parent for p in tmp_path.glob("*/run.json")]
+    data = read_run(folder)
+    assert data.closed and data.description["operator_note"] == "dashboard test (invented data)"
+    assert {"tare", "mark"} <= {e["kind"] for e in data.events}
+    capsys.readouterr()
+    assert main(["replay", str(folder)]) == 0
+    assert "identical to the" in capsys.readouterr().out
+
+
+def test_closing_the_window_while_recording_closes_the_run(qtbot, tmp_path: Path) -> None:
+    window = DashboardWindow(default_demo_profile(), runs_root=tmp_path, simulated=SIM)
+    qtbot.addWidget(window)
+    window.show()
+    window.connect_source()
+    worker = window.worker
+    qtbot.waitUntil(lambda: worker.status().samples > 100, timeout=20_000)
+    window.record_button.click()
+    qtbot.waitUntil(lambda: worker.status().recording != "", timeout=10_000)
+    window.close()
+    (folder,) = [p.parent for p in tmp_path.glob("*/run.json")]
+    data = read_run(folder)
+    assert data.closed and data.closing["summary"]["reason"] == "window closed"
