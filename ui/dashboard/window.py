@@ -36,8 +36,14 @@ _ESTIMATE = (0, 110, 120)
 _BAND = (0, 110, 120, 55)
 _STATIC = (120, 128, 140)
 _DISPLACEMENT = (60, 60, 150)
+_GRID = (226, 229, 233)
 _PANEL_BG = "#f4f6f7"
 _MAX_WINDOW_S = 120.0
+
+
+def _add_grid(plot: Any) -> None:
+    """A light grid in an opaque colour (translucent grid lines cost ~40 ms per frame)."""
+    plot.addItem(pg.GridItem(pen=pg.mkPen(_GRID), textPen=None), ignoreBounds=True)
 
 
 class BandItem(pg.GraphicsObject):
@@ -128,11 +134,11 @@ class DashboardWindow(QtWidgets.QMainWindow):
         body.addWidget(self.plots, stretch=1)
         self.p_x = self.plots.addPlot(row=0, col=0)
         self.p_x.setLabel("left", "displacement", units="m")
-        self.p_x.showGrid(x=True, y=True, alpha=0.25)
+        _add_grid(self.p_x)
         self.p_f = self.plots.addPlot(row=1, col=0)
         self.p_f.setLabel("left", "force", units="N")
         self.p_f.setLabel("bottom", "device time", units="s")
-        self.p_f.showGrid(x=True, y=True, alpha=0.25)
+        _add_grid(self.p_f)
         self.p_f.setXLink(self.p_x)
         self.plots.ci.layout.setRowStretchFactor(1, 2)
         legend = self.p_f.addLegend(offset=(10, 10))
