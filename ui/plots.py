@@ -43,16 +43,6 @@ def _qt_app():
     return app or QtWidgets.QApplication([])
 
 
-def _envelope(t: np.ndarray, lo: np.ndarray, hi: np.ndarray, bins: int) -> tuple[np.ndarray, ...]:
-    """Min of ``lo`` and max of ``hi`` per bin: a decimated band that hides no extreme."""
-    n = t.size
-    if n <= bins:
-        return t, lo, hi
-    edges = np.linspace(0, n, bins + 1).astype(int)
-    tt = t[edges[:-1]]
-    return tt, np.minimum.reduceat(lo, edges[:-1]), np.maximum.reduceat(hi, edges[:-1])
-
-
 def render_run_png(traces: RunTraces, path: str | os.PathLike[str], size=(1400, 1200)) -> Path:
     """Draw displacement (mm) and force (N) with its ±U band, k·x and truth; save PNG."""
     app = _qt_app()
@@ -90,11 +80,13 @@ def _draw_force(pg, plot, traces: RunTraces) -> None:
     plot.showGrid(x=True, y=True, alpha=0.25)
     p2 = plot
     p2.addLegend(offset=(10, 10))
-    f, U = traces.force_n, traces.force_expanded_u_n
-    tb, lo, hi = _envelope(traces.time_s, f - U, f + U, 4000)
-    c_lo = p2.plot(tb, lo, pen=None)
-    c_hi = p2.plot(tb, hi, pen=None)
-    p2.addItem(pg.FillBetweenItem(c_lo, c_hi, brush=pg.mkBrush(_BAND)))
+    from ui.dashboard.envelope import band_envelope
+    from ui.dashboard.window import BandItem
+
+    f, U, t = traces.force_n, traces.force_expanded_u_n, traces.time_s
+    band = BandItem(_BAND)
+    band.set_band(*band_envelope(t, f - U, f + U, float(t[0]), float(t[-1]), 4000))
+    p2.addItem(band, ignoreBounds=True)  # the start-up band (±2·range) would set the scale
     p2.plot(
         traces.time_s, traces.static_force_n, pen=pg.mkPen(_STATIC, width=1), name="k·x (static)"
     )
