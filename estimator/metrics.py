@@ -635,7 +635,8 @@ def change_table(
     """Metrics of every change in ``force_n`` and, when given, in ``static_force_n``.
 
     Each change is measured over the window from the last half of the hold before it to
-    the start of the next change (or the end of the trace), with ``t_change`` at its
+    just before the next change (the last 2 % of the hold, at least two samples, are left
+    out) or the end of the trace, with ``t_change`` at its
     start. The static trace ``k·x`` (N, same times) is measured over the same window
     with its own levels, so the two settling times compare directly.
 
@@ -662,8 +663,13 @@ def change_table(
     bounds = [c.index for c in changes]
     for j, change in enumerate(changes):
         start = _tail_start(bounds[j - 1] if j else 0, change.index)
-        stop = bounds[j + 1] if j + 1 < len(bounds) else t.size
-        window = slice(start, stop)
+        if j + 1 < len(bounds):
+            # End a little before the next change is detected: a trace that reacts
+            # sooner than the estimate (k·x) has already left the level there.
+            stop = bounds[j + 1] - max(2, (bounds[j + 1] - change.index) // 50)
+        else:
+            stop = t.size
+        window = slice(start, max(stop, change.index + 2))
         measured = [
             step_metrics(
                 t[window],

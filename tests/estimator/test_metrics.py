@@ -373,9 +373,11 @@ def test_change_table_shows_the_observer_settling_sooner_than_k_x() -> None:
         # Static overshoot: the handbook peak overshoot (Ogata); the noise (0.02 % of the
         # smallest step at 4σ) and the grid ((ωd·dt)²/2 = 3e-4 relative) stay below 0.1 %.
         assert row.static.overshoot_pct == pytest.approx(cell.peak_overshoot() * 100, abs=0.1)
-        # Observer levels in the table are the detector's levels (same medians).
-        assert row.observer.initial == row.change.level_before_n
-        assert row.observer.final == row.change.level_after_n
+        # Observer levels in the table are the detector's levels: same medians, except
+        # that the table's window stops 2 % of the hold before the next change (a
+        # difference far below the 1 mN of a few noise σ over thousands of samples).
+        assert row.observer.initial == pytest.approx(row.change.level_before_n, abs=1e-3)
+        assert row.observer.final == pytest.approx(row.change.level_after_n, abs=1e-3)
         expected_ratio = cell.settling_time_s(0.02) / fast.settling_time_s(0.02)
         assert expected_ratio > 20  # the premise of the comparison
         assert row.settling_ratio == pytest.approx(expected_ratio, rel=0.1)

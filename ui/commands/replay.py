@@ -46,6 +46,12 @@ def register(subparsers: Any) -> None:
         help="'max' (default: as fast as possible), 1 for real time, or a factor such as 5",
     )
     p.add_argument(
+        "--steps",
+        action="store_true",
+        help="also print the load changes found, with rise, overshoot and settling times "
+        "for the estimate and for the static k·x",
+    )
+    p.add_argument(
         "--smooth",
         action="store_true",
         help="also use later samples (Rauch-Tung-Striebel smoother); offline only, slower",
@@ -93,6 +99,8 @@ def _replay_csv(args: argparse.Namespace, source: Path, speed: float) -> int:
     samples["displacement_m"] = x
     estimates, observer = _estimate(args, profile, samples, [], speed)
     _write(args, estimates)
+    if args.steps:
+        _print_steps(profile, samples, estimates)
     c = observer.counters
     print(
         f"{source}: {t.size} samples; rejected {c.rejected}, missing {c.missing}, "
@@ -123,6 +131,8 @@ def _replay_run(args: argparse.Namespace, folder: Path, speed: float) -> int:
     estimates, observer = _estimate(args, profile, data.samples, tares, speed)
     if args.out:
         _write(args, estimates)
+    if args.steps:
+        _print_steps(profile, data.samples, estimates)
     c = observer.counters
     print(
         f"replayed {estimates.size} samples; rejected {c.rejected}, gaps {c.gaps}, "
@@ -198,6 +208,23 @@ def _estimate(
         status.finish()
     est = concat_estimates(parts) if parts else pipeline.process(samples[:0])
     return est, pipeline.observer
+
+
+def _print_steps(profile: Any, samples: Any, estimates: Any) -> None:
+    """The change table of the estimate and of the static conversion k·x."""
+    import numpy as np
+
+    from estimator.metrics import change_table, format_change_table
+
+    ok = np.isfinite(estimates["force_n"])
+    t = estimates["time_s"][ok]
+    k = profile.plant.stiffness_n_per_m
+    static = k * samples["displacement_m"][ok]
+    # The band is 2 % of each step, never narrower than twice the steady force
+    # uncertainty (so noise alone cannot hold the reading "unsettled").
+    floor = 4.0 * float(np.median(estimates["force_u_n"][ok])) if ok.any() else 0.0
+    rows = change_table(t, estimates["force_n"][ok], static, band_floor_n=floor)
+    print(format_change_table(rows) if rows else "no load change found")
 
 
 def _write(args: argparse.Namespace, estimates: Any) -> None:
