@@ -24,6 +24,7 @@ COMMAND_MODULES = (
     "runs",
     "export",
     "ports",
+    "calibrate",
     "simulate",
     "profile",
 )
