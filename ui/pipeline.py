@@ -30,6 +30,8 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from daq.samples import SAMPLE_DTYPE
+from estimator.alarms import ALARM_EVENT, AlarmSet
+from estimator.monitor import SETTLING_EVENT, SettlingMonitor, SettlingRule, StateChange
 from estimator.observer import ESTIMATE_DTYPE, ForceObserver, concat_estimates
 
 if TYPE_CHECKING:
@@ -140,12 +142,27 @@ class EstimationPipeline:
         recorder: Any = None,
         tares: Sequence[Tare] = (),
         tare_window_s: float = _TARE_WINDOW_S,
+        watch: bool = True,
     ) -> None:
         if not (math.isfinite(tare_window_s) and tare_window_s > 0):
             raise ValueError(f"tare_window_s = {tare_window_s!r}: must be a number > 0 s")
         self.profile = profile
         self.observer = ForceObserver.from_profile(profile)
         self.recorder = recorder
+        self.monitor: SettlingMonitor | None = None
+        self.alarms: AlarmSet | None = None
+        if watch:
+            lim = profile.limits
+            rule = SettlingRule.for_range(lim.force_min_n, lim.force_max_n)
+            self.monitor = SettlingMonitor(
+                rule,
+                profile.acquisition.sample_rate_hz,
+                force_min_n=lim.force_min_n,
+                force_max_n=lim.force_max_n,
+            )
+            self.alarms = AlarmSet.for_profile(profile, rule=rule)
+        #: State changes and alarm transitions of the last `process` or `tick` call.
+        self.last_changes: list[Any] = []
         self._pending = deque(sorted(tares, key=lambda t: t.index))
         self.offset_m = 0.0
         self.tares_applied: list[Tare] = []
@@ -199,7 +216,40 @@ class EstimationPipeline:
             self.recorder.append(block)
             self.recorder.append(est, ESTIMATE_STREAM)
         self.samples_in += block.size
+        self._watch(est, block)
         return est
+
+    def _watch(self, est: np.ndarray, block: np.ndarray) -> None:
+        """Feed the settling monitor and the alarms; log their transitions."""
+        changes: list[Any] = []
+        if self.monitor is not None:
+            changes += self.monitor.update(est)
+        if self.alarms is not None:
+            changes += self.alarms.update(est, block)
+        self._log_changes(changes)
+
+    def tick(self, now_s: float) -> list[Any]:
+        """Tell the alarms the host time (s, the samples' clock) when no sample came."""
+        if self.alarms is None:
+            return []
+        changes = self.alarms.tick(now_s)
+        self._log_changes(changes)
+        return changes
+
+    def _log_changes(self, changes: list[Any]) -> None:
+        self.last_changes = changes
+        if self.recorder is None:
+            return
+        for c in changes:
+            if isinstance(c, StateChange):
+                kind, message = SETTLING_EVENT, c.message()
+            else:
+                kind, message = ALARM_EVENT, c.message
+            fields = {
+                k: None if isinstance(v, float) and not math.isfinite(v) else v
+                for k, v in c.event_fields().items()
+            }
+            self.recorder.event(kind, message, **fields)
 
     def _estimate(self, part: np.ndarray) -> np.ndarray:
         x = part["displacement_m"]
@@ -232,6 +282,8 @@ class EstimationPipeline:
             )
 
     def _apply(self, tare: Tare) -> None:
+        if self.alarms is not None:
+            self.alarms.tare_at(tare.index)
         self.offset_m = tare.offset_m
         self._reset_observer()
         self.tares_applied.append(tare)

@@ -9,8 +9,9 @@ force, logs the events in the run and keeps the run's flush interval.
 from __future__ import annotations
 
 import math
+import time
 from collections.abc import Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
@@ -33,6 +34,8 @@ class PollResult:
     samples: np.ndarray
     estimates: np.ndarray
     events: list[ReaderEvent]
+    #: Settling-state changes and alarm transitions found in this poll.
+    changes: list[Any] = field(default_factory=list)
 
 
 class LiveSession:
@@ -71,6 +74,7 @@ class LiveSession:
         )
         self.connected_once = False
         self._closed = False
+        self._clock = reader_options.get("clock", time.monotonic)  # the samples' host clock
         self._baseline: dict[str, Any] = {}  # reader counters when the recording began
 
     def start(self) -> LiveSession:
@@ -90,11 +94,15 @@ class LiveSession:
                 writer.event(ev.kind, ev.message, host_time_s=ev.host_time_s, last_seq=ev.last_seq)
         if samples.size:
             estimates = self.pipeline.process(samples)
+            changes = list(self.pipeline.last_changes)
         else:
             estimates = self.pipeline.process(samples[:0])
-            if writer is not None:
-                writer.maybe_flush()
-        return PollResult(samples, estimates, events)
+            changes = []
+        # Every received sample is in: the alarms may now judge a silence (stall).
+        changes += self.pipeline.tick(self._clock())
+        if writer is not None:
+            writer.maybe_flush()
+        return PollResult(samples, estimates, events, changes)
 
     def mark(self, message: str) -> int | None:
         """Log an operator mark in the run at the last sample; returns its seq (None: no data)."""

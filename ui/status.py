@@ -15,6 +15,7 @@ def format_status(
     est: np.ndarray,
     *,
     state: str = "",
+    settling: str = "",
     rate_hz: float | None = None,
     drift_ppm: float | None = None,
     lost: int = 0,
@@ -23,7 +24,8 @@ def format_status(
 ) -> str:
     """One status line from the latest estimates (ESTIMATE_DTYPE, (n,), n ≥ 1).
 
-    Shows device time, force ± U with k = 2, displacement, the connection state, the
+    Shows device time, force ± U with k = 2, displacement, the settling state (in
+    brackets), the connection state, the
     measured sample rate with its drift from the nominal rate, and the counts of lost
     and rejected samples.
     """
@@ -33,6 +35,8 @@ def format_status(
         f"F {e['force_n']:10.4f} N ± {2.0 * e['force_u_n']:.4f} N (U, k=2)",
         f"x {e['displacement_m'] * 1e3:9.6f} mm",
     ]
+    if settling:
+        parts.append(f"[{settling.upper()}]")
     if state:
         parts.append(state)
     if rate_hz is not None:

@@ -185,14 +185,20 @@ def _acquire(args: argparse.Namespace, profile: Any, port: str, cell: Any) -> in
                     if ev.kind != "connected":
                         status.finish()
                         print(f"{ev.utc} {ev.kind}: {ev.message}", flush=True)
+                for change in got.changes:
+                    if getattr(change, "alarm_id", None):  # settling states: on the status line
+                        status.finish()
+                        print(f"alarm {change.event}: {change.message}", flush=True)
                 if got.estimates.size:
                     last_est = got.estimates
                 if last_est is not None and status.due():
                     st = session.reader.stats()
+                    monitor = session.pipeline.monitor
                     status.show(
                         format_status(
                             last_est,
                             state=session.reader.state,
+                            settling=monitor.state if monitor is not None else "",
                             rate_hz=st.rate_hz,
                             drift_ppm=st.drift_ppm,
                             lost=st.decoder.samples_lost,
