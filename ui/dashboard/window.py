@@ -13,6 +13,7 @@ this thread.
 
 from __future__ import annotations
 
+import itertools
 import math
 from pathlib import Path
 from typing import Any
@@ -37,6 +38,15 @@ _BAND = (0, 110, 120, 55)
 _STATIC = (120, 128, 140)
 _DISPLACEMENT = (60, 60, 150)
 _GRID = (212, 216, 222)
+# The settling tile: our own words, symbols and colours, readable from across the room.
+_TILES = {
+    "waiting": ("…  WAITING", "#78909c"),
+    "changing": ("▲▼  CHANGING", "#37474f"),
+    "settling": ("◧  SETTLING", "#a86b00"),
+    "settled": ("■  SETTLED — read now", "#00695c"),
+    "out-of-range": ("✕  OUT OF RANGE", "#8e244d"),
+}
+_SEVERITY_COLOURS = {"critical": "#8e244d", "warning": "#a86b00", "advisory": "#37474f"}
 _PANEL_BG = "#f4f6f7"
 _MAX_WINDOW_S = 120.0
 
@@ -44,6 +54,24 @@ _MAX_WINDOW_S = 120.0
 def _add_grid(plot: Any) -> None:
     """A light grid in an opaque colour (translucent grid lines cost ~40 ms per frame)."""
     plot.addItem(pg.GridItem(pen=pg.mkPen(_GRID), textPen=None), ignoreBounds=True)
+
+
+def _runs(x: np.ndarray) -> list[tuple[int, int]]:
+    """Index ranges [a, b) of `x` (increasing, (m,)) without a gap of > 3 typical steps."""
+    dx = np.diff(x)
+    steps = dx[dx > 0]  # envelope points come in pairs at one x
+    typical = float(np.median(steps)) if steps.size else 0.0
+    cuts = np.flatnonzero(dx > 3.0 * typical) + 1 if typical > 0 else np.zeros(0, int)
+    bounds = [0, *cuts.tolist(), x.size]
+    return list(itertools.pairwise(bounds))
+
+
+def _line(curve: Any, x: np.ndarray, y: np.ndarray) -> None:
+    """Set a curve, leaving gaps in the data unconnected."""
+    connect = np.ones(x.size, dtype=bool)
+    for _, b in _runs(x)[:-1]:
+        connect[b - 1] = False
+    curve.setData(x, y, connect=connect)
 
 
 class BandItem(pg.GraphicsObject):
@@ -56,17 +84,24 @@ class BandItem(pg.GraphicsObject):
         self._rect = QtCore.QRectF()
 
     def set_band(self, x: np.ndarray, low: np.ndarray, high: np.ndarray) -> None:
-        """Set the band: for each x, the interval [low, high]; arrays of shape (m,)."""
+        """Set the band: for each x, the interval [low, high]; arrays of shape (m,).
+
+        Where x jumps by more than three typical steps (a gap in the data) the band is
+        broken instead of being drawn across the gap.
+        """
         self.prepareGeometryChange()
-        if x.size < 2:
-            self._path = QtGui.QPainterPath()
-            self._rect = QtCore.QRectF()
-        else:
-            xs = np.concatenate([x, x[::-1]])
-            ys = np.concatenate([high, low[::-1]])
-            self._path = pg.arrayToQPath(xs, ys, connect="all")
-            self._path.closeSubpath()
-            self._rect = self._path.boundingRect()
+        path = QtGui.QPainterPath()
+        if x.size >= 2:
+            for a, b in _runs(x):
+                if b - a < 2:
+                    continue
+                xs = np.concatenate([x[a:b], x[a:b][::-1]])
+                ys = np.concatenate([high[a:b], low[a:b][::-1]])
+                sub = pg.arrayToQPath(xs, ys, connect="all")
+                sub.closeSubpath()
+                path.addPath(sub)
+        self._path = path
+        self._rect = path.boundingRect()
         self.update()
 
     def boundingRect(self) -> QtCore.QRectF:  # noqa: N802 - Qt's name
@@ -192,7 +227,16 @@ class DashboardWindow(QtWidgets.QMainWindow):
         self.x_label = QtWidgets.QLabel("displacement — mm")
         self.x_label.setAlignment(QtCore.Qt.AlignmentFlag.AlignRight)
         lay.addWidget(self.x_label)
-        lay.addSpacing(8)
+        self.tile = QtWidgets.QLabel()
+        self.tile.setAlignment(QtCore.Qt.AlignmentFlag.AlignCenter)
+        self.tile.setMinimumHeight(64)
+        lay.addWidget(self.tile)
+        self.rule_label = QtWidgets.QLabel()
+        self.rule_label.setWordWrap(True)
+        self.rule_label.setStyleSheet("color: #455a64; font-size: 8pt;")
+        lay.addWidget(self.rule_label)
+        self._show_tile("waiting", None)
+        lay.addSpacing(6)
         grid = QtWidgets.QGridLayout()
         self.state_label = QtWidgets.QLabel("not connected")
         self.rate_label = QtWidgets.QLabel("—")
@@ -244,7 +288,18 @@ class DashboardWindow(QtWidgets.QMainWindow):
         self.window_spin.valueChanged.connect(self._set_window)
         span.addWidget(self.window_spin)
         lay.addLayout(span)
-        lay.addSpacing(8)
+        lay.addSpacing(6)
+        alarm_row = QtWidgets.QHBoxLayout()
+        alarm_row.addWidget(QtWidgets.QLabel("alarms"))
+        self.ack_button = QtWidgets.QPushButton("Acknowledge")
+        self.ack_button.clicked.connect(self._acknowledge)
+        alarm_row.addStretch(1)
+        alarm_row.addWidget(self.ack_button)
+        lay.addLayout(alarm_row)
+        self.alarm_list = QtWidgets.QListWidget()
+        self.alarm_list.setMaximumHeight(110)
+        self.alarm_list.setWordWrap(True)
+        lay.addWidget(self.alarm_list)
         lay.addWidget(QtWidgets.QLabel("messages"))
         self.log = QtWidgets.QPlainTextEdit()
         self.log.setReadOnly(True)
@@ -335,7 +390,7 @@ class DashboardWindow(QtWidgets.QMainWindow):
         self._controls_enabled(False)
 
     def _controls_enabled(self, on: bool) -> None:
-        for w in (self.record_button, self.mark_button, self.zero_button):
+        for w in (self.record_button, self.mark_button, self.zero_button, self.ack_button):
             w.setEnabled(on)
 
     # -------------------------------------------------------------- controls
@@ -370,6 +425,53 @@ class DashboardWindow(QtWidgets.QMainWindow):
         if self.worker is not None:
             self.worker.tare()
 
+    def _acknowledge(self) -> None:
+        """Acknowledge the selected alarm, or every active one when none is selected."""
+        if self.worker is None:
+            return
+        items = self.alarm_list.selectedItems() or [
+            self.alarm_list.item(i) for i in range(self.alarm_list.count())
+        ]
+        for item in items:
+            self.worker.acknowledge(item.data(QtCore.Qt.ItemDataRole.UserRole))
+
+    def _show_tile(self, state: str, valid_since_s: float | None) -> None:
+        text, colour = _TILES.get(state, (state.upper(), "#37474f"))
+        html_text = f"<span style='font-size: 19pt; font-weight: 700;'>{text}</span>"
+        if state == "settled" and valid_since_s is not None:
+            html_text += (
+                f"<br><span style='font-size: 10pt;'>valid since t = {valid_since_s:.3f} s</span>"
+            )
+        self.tile.setText(html_text)
+        self.tile.setStyleSheet(
+            f"background: {colour}; color: white; border-radius: 6px; padding: 6px;"
+        )
+
+    def _show_alarms(self, alarms: tuple[tuple[str, str, str, bool], ...]) -> None:
+        shown = [
+            (
+                self.alarm_list.item(i).data(QtCore.Qt.ItemDataRole.UserRole),
+                self.alarm_list.item(i).text(),
+            )
+            for i in range(self.alarm_list.count())
+        ]
+        wanted = [
+            (a, f"{sev.upper()}: {msg}" + ("  (acknowledged)" if ack else ""))
+            for a, sev, msg, ack in alarms
+        ]
+        if shown == wanted:
+            return
+        self.alarm_list.clear()
+        for (alarm_id, text), (_, severity, _, ack) in zip(wanted, alarms, strict=True):
+            item = QtWidgets.QListWidgetItem(text)
+            item.setData(QtCore.Qt.ItemDataRole.UserRole, alarm_id)
+            colour = "#90a4ae" if ack else _SEVERITY_COLOURS.get(severity, "#37474f")
+            item.setForeground(QtGui.QColor(colour))
+            font = item.font()
+            font.setBold(not ack)
+            item.setFont(font)
+            self.alarm_list.addItem(item)
+
     def _freeze(self, on: bool) -> None:
         self.frozen = on
         self.freeze_button.setText("Follow live" if on else "Freeze view")
@@ -396,10 +498,10 @@ class DashboardWindow(QtWidgets.QMainWindow):
         t1 = float(t[-1])
         t0 = t1 - self.window_s
         bins = max(100, int(self.p_f.getViewBox().width()))
-        self.c_x.setData(*line_envelope(t, x, t0, t1, bins))
-        self.c_force.setData(*line_envelope(t, f, t0, t1, bins))
+        _line(self.c_x, *line_envelope(t, x, t0, t1, bins))
+        _line(self.c_force, *line_envelope(t, f, t0, t1, bins))
         if self.c_static.isVisible():
-            self.c_static.setData(*line_envelope(t, kx, t0, t1, bins))
+            _line(self.c_static, *line_envelope(t, kx, t0, t1, bins))
         self.band.set_band(*band_envelope(t, f - 2.0 * u, f + 2.0 * u, t0, t1, bins))
         self.p_f.setXRange(t0, t1, padding=0.0)
         self.frames += 1
@@ -417,6 +519,9 @@ class DashboardWindow(QtWidgets.QMainWindow):
             self.rate_label.setText("measuring…")
         self.lost_label.setText(f"{s.lost} lost, {s.rejected} bad frames")
         self.rec_label.setText(s.recording or "not recording")
+        self._show_tile(s.settling or "waiting", s.valid_since_s)
+        self.rule_label.setText(s.settling_rule)
+        self._show_alarms(s.alarms)
         self._show_messages(s)
 
     def _show_messages(self, s: WorkerStatus) -> None:

@@ -55,6 +55,10 @@ class WorkerStatus:
     force_n: float = float("nan")
     force_u_n: float = float("nan")
     displacement_m: float = float("nan")
+    settling: str = "waiting"  # the settling monitor's state
+    settling_rule: str = ""  # the rule, in words
+    valid_since_s: float | None = None  # when the current reading became valid
+    alarms: tuple[tuple[str, str, str, bool], ...] = ()  # (id, severity, message, acknowledged)
     messages: tuple[str, ...] = field(default_factory=tuple)  # the latest ones, oldest first
     message_total: int = 0  # messages said since the start (the window shows the new ones)
     error: str = ""
@@ -136,6 +140,10 @@ class AcquisitionWorker:
         """Queue: zero on the latest samples (the caller has confirmed: cell unloaded)."""
         self._commands.put(("tare", ()))
 
+    def acknowledge(self, alarm_id: str) -> None:
+        """Queue: acknowledge an active alarm (it stays until its condition clears)."""
+        self._commands.put(("ack", (alarm_id,)))
+
     # -------------------------------------------------------------- thread
     def _say(self, text: str) -> None:
         stamp = time.strftime("%H:%M:%S")
@@ -189,6 +197,9 @@ class AcquisitionWorker:
                     started_cell = True
                 for ev in got.events:
                     self._say(f"{ev.kind}: {ev.message}")
+                for change in got.changes:
+                    if getattr(change, "alarm_id", None):
+                        self._say(f"alarm {change.event}: {change.message}")
                 self._run_commands(session)
                 if got.samples.size:
                     self._push(got.samples, got.estimates, session)
@@ -221,6 +232,10 @@ class AcquisitionWorker:
                 elif name == "mark":
                     seq = session.mark(args[0])
                     self._say(f"mark at seq {seq}" if seq is not None else "mark (no data yet)")
+                elif name == "ack":
+                    alarms = session.pipeline.alarms
+                    if alarms is not None and alarms.acknowledge(args[0]):
+                        self._say(f"alarm {args[0]} acknowledged")
                 elif name == "tare":
                     tare = session.tare()
                     self._say(f"zero set: {tare.offset_m * 1e3:.6f} mm ({tare.n_samples} samples)")
@@ -248,7 +263,16 @@ class AcquisitionWorker:
         st = session.reader.stats()
         last = self.buffer.latest(1)
         rec = session.recording
+        monitor, alarms = session.pipeline.monitor, session.pipeline.alarms
         self._publish(
+            settling=monitor.state if monitor is not None else "",
+            settling_rule=monitor.describe() if monitor is not None else "",
+            valid_since_s=monitor.valid_since_s if monitor is not None else None,
+            alarms=tuple(
+                (a.alarm_id, a.severity, a.message, a.acknowledged) for a in alarms.active()
+            )
+            if alarms is not None
+            else (),
             state=state or session.reader.state,
             rate_hz=st.rate_hz,
             drift_ppm=st.drift_ppm,
