@@ -503,7 +503,9 @@ class DashboardWindow(QtWidgets.QMainWindow):
         if self.c_static.isVisible():
             _line(self.c_static, *line_envelope(t, kx, t0, t1, bins))
         self.band.set_band(*band_envelope(t, f - 2.0 * u, f + 2.0 * u, t0, t1, bins))
-        self.p_f.setXRange(t0, t1, padding=0.0)
+        # Until the window is full the trace grows from the left edge.
+        left = max(t0, float(t[0]))
+        self.p_f.setXRange(left, left + self.window_s, padding=0.0)
         self.frames += 1
 
     def _show_status(self, s: WorkerStatus) -> None:
