@@ -33,6 +33,7 @@ def test_window_reads_the_simulated_cell_records_and_the_run_replays(
     window.mark_button.click()
     # After the 40 N step settles the readout shows it within 2 % (common practice band).
     qtbot.waitUntil(lambda: worker.status().time_s > 1.5, timeout=20_000)
+    window.redraw()  # the readout as of now (the timer may not have ticked yet)
     text = window.force_label.text()
     assert text.endswith(" N") and float(text.split()[0]) == pytest.approx(40.0, rel=0.02)
     assert "(U, k = 2" in window.u_label.text()
@@ -63,3 +64,31 @@ def test_closing_the_window_while_recording_closes_the_run(qtbot, tmp_path: Path
     (folder,) = [p.parent for p in tmp_path.glob("*/run.json")]
     data = read_run(folder)
     assert data.closed and data.closing["summary"]["reason"] == "window closed"
+
+
+def test_replay_mode_shows_the_recorded_numbers(qtbot, tmp_path: Path) -> None:
+    recordings = Path(__file__).resolve().parents[2] / "recordings"
+    folder = sorted(recordings.glob("*/run.json"))[0].parent  # the invented demo run
+    data = read_run(folder)
+    live = data.streams["estimates"]
+    window = DashboardWindow(default_demo_profile(), runs_root=tmp_path)
+    qtbot.addWidget(window)
+    window.show()
+    window.open_run(folder)
+    assert window.playback is not None and window.replay_bar.isVisible()
+    window.seek(0.9)  # inside the 50 N hold of the invented demo run
+    window.redraw()
+    i = window.playback.cursor
+    # The readout is the estimate recorded live at that sample, to the digits shown.
+    assert window.force_label.text() == f"{live['force_n'][i]:.3f} N"
+    assert "identical to live" in window.state_label.text()
+    assert window.step_table.rowCount() == 2
+    assert window.step_table.item(0, 2).text() == "50"
+    # Jumping to an event puts it in the middle of the view.
+    assert window.event_combo.count() > 1
+    window._jump_to_event(1)
+    t_event = window.event_combo.itemData(1)
+    assert window.playback.time_s[window.playback.cursor] <= t_event + 0.5 * window.window_s
+    window.close_run()
+    assert window.playback is None and not window.replay_bar.isVisible()
+    window.close()

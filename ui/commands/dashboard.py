@@ -30,6 +30,7 @@ def register(subparsers: Any) -> None:
         help="folder for recordings (default: %(default)s)",
     )
     p.add_argument("--no-connect", action="store_true", help="wait for the Connect button")
+    p.add_argument("--open", metavar="RUN", help="start in replay mode on this run folder")
     p.add_argument("--sim-programme", metavar="SPEC", default="", help="simulated load programme")
     p.add_argument(
         "--sim-speed", type=float, default=1.0, metavar="X", help="simulated time scale"
@@ -71,11 +72,17 @@ def run(args: argparse.Namespace) -> int:
                 print(f"could not write {out}")
             window.close()
 
-        window.connect_source()
+        if args.open:
+            window.open_run(args.open)
+            window.play_button.setChecked(True)
+        else:
+            window.connect_source()
         QtCore.QTimer.singleShot(int(args.after * 1000), shoot)
     else:
         show_caution(window)
-        if not args.no_connect:
+        if args.open:
+            window.open_run(args.open)
+        elif not args.no_connect:
             window.connect_source()
     app.exec()
     if args.screenshot:

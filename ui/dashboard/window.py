@@ -46,6 +46,23 @@ _TILES = {
     "settled": ("■  SETTLED — read now", "#00695c"),
     "out-of-range": ("✕  OUT OF RANGE", "#8e244d"),
 }
+# Columns of the replay step table: header, and how to get the text from a ChangeRow.
+_STEP_COLUMNS: tuple[tuple[str, Any], ...] = (
+    ("start (s)", lambda r: f"{r.change.t_start_s:.4f}"),
+    ("from (N)", lambda r: f"{r.observer.initial:.4g}"),
+    ("to (N)", lambda r: f"{r.observer.final:.4g}"),
+    ("rise (ms)", lambda r: _ms(r.observer.rise_time_s)),
+    ("overshoot (%)", lambda r: f"{r.observer.overshoot_pct:.2f}"),
+    ("settle (ms)", lambda r: _ms(r.observer.settling_time_s)),
+    ("k·x settle (ms)", lambda r: _ms(r.static.settling_time_s) if r.static else "—"),
+    ("k·x / estimate", lambda r: f"{r.settling_ratio:.1f}" if r.static else "—"),
+)
+
+
+def _ms(seconds: float) -> str:
+    return f"{seconds * 1e3:.2f}" if math.isfinite(seconds) else "—"
+
+
 _SEVERITY_COLOURS = {"critical": "#8e244d", "warning": "#a86b00", "advisory": "#37474f"}
 _PANEL_BG = "#f4f6f7"
 _MAX_WINDOW_S = 120.0
@@ -140,11 +157,13 @@ class DashboardWindow(QtWidgets.QMainWindow):
         self.runs_root = Path(runs_root)
         self.simulated = simulated or SimulatedSource()
         self.worker: AcquisitionWorker | None = None
-        self.buffer: TraceBuffer | None = None
+        self.buffer: Any = None  # TraceBuffer (live) or RunPlayback (replay)
+        self.playback: Any = None
         self.frozen = False
         self.window_s = 10.0
         self.frames = 0
         self._messages_shown = 0
+        self._last_tick: float | None = None
         self.setWindowTitle("forcelens — live force")
         self.resize(1500, 900)
         pg.setConfigOptions(antialias=False, background="w", foreground=(35, 35, 35))
@@ -165,8 +184,13 @@ class DashboardWindow(QtWidgets.QMainWindow):
         outer.addLayout(self._build_source_row())
         body = QtWidgets.QHBoxLayout()
         outer.addLayout(body, stretch=1)
+        left = QtWidgets.QVBoxLayout()
+        body.addLayout(left, stretch=1)
         self.plots = pg.GraphicsLayoutWidget()
-        body.addWidget(self.plots, stretch=1)
+        left.addWidget(self.plots, stretch=1)
+        self.replay_bar = self._build_replay_bar()
+        left.addWidget(self.replay_bar)
+        self.replay_bar.hide()
         self.p_x = self.plots.addPlot(row=0, col=0)
         self.p_x.setLabel("left", "displacement", units="m")
         _add_grid(self.p_x)
@@ -204,8 +228,53 @@ class DashboardWindow(QtWidgets.QMainWindow):
         self.connect_button = QtWidgets.QPushButton("Connect")
         self.connect_button.clicked.connect(self._toggle_connection)
         row.addWidget(self.connect_button)
+        self.open_button = QtWidgets.QPushButton("Open run…")
+        self.open_button.clicked.connect(self._choose_run)
+        row.addWidget(self.open_button)
         self._show_profile()
         return row
+
+    def _build_replay_bar(self) -> QtWidgets.QWidget:
+        bar = QtWidgets.QFrame()
+        lay = QtWidgets.QVBoxLayout(bar)
+        lay.setContentsMargins(0, 0, 0, 0)
+        row = QtWidgets.QHBoxLayout()
+        self.play_button = QtWidgets.QPushButton("Play")
+        self.play_button.setCheckable(True)
+        self.play_button.toggled.connect(self._play)
+        row.addWidget(self.play_button)
+        row.addWidget(QtWidgets.QLabel("speed"))
+        self.speed_combo = QtWidgets.QComboBox()
+        for factor in (0.1, 0.25, 0.5, 1.0, 2.0, 5.0, 10.0):
+            self.speed_combo.addItem(f"×{factor:g}", factor)
+        self.speed_combo.setCurrentIndex(3)
+        row.addWidget(self.speed_combo)
+        self.slider = QtWidgets.QSlider(QtCore.Qt.Orientation.Horizontal)
+        self.slider.setRange(0, 10_000)
+        self.slider.sliderMoved.connect(self._scrub)
+        row.addWidget(self.slider, stretch=1)
+        self.cursor_label = QtWidgets.QLabel("—")
+        self.cursor_label.setMinimumWidth(150)
+        row.addWidget(self.cursor_label)
+        lay.addLayout(row)
+        row2 = QtWidgets.QHBoxLayout()
+        self.event_combo = QtWidgets.QComboBox()
+        self.event_combo.activated.connect(self._jump_to_event)
+        row2.addWidget(self.event_combo, stretch=1)
+        self.close_run_button = QtWidgets.QPushButton("Back to live")
+        self.close_run_button.clicked.connect(self.close_run)
+        row2.addWidget(self.close_run_button)
+        lay.addLayout(row2)
+        self.step_table = QtWidgets.QTableWidget(0, len(_STEP_COLUMNS))
+        self.step_table.setHorizontalHeaderLabels([c[0] for c in _STEP_COLUMNS])
+        self.step_table.verticalHeader().setVisible(False)
+        self.step_table.setMaximumHeight(150)
+        self.step_table.setEditTriggers(QtWidgets.QAbstractItemView.EditTrigger.NoEditTriggers)
+        self.step_table.horizontalHeader().setSectionResizeMode(
+            QtWidgets.QHeaderView.ResizeMode.Stretch
+        )
+        lay.addWidget(self.step_table)
+        return bar
 
     def _build_panel(self) -> QtWidgets.QWidget:
         panel = QtWidgets.QFrame()
@@ -472,6 +541,114 @@ class DashboardWindow(QtWidgets.QMainWindow):
             item.setFont(font)
             self.alarm_list.addItem(item)
 
+    # ---------------------------------------------------------------- replay
+    def _choose_run(self) -> None:
+        folder = QtWidgets.QFileDialog.getExistingDirectory(
+            self, "Run folder", str(self.runs_root)
+        )
+        if folder:
+            self.open_run(folder)
+
+    def open_run(self, folder: str | Path) -> None:
+        """Replay a recorded run: the same plots, a cursor, the step table and events."""
+        from ui.dashboard.replay import RunPlayback
+
+        try:
+            playback = RunPlayback(folder)
+        except (ValueError, OSError) as exc:
+            QtWidgets.QMessageBox.warning(self, "Open run", str(exc))
+            return
+        if self.worker is not None:
+            self.disconnect_source()
+        self.playback = self.buffer = playback
+        self._last_tick = None
+        self.setWindowTitle(f"forcelens — replay of {playback.run.description['run_id']}")
+        self.event_combo.clear()
+        self.event_combo.addItem(f"jump to an event ({len(playback.events)})", None)
+        for ev in playback.events:
+            self.event_combo.addItem(ev.label(), ev.time_s)
+        self.step_table.setRowCount(len(playback.changes))
+        for i, row in enumerate(playback.changes):
+            for j, (_, text) in enumerate(_STEP_COLUMNS):
+                self.step_table.setItem(i, j, QtWidgets.QTableWidgetItem(text(row)))
+        self.replay_bar.show()
+        duration = playback.end_s - playback.start_s
+        self.window_spin.setValue(min(_MAX_WINDOW_S, max(0.1, round(duration, 1))))
+        cell = playback.profile.cell.name
+        self.profile_label.setText(
+            f"{cell} — profile recorded with the run; "
+            f"{playback.profile.acquisition.sample_rate_hz:g} Hz"
+        )
+        for w in (self.connect_button, self.source, self.profile_button):
+            w.setEnabled(False)
+        self._controls_enabled(False)
+        self.seek(playback.start_s + min(self.window_s, playback.end_s - playback.start_s))
+        self._say(
+            f"replaying {folder}: {playback.time_s.size} samples, {len(playback.changes)} "
+            f"load change(s); estimates {playback.status().state.split('— ')[-1]}"
+        )
+
+    def close_run(self) -> None:
+        """Leave replay mode."""
+        self.play_button.setChecked(False)
+        self.playback = self.buffer = None
+        self.replay_bar.hide()
+        self._show_profile()
+        self.setWindowTitle("forcelens — live force")
+        for w in (self.connect_button, self.source, self.profile_button):
+            w.setEnabled(True)
+
+    def seek(self, time_s: float) -> None:
+        """Put the replay cursor at `time_s` (device time, s)."""
+        if self.playback is None:
+            return
+        self.playback.seek(time_s)
+        self._sync_slider()
+
+    def _sync_slider(self) -> None:
+        p = self.playback
+        span = max(p.end_s - p.start_s, 1e-9)
+        t = float(p.time_s[p.cursor])
+        self.slider.blockSignals(True)
+        self.slider.setValue(round(10_000 * (t - p.start_s) / span))
+        self.slider.blockSignals(False)
+        self.cursor_label.setText(f"t = {t:.3f} s of {p.end_s:.3f} s")
+
+    def _scrub(self, value: int) -> None:
+        p = self.playback
+        if p is not None:
+            self.seek(p.start_s + (p.end_s - p.start_s) * value / 10_000)
+
+    def _jump_to_event(self, index: int) -> None:
+        t = self.event_combo.itemData(index)
+        if t is not None:
+            self.seek(float(t) + 0.5 * self.window_s)  # the event in the middle of the view
+
+    def _play(self, on: bool) -> None:
+        self.play_button.setText("Pause" if on else "Play")
+        self._last_tick = None
+        if (
+            on
+            and self.playback is not None
+            and self.playback.cursor >= self.playback.time_s.size - 1
+        ):
+            self.seek(self.playback.start_s)  # at the end: play from the start
+
+    def _advance_playback(self) -> None:
+        import time
+
+        now = time.monotonic()
+        if not self.play_button.isChecked():
+            self._last_tick = None
+            return
+        if self._last_tick is not None:
+            p = self.playback
+            step = (now - self._last_tick) * float(self.speed_combo.currentData())
+            self.seek(float(p.time_s[p.cursor]) + step)
+            if p.cursor >= p.time_s.size - 1:
+                self.play_button.setChecked(False)
+        self._last_tick = now
+
     def _freeze(self, on: bool) -> None:
         self.frozen = on
         self.freeze_button.setText("Follow live" if on else "Freeze view")
@@ -485,9 +662,13 @@ class DashboardWindow(QtWidgets.QMainWindow):
     # ---------------------------------------------------------------- redraw
     def redraw(self) -> None:
         """One timer tick: update the readout and, unless frozen, the plots."""
-        if self.worker is None or self.buffer is None:
+        if self.playback is not None:
+            self._advance_playback()
+            status = self.playback.status()
+        elif self.worker is not None and self.buffer is not None:
+            status = self.worker.status()
+        else:
             return
-        status = self.worker.status()
         self._show_status(status)
         if self.frozen:
             return
@@ -517,6 +698,9 @@ class DashboardWindow(QtWidgets.QMainWindow):
         if s.rate_hz is not None:
             drift = f" ({s.drift_ppm:+.0f} ppm)" if s.drift_ppm is not None else ""
             self.rate_label.setText(f"{s.rate_hz:.1f} S/s{drift}")
+        elif self.playback is not None:
+            rate = self.playback.profile.acquisition.sample_rate_hz
+            self.rate_label.setText(f"{rate:g} S/s (nominal, recorded run)")
         else:
             self.rate_label.setText("measuring…")
         self.lost_label.setText(f"{s.lost} lost, {s.rejected} bad frames")
