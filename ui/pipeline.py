@@ -67,6 +67,7 @@ TARE_EVENT = "tare"
 RESTART_EVENT = "observer-restart"
 
 _TARE_WINDOW_S = 0.1  # default averaging time of a tare, s
+_TARE_HISTORY_S = 5.0  # how far back a tare requested earlier can reach, s
 
 
 @dataclass(frozen=True)
@@ -167,8 +168,10 @@ class EstimationPipeline:
         self.offset_m = 0.0
         self.tares_applied: list[Tare] = []
         n_window = max(1, round(tare_window_s * profile.acquisition.sample_rate_hz))
+        # Raw displacement and host receive time of the last few seconds, for `tare`.
         self._recent: deque[np.ndarray] = deque()
         self._recent_n = 0
+        self._history = max(n_window, round(_TARE_HISTORY_S * profile.acquisition.sample_rate_hz))
         self._window = n_window
         self._last_seq: int | None = None
         self._t_last: float | None = None
@@ -289,9 +292,9 @@ class EstimationPipeline:
         self.tares_applied.append(tare)
 
     def _remember(self, block: np.ndarray) -> None:
-        self._recent.append(block["displacement_m"].copy())
+        self._recent.append(block[["host_time_s", "displacement_m"]].copy())
         self._recent_n += block.size
-        while self._recent and self._recent_n - self._recent[0].size >= self._window:
+        while self._recent and self._recent_n - self._recent[0].size >= self._history:
             self._recent_n -= self._recent.popleft().size
         self._last_seq = int(block["seq"][-1])
 
@@ -306,14 +309,16 @@ class EstimationPipeline:
         return self._last_seq
 
     # ------------------------------------------------------------------- zero
-    def tare(self, offset_m: float | None = None) -> Tare:
+    def tare(self, offset_m: float | None = None, *, requested_s: float | None = None) -> Tare:
         """Zero from the next sample on; returns the tare (logged as a ``tare`` event).
 
-        Without `offset_m`: the mean raw displacement of the last `tare_window_s`, which
-        is only valid with the cell unloaded and at rest (the caller confirms that with
-        the operator); raises ValueError before any sample has arrived or when the
-        recent samples hold no finite value. With `offset_m`: that offset, m (a zero
-        carried over from before a recording began).
+        Without `offset_m`: the mean raw displacement of the last `tare_window_s` of
+        samples, which is only valid with the cell unloaded and at rest (the caller
+        confirms that with the operator). `requested_s`, on the samples' host clock, is
+        when the operator asked: only samples received by then are averaged, so a load
+        applied while the request waited is not taken for the zero. Raises ValueError
+        before any sample has arrived or when no valid sample qualifies. With
+        `offset_m`: that offset, m (a zero carried over from before a recording began).
         """
         if offset_m is not None:
             if not math.isfinite(offset_m):
@@ -324,10 +329,13 @@ class EstimationPipeline:
         else:
             if self._last_seq is None:
                 raise ValueError("cannot zero yet: no sample has arrived; wait for data")
-            recent = np.concatenate(list(self._recent))[-self._window :]
-            finite = recent[np.isfinite(recent)]
+            recent = np.concatenate(list(self._recent))
+            if requested_s is not None and math.isfinite(requested_s):
+                recent = recent[~(recent["host_time_s"] > requested_s)]  # NaN times stay
+            x = recent["displacement_m"][-self._window :]
+            finite = x[np.isfinite(x)]
             if finite.size == 0:
-                raise ValueError("cannot zero: the recent samples hold no valid displacement")
+                raise ValueError("cannot zero: no valid displacement received before the request")
             tare = Tare(self.samples_in, float(np.mean(finite)), int(finite.size),
                         self._last_seq + 1)  # fmt: skip
             message = f"zero set to {tare.offset_m:.6e} m from {tare.n_samples} samples"

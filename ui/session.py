@@ -111,9 +111,14 @@ class LiveSession:
             self.recording.writer.event("mark", message or "mark", seq=seq)
         return seq
 
-    def tare(self) -> Tare:
-        """Zero on the last samples (cell unloaded and at rest); logged in the run."""
-        return self.pipeline.tare()
+    def tare(self, requested_s: float | None = None) -> Tare:
+        """Zero on the samples received up to `requested_s` (default: now), host clock.
+
+        The cell must be unloaded and at rest; the zero is logged in the run.
+        """
+        return self.pipeline.tare(
+            requested_s=self._clock() if requested_s is None else requested_s
+        )
 
     def start_recording(
         self, root: Path, *, note: str = "", tags: Sequence[str] = ()

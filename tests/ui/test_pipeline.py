@@ -151,3 +151,21 @@ def test_device_restart_restarts_the_observer_and_replays_identically() -> None:
     # After the restart the force is found again: the last 0.2 s within 2 % of 30 N.
     assert np.mean(got["force_n"][-400:]) == pytest.approx(30.0, rel=0.02)
     assert live.observer_totals()["samples"] == samples.size
+
+
+def test_zero_uses_only_samples_received_before_the_request() -> None:
+    # The operator asks for a zero at host time 0.3 s; the request is handled only after
+    # a 30 N load arrived. The zero must come from the unloaded samples.
+    samples, _ = _samples("hold 0.4 0; hold 0.4 30", offset_m=OFFSET_M)
+    samples["host_time_s"] = samples["device_time_s"]  # arrival = conversion time here
+    pipe = EstimationPipeline(PROFILE)
+    pipe.process(samples[: int(0.6 * RATE)])  # already loaded when the request is handled
+    tare = pipe.tare(requested_s=0.3)
+    tol = (
+        4 * PROFILE.transducer.noise_m / np.sqrt(tare.n_samples) + PROFILE.transducer.resolution_m
+    )
+    assert tare.offset_m == pytest.approx(OFFSET_M, abs=tol)
+    late = EstimationPipeline(PROFILE)
+    late.process(samples[: int(0.6 * RATE)])
+    k = PROFILE.plant.stiffness_n_per_m  # without the time limit the load would be zeroed
+    assert late.tare().offset_m == pytest.approx(OFFSET_M + 30.0 / k, rel=0.01)

@@ -138,7 +138,7 @@ class AcquisitionWorker:
 
     def tare(self) -> None:
         """Queue: zero on the latest samples (the caller has confirmed: cell unloaded)."""
-        self._commands.put(("tare", ()))
+        self._commands.put(("tare", (time.monotonic(),)))  # the samples' host clock
 
     def acknowledge(self, alarm_id: str) -> None:
         """Queue: acknowledge an active alarm (it stays until its condition clears)."""
@@ -237,7 +237,7 @@ class AcquisitionWorker:
                     if alarms is not None and alarms.acknowledge(args[0]):
                         self._say(f"alarm {args[0]} acknowledged")
                 elif name == "tare":
-                    tare = session.tare()
+                    tare = session.tare(requested_s=args[0])
                     self._say(f"zero set: {tare.offset_m * 1e3:.6f} mm ({tare.n_samples} samples)")
             except ValueError as exc:
                 self._say(f"{name} refused: {exc}")
