@@ -49,6 +49,17 @@ def test_window_reads_the_simulated_cell_records_and_the_run_replays(
     capsys.readouterr()
     assert main(["replay", str(folder)]) == 0
     assert "identical to the" in capsys.readouterr().out
+    # The same run in the window's replay mode shows the numbers computed live.
+    again = DashboardWindow(default_demo_profile(), runs_root=tmp_path)
+    qtbot.addWidget(again)
+    again.open_run(folder)
+    live = data.streams["estimates"]
+    again.seek(float(live["time_s"][-200]))
+    again.redraw()
+    i = again.playback.cursor
+    assert again.force_label.text() == f"{live['force_n'][i]:.3f} N"
+    assert "identical to live" in again.state_label.text()
+    again.close()
 
 
 def test_closing_the_window_while_recording_closes_the_run(qtbot, tmp_path: Path) -> None:
@@ -91,4 +102,31 @@ def test_replay_mode_shows_the_recorded_numbers(qtbot, tmp_path: Path) -> None:
     assert window.playback.time_s[window.playback.cursor] <= t_event + 0.5 * window.window_s
     window.close_run()
     assert window.playback is None and not window.replay_bar.isVisible()
+    window.close()
+
+
+def test_a_stalled_simulated_cell_raises_an_alarm_that_can_be_acknowledged(
+    qtbot, tmp_path: Path
+) -> None:
+    # Invented programme; the simulated cell stops sending for 0.8 s (simulated time) at
+    # 0.5 s; the stall alarm's limit is 0.5 s of silence.
+    sim = SimulatedSource(programme="hold 3 10", speed=1.0, loop=False, faults="stall@0.5:0.8")
+    window = DashboardWindow(default_demo_profile(), runs_root=tmp_path, simulated=sim)
+    qtbot.addWidget(window)
+    window.show()
+    window.connect_source()
+
+    def alarm_texts() -> list[str]:
+        window.redraw()
+        return [window.alarm_list.item(i).text() for i in range(window.alarm_list.count())]
+
+    qtbot.waitUntil(lambda: any("no sample received" in t for t in alarm_texts()), timeout=20_000)
+    window.ack_button.click()
+    qtbot.waitUntil(lambda: any("(acknowledged)" in t for t in alarm_texts()), timeout=10_000)
+    # The samples lost in the stall are counted and raise the loss alarm too (the
+    # message log keeps every transition, the list only the active ones).
+    qtbot.waitUntil(lambda: window.worker.status().lost >= 1500, timeout=20_000)
+    qtbot.waitUntil(
+        lambda: "alarm raised: 1600 of the last" in window.log.toPlainText(), timeout=10_000
+    )
     window.close()

@@ -7,7 +7,7 @@ import os
 from pathlib import Path
 from typing import Any
 
-__all__ = ["register"]
+__all__ = ["open_dashboard", "register"]
 
 
 def register(subparsers: Any) -> None:
@@ -39,6 +39,20 @@ def register(subparsers: Any) -> None:
     p.add_argument("--screenshot", metavar="PNG", help="save the window to PNG and quit")
     p.add_argument("--after", type=float, default=3.0, metavar="S", help="screenshot delay (s)")
     p.set_defaults(run=run)
+
+
+def open_dashboard(profile: Any, *, profile_path: str = "") -> None:
+    """Open the dashboard on the built-in simulated cell and wait until it is closed."""
+    from pyqtgraph.Qt import QtWidgets
+
+    from ui.dashboard.window import DashboardWindow, show_caution
+
+    app = QtWidgets.QApplication.instance() or QtWidgets.QApplication([])
+    window = DashboardWindow(profile, profile_path=profile_path)
+    window.show()
+    show_caution(window)
+    window.connect_source()
+    app.exec()
 
 
 def run(args: argparse.Namespace) -> int:

@@ -42,6 +42,12 @@ def register(subparsers: Any) -> None:
         "--speed", type=float, default=1.0, help="simulated time per real second (default: 1)"
     )
     p.add_argument("--no-plot", action="store_true", help="skip the PNG plot")
+    p.add_argument(
+        "--no-window",
+        action="store_true",
+        help="do not open the live dashboard afterwards (it opens only when a display is "
+        "available)",
+    )
     p.set_defaults(run=run)
 
 
@@ -139,7 +145,23 @@ def run(args: argparse.Namespace) -> int:
         )
         written.append("demo.png")
     print(f"wrote {', '.join(written)} to {out_dir.resolve()}")
+    if not args.no_window and display_available():
+        print("opening the live dashboard on the simulated cell (close the window to end)")
+        from ui.commands.dashboard import open_dashboard
+
+        open_dashboard(profile, profile_path=args.profile or "")
     return 0
+
+
+def display_available() -> bool:
+    """True when a desktop display is there (X11, Wayland, or Windows and macOS)."""
+    import os
+
+    if os.environ.get("QT_QPA_PLATFORM", "") in ("offscreen", "minimal"):
+        return False
+    if sys.platform in ("win32", "darwin"):
+        return True
+    return bool(os.environ.get("DISPLAY") or os.environ.get("WAYLAND_DISPLAY"))
 
 
 def _zoom_window(programme: Any) -> tuple[float, float] | None:
