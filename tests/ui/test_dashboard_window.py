@@ -12,8 +12,10 @@ from ui.cli import main
 from ui.dashboard.window import DashboardWindow
 from ui.dashboard.worker import SimulatedSource
 
-# Invented programme: unloaded 0.5 s, then 40 N; simulated cell 4x faster than real time.
-SIM = SimulatedSource(programme="hold 0.5 0; hold 4 40", speed=4.0, loop=False)
+# Invented programme: unloaded 1 s, then 40 N; simulated cell 2x faster than real time, so
+# the zero asked for after 0.2 s has 0.4 s of real time before the load arrives, even on a
+# busy machine.
+SIM = SimulatedSource(programme="hold 1 0; hold 3 40", speed=2.0, loop=False)
 
 
 def test_window_reads_the_simulated_cell_records_and_the_run_replays(
@@ -26,13 +28,13 @@ def test_window_reads_the_simulated_cell_records_and_the_run_replays(
     worker = window.worker
     assert worker is not None
     qtbot.waitUntil(lambda: worker.status().samples > 400, timeout=20_000)
-    window.zero_now()  # unloaded and at rest during the first 0.5 s (simulated)
+    window.zero_now()  # unloaded and at rest during the first 1 s (simulated)
     window.note_edit.setText("dashboard test (invented data)")
     window.record_button.click()
     qtbot.waitUntil(lambda: worker.status().recording != "", timeout=10_000)
     window.mark_button.click()
     # After the 40 N step settles the readout shows it within 2 % (common practice band).
-    qtbot.waitUntil(lambda: worker.status().time_s > 1.5, timeout=20_000)
+    qtbot.waitUntil(lambda: worker.status().time_s > 2.0, timeout=20_000)
     window.redraw()  # the readout as of now (the timer may not have ticked yet)
     text = window.force_label.text()
     assert text.endswith(" N") and float(text.split()[0]) == pytest.approx(40.0, rel=0.02)
@@ -46,6 +48,9 @@ def test_window_reads_the_simulated_cell_records_and_the_run_replays(
     data = read_run(folder)
     assert data.closed and data.description["operator_note"] == "dashboard test (invented data)"
     assert {"tare", "mark"} <= {e["kind"] for e in data.events}
+    # The zero came from the unloaded cell (40 N would be 1e-4 m on the demo cell).
+    (tare,) = [e for e in data.events if e["kind"] == "tare"]
+    assert abs(tare["offset_m"]) < 1e-6
     capsys.readouterr()
     assert main(["replay", str(folder)]) == 0
     assert "identical to the" in capsys.readouterr().out
