@@ -69,6 +69,79 @@ def time_frames(draw, widget, frames: int, app) -> tuple[float, float]:
     return 1.0 / float(np.median(times)), float(times.max())
 
 
+def live_pass(seconds: float, *, external: bool) -> tuple[float, float, float]:
+    """The real thing: the window on its timer with the acquisition worker running.
+
+    The simulated cell (invented data) runs at 10 kHz in this process, so the worker,
+    the cell and the GUI share one interpreter (the worst case for the GUI thread).
+    Returns frames per second, the longest gap between two timer ticks (the GUI thread
+    blocked) and the share of samples received.
+    """
+    import dataclasses
+
+    from pyqtgraph.Qt import QtCore
+
+    from ui.dashboard.worker import SimulatedSource
+
+    app = QtWidgets.QApplication.instance()
+    base = default_demo_profile()
+    acq = dataclasses.replace(base.acquisition, sample_rate_hz=RATE_HZ, framing="binary-24")
+    profile = base.with_updates(acquisition=acq)
+    sim = None
+    port = None
+    if external:  # the cell in its own process, as a real device would be
+        import re
+        import subprocess
+        import tempfile
+
+        from estimator.profile import save_profile
+
+        path = os.path.join(tempfile.mkdtemp(), "cell.toml")
+        save_profile(profile, path)
+        sim = subprocess.Popen(
+            [sys.executable, "-m", "ui.cli", "simulate", "--profile", path,
+             "--programme", PROGRAMME, "--loop", "--start-delay", "1.0"],
+            stdout=subprocess.PIPE, text=True,
+        )  # fmt: skip
+        port = re.search(r"on (\S+)", sim.stdout.readline()).group(1)
+    window = DashboardWindow(profile, simulated=SimulatedSource(programme=PROGRAMME), port=port)
+    window.resize(1500, 900)
+    window.window_s = SPAN_S
+    window.show()
+    window.connect_source()
+    if external:
+        time.sleep(1.5)  # the simulator's start delay
+    ticks: list[float] = []
+    probe = QtCore.QTimer()
+    probe.setInterval(5)
+    probe.timeout.connect(lambda: ticks.append(time.perf_counter()))
+    probe.start()
+    start = time.perf_counter()
+    frames0 = window.frames
+    while time.perf_counter() - start < seconds:
+        app.processEvents(QtCore.QEventLoop.ProcessEventsFlag.AllEvents, 50)
+    fps = (window.frames - frames0) / (time.perf_counter() - start)
+    ticks_a = np.array(ticks)
+    gaps = np.diff(ticks_a[10:]) if len(ticks) > 12 else np.array([np.nan])
+    if os.environ.get("BENCH_VERBOSE"):
+        top = np.argsort(gaps)[-5:]
+        print(
+            "  longest gaps (ms) and when (s):",
+            [(round(gaps[i] * 1e3, 1), round(ticks_a[10 + i] - start, 2)) for i in top],
+        )
+    status = window.worker.status()
+    received = status.samples / (status.time_s * RATE_HZ) if status.time_s > 0 else 0.0
+    probe.stop()
+    window.close()
+    if sim is not None:
+        sim.terminate()
+        sim.wait(10)
+    return fps, float(np.max(gaps)), received
+
+
+PROGRAMME = "hold 1 0; hold 2 30; hold 2 90; hold 2 50; hold 3 0"  # invented, 10 s
+
+
 def main(argv: list[str]) -> int:
     frames = int(argv[1]) if len(argv) > 1 else 60
     app = QtWidgets.QApplication.instance() or QtWidgets.QApplication([])
@@ -94,9 +167,9 @@ def main(argv: list[str]) -> int:
 
     def draw_all() -> None:
         t, x, f, u, kx = window.buffer.window(SPAN_S)
-        window.c_x.setData(t, x)
-        window.c_force.setData(t, f)
-        window.c_static.setData(t, kx)
+        window.c_x.setData(t, x, connect="all")
+        window.c_force.setData(t, f, connect="all")
+        window.c_static.setData(t, kx, connect="all")
         lo_c.setData(t, f - 2 * u)
         hi_c.setData(t, f + 2 * u)
 
@@ -110,6 +183,13 @@ def main(argv: list[str]) -> int:
     print(f"ratio: {fps_env / fps_all:.1f}x faster; target >= 30 frames/s and <= 50 ms per frame")
     window.worker = None
     window.close()
+    for external, where in ((True, "its own process"), (False, "this process")):
+        fps_live, worst_gap, received = live_pass(12.0, external=external)
+        print(
+            f"live, 10 kHz simulated cell in {where}: {fps_live:.1f} frames/s, GUI thread "
+            f"longest gap between 5 ms ticks {worst_gap * 1e3:.1f} ms, samples received "
+            f"{100 * received:.1f} %"
+        )
     return 0
 
 
