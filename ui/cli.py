@@ -25,6 +25,7 @@ COMMAND_MODULES = (
     "export",
     "ports",
     "calibrate",
+    "identify",
     "simulate",
     "profile",
 )

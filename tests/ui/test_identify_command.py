@@ -1,0 +1,38 @@
+"""``forcelens identify`` on the demo run in recordings/ (invented data)."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import pytest
+
+from estimator.profile import default_demo_profile, load_profile
+from ui.cli import main
+
+RUN = sorted((Path(__file__).resolve().parents[2] / "recordings").glob("*/run.json"))[0].parent
+DEMO = Path(__file__).resolve().parents[2] / "estimator" / "data" / "demo-cell.toml"
+
+
+def test_step_identification_recovers_the_simulated_cell_and_writes_a_profile(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    # The demo run's 0 → 50 N step at 0.3 s. The simulated cell (an exact integrator of
+    # the invented demo plant: 0.4 kg, 4e5 N/m, ζ = 0.12) is the reference; tolerances are
+    # a few of the stated standard uncertainties plus the simulator's own discretisation.
+    out = tmp_path / "cell.toml"
+    args = ["identify", str(RUN), "--test", "step", "--from", "0.25", "--to", "0.99"]
+    args += ["--step-force-n", "50", "--profile", str(DEMO), "--out", str(out)]
+    assert main(args) == 0
+    text = capsys.readouterr().out
+    assert "residual check passed" in text and "standard uncertainties, k = 1" in text
+    plant = load_profile(out).plant
+    truth = default_demo_profile().plant
+    assert plant.stiffness_n_per_m == pytest.approx(truth.stiffness_n_per_m, rel=1e-3)
+    assert plant.mass_kg == pytest.approx(truth.mass_kg, rel=1e-3)
+    assert plant.damping_ratio == pytest.approx(truth.damping_ratio, rel=1e-2)
+    assert "step identification" in load_profile(out).cell.source
+
+
+def test_out_needs_a_profile(capsys: pytest.CaptureFixture[str]) -> None:
+    assert main(["identify", str(RUN), "--test", "step", "--out", "x.toml"]) == 1
+    assert "give --profile too" in capsys.readouterr().err
