@@ -508,6 +508,8 @@ class RunWriter:
                     "lines": self._event_lines,
                     "sha256": self._events.sha256.hexdigest(),
                 },
+                # run.json too: its copy of the profile decides every replayed number.
+                "description_sha256": _sha256_of(self._folder / DESCRIPTION_FILE),
                 "summary": summary_dict,
             }
             self._close_files()
@@ -988,6 +990,13 @@ def _closing_problems(info: RunInfo, event_lines: int | None, check_hash: bool) 
                 f"{path}: SHA-256 differs from {closing_path.name}; the file was changed "
                 "after the run was closed (tampered or damaged)"
             )
+    description_sha = info.closing.get("description_sha256")
+    description = info.folder / DESCRIPTION_FILE
+    if check_hash and description_sha is not None and _sha256_of(description) != description_sha:
+        problems.append(
+            f"{description}: SHA-256 differs from {closing_path.name}; the run description "
+            "(with its copy of the cell profile) was changed after the run was closed"
+        )
     events_entry = info.closing.get("events")
     if events_entry is not None:
         path = info.folder / EVENTS_FILE

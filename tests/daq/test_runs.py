@@ -372,6 +372,17 @@ def test_damaged_runs_raise_and_verify_reports(tmp_path: Path, case: str) -> Non
     assert "NOT OK" in report.text()
 
 
+def test_a_changed_description_is_caught(tmp_path: Path) -> None:
+    # run.json holds the profile copy a replay uses: its hash is in closing.json.
+    folder = tmp_path / "run"
+    write_run(folder)
+    _edit_json(folder / "run.json", lambda d: d.update(operator_note="edited later"))
+    with pytest.raises(RunFormatError, match=r"run\.json: SHA-256 differs"):
+        read_run(folder)
+    report = verify_run(folder)
+    assert not report.ok and any("run description" in p for p in report.problems)
+
+
 def test_hash_check_can_be_skipped(tmp_path: Path) -> None:
     folder = tmp_path / "run"
     written = write_run(folder)
