@@ -21,6 +21,8 @@ COMMAND_MODULES = (
     "dashboard",
     "replay",
     "verify",
+    "report",
+    "audit",
     "runs",
     "export",
     "ports",

@@ -148,7 +148,9 @@ class LiveSession:
         """Seal the current recording (estimation goes on); returns its summary."""
         if self.recording is None:
             raise ValueError("not recording")
-        summary = {"reason": reason, **self.summary()}
+        final_tick = self._clock()
+        self.pipeline.tick(final_tick)
+        summary = {"reason": reason, **self.summary(), "final_tick_host_s": final_tick}
         recording, self.recording = self.recording, None
         self.pipeline.recorder = None
         recording.close(status, summary)
@@ -183,12 +185,16 @@ class LiveSession:
         """Stop reading, estimate what is left, seal the run; returns the summary (idempotent)."""
         if not self._closed:
             self._closed = True
+            final_tick = None
             try:
                 self.reader.stop()
                 if status != "failed":
                     self.poll()
+                    # A last look for a silence at the very end; a replay repeats it.
+                    final_tick = self._clock()
+                    self.pipeline.tick(final_tick)
             finally:
-                summary = {"reason": reason, **self.summary()}
+                summary = {"reason": reason, **self.summary(), "final_tick_host_s": final_tick}
                 if self.recording is not None:
                     self.recording.close(status, summary)
             self._summary = summary

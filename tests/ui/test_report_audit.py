@@ -1,0 +1,114 @@
+"""``forcelens report`` and ``forcelens audit`` on runs recorded in-process (invented data)."""
+
+from __future__ import annotations
+
+import json
+import math
+from pathlib import Path
+
+import pytest
+
+from daq.programme import parse_programme
+from daq.samples import empty_block
+from estimator.profile import default_demo_profile
+from ui.cli import main
+from ui.pipeline import EstimationPipeline
+from ui.recording import open_recording
+from ui.wiring import scaling_for, simulated_cell_for
+
+PROFILE = default_demo_profile()
+
+
+def _record(root: Path) -> Path:
+    """2 s of an invented 0 → 30 → 0 N programme, recorded like forcelens live does."""
+    programme = parse_programme("hold 0.6 0; hold 0.8 30; hold 0.6 0")
+    run = simulated_cell_for(PROFILE, seed=6).generate(programme)
+    samples = empty_block(len(run))
+    samples["seq"] = run.seq
+    samples["device_time_s"] = run.device_time_us * 1e-6
+    samples["host_time_s"] = math.nan
+    samples["counts"] = run.counts
+    samples["displacement_m"] = scaling_for(PROFILE).to_metres(run.counts)
+    rec = open_recording(root, PROFILE, note="report test (invented data)")
+    pipe = EstimationPipeline(PROFILE, recorder=rec.writer)
+    for i in range(0, samples.size, 113):
+        pipe.process(samples[i : i + 113])
+    rec.close("complete", {"samples": int(samples.size)})
+    return rec.folder
+
+
+def test_report_is_self_contained_and_an_untouched_run_audits_identical(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    folder = _record(tmp_path / "runs")
+    assert main(["report", str(folder)]) == 0
+    out = folder.parent / f"{folder.name}-report"
+    page = (out / "report.html").read_text()
+    assert "data:image/png;base64," in page and 'src="plot.png"' not in page
+    assert "U = 2u (k = 2" in page and "forcelens report" in page and "Caution" not in page
+    assert "Force testing can hurt people" in page
+    figures = json.loads((out / "figures.json").read_text())
+    assert len(figures["changes"]) == 2 and figures["changes"][0]["after_n"] == pytest.approx(
+        30.0, rel=0.01
+    )
+    assert (out / "report.pdf").read_bytes()[:5] == b"%PDF-"
+    capsys.readouterr()
+    assert main(["audit", str(folder)]) == 0
+    text = capsys.readouterr().out
+    assert "identical" in text and "report figures" in text
+
+
+def test_audit_names_an_altered_sample(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    folder = _record(tmp_path / "runs")
+    assert main(["report", str(folder)]) == 0
+    path = folder / "samples.bin"
+    data = bytearray(path.read_bytes())
+    data[44 * 500 + 36] ^= 0x10  # displacement_m of sample 500 (offset 36 in the record)
+    path.write_bytes(bytes(data))
+    capsys.readouterr()
+    assert main(["audit", str(folder)]) == 1
+    text = capsys.readouterr().out
+    assert "a sample was altered after the run was closed" in text
+    assert "the samples differ from those the report was made from" in text
+
+
+def test_audit_names_a_swapped_profile(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    folder = _record(tmp_path / "runs")
+    desc = json.loads((folder / "run.json").read_text())
+    desc["profile_toml"] = desc["profile_toml"].replace(
+        "damping_ratio = 0.12", "damping_ratio = 0.15"
+    )
+    (folder / "run.json").write_text(json.dumps(desc))
+    capsys.readouterr()
+    assert main(["audit", str(folder)]) == 1
+    text = capsys.readouterr().out
+    assert "profile, was edited after closing" in text
+    assert "replayed estimates differ from those computed live" in text
+
+
+def test_audit_names_a_truncated_run(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    folder = _record(tmp_path / "runs")
+    path = folder / "samples.bin"
+    path.write_bytes(path.read_bytes()[: 44 * 1000])
+    capsys.readouterr()
+    assert main(["audit", str(folder)]) == 1
+    text = capsys.readouterr().out
+    assert "truncated after it was closed" in text
+    assert "the run cannot be replayed" in text
+
+
+def test_audit_with_another_profile_says_so(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    import dataclasses
+
+    from estimator.profile import save_profile
+
+    folder = _record(tmp_path / "runs")
+    other = tmp_path / "other.toml"
+    save_profile(
+        PROFILE.with_updates(plant=dataclasses.replace(PROFILE.plant, damping_ratio=0.2)), other
+    )
+    capsys.readouterr()
+    assert main(["audit", str(folder), "--profile", str(other)]) == 1
+    assert "profile swapped on purpose (--profile)" in capsys.readouterr().out
