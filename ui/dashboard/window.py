@@ -83,6 +83,24 @@ def _runs(x: np.ndarray) -> list[tuple[int, int]]:
     return list(itertools.pairwise(bounds))
 
 
+def _fit_y(plot: Any, curves: list[np.ndarray]) -> None:
+    """Fit the y range to the curves, changing it only when they leave it or use less
+    than half of it: a steady range keeps the axis (and its costly labels) unchanged."""
+    values = [c[np.isfinite(c)] for c in curves]
+    values = [v for v in values if v.size]
+    if not values:
+        return
+    lo = min(float(v.min()) for v in values)
+    hi = max(float(v.max()) for v in values)
+    span = max(hi - lo, 1e-12 * max(1.0, abs(hi)), 1e-15)
+    (cur_lo, cur_hi) = plot.getViewBox().viewRange()[1]
+    inside = cur_lo <= lo and hi <= cur_hi
+    if inside and (hi - lo) >= 0.5 * (cur_hi - cur_lo):
+        return
+    pad = 0.08 * span
+    plot.setYRange(lo - pad, hi + pad, padding=0.0)
+
+
 def _line(curve: Any, x: np.ndarray, y: np.ndarray) -> None:
     """Set a curve, leaving gaps in the data unconnected."""
     connect = np.ones(x.size, dtype=bool)
@@ -679,11 +697,18 @@ class DashboardWindow(QtWidgets.QMainWindow):
         t1 = float(t[-1])
         t0 = t1 - self.window_s
         bins = max(100, int(self.p_f.getViewBox().width()))
-        _line(self.c_x, *line_envelope(t, x, t0, t1, bins))
-        _line(self.c_force, *line_envelope(t, f, t0, t1, bins))
+        xs = line_envelope(t, x, t0, t1, bins)
+        fs = line_envelope(t, f, t0, t1, bins)
+        _line(self.c_x, *xs)
+        _line(self.c_force, *fs)
+        shown = [fs[1]]
         if self.c_static.isVisible():
-            _line(self.c_static, *line_envelope(t, kx, t0, t1, bins))
+            ks = line_envelope(t, kx, t0, t1, bins)
+            _line(self.c_static, *ks)
+            shown.append(ks[1])
         self.band.set_band(*band_envelope(t, f - 2.0 * u, f + 2.0 * u, t0, t1, bins))
+        _fit_y(self.p_x, [xs[1]])
+        _fit_y(self.p_f, shown)
         # Until the window is full the trace grows from the left edge.
         left = max(t0, float(t[0]))
         self.p_f.setXRange(left, left + self.window_s, padding=0.0)
