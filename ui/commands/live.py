@@ -161,6 +161,8 @@ def _acquire(args: argparse.Namespace, profile: Any, port: str, cell: Any) -> in
         )
         print(f"recording to {recording.folder}", flush=True)
     session = LiveSession(profile, port, recording=recording)
+    if session.pipeline.monitor is not None:
+        print(f"reading rule: {session.pipeline.monitor.describe()}", flush=True)
     status = StatusLine(enabled=not args.quiet)
     console = Console(session)
     typed = None
