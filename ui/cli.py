@@ -28,6 +28,7 @@ COMMAND_MODULES = (
     "ports",
     "calibrate",
     "identify",
+    "check",
     "simulate",
     "profile",
 )
