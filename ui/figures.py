@@ -114,7 +114,12 @@ def compute_figures(replayed: Replayed) -> dict[str, Any]:
         }
         for r in rows
     ]
+    from estimator.uncertainty import ForceUncertainty
+
     closing = replayed.data.closing or {}
+    u_obs = float(np.median(est["force_u_n"][ok])) if ok.any() else math.nan
+    top = max((abs(c["after_n"]) for c in changes), default=0.0)
+    budget = ForceUncertainty.from_profile(replayed.profile).budget(top, u_obs)
     return _clean(
         {
             "format": FIGURES_FORMAT,
@@ -130,6 +135,15 @@ def compute_figures(replayed: Replayed) -> dict[str, Any]:
             "recorded_samples_sha256": closing.get("streams", {}).get("samples", {}).get("sha256"),
             "estimates_sha256": hashlib.sha256(est.tobytes()).hexdigest(),
             "changes": changes,
+            "uncertainty": {
+                "force_n": budget.force_n,
+                "observer_n": budget.observer_n,
+                "calibration_n": budget.calibration_n,
+                "resolution_n": budget.resolution_n,
+                "model_n": budget.model_n,
+                "combined_n": budget.combined_n,
+                "expanded_n_k2": budget.expanded_n,
+            },
             "settling": [e for e in replayed.events if e["kind"] == "settling"],
             "alarms": [e for e in replayed.events if e["kind"] == "alarm"],
         }

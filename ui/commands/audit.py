@@ -185,7 +185,7 @@ def _compare_figures(stored: dict[str, Any], now: dict[str, Any], found: _Findin
             f", now {now['software_version']})"
         )
     cause = "; ".join(causes) or "unexplained: same samples, profile and software version"
-    for key in ("samples", "estimates_sha256", "changes", "settling", "alarms"):
+    for key in ("samples", "estimates_sha256", "changes", "uncertainty", "settling", "alarms"):
         if key in ("settling", "alarms"):
             a, b = _strip(stored.get(key, [])), _strip(now[key])
         else:

@@ -159,6 +159,10 @@ the start of the change, "settle50" from its 50 % crossing (IEEE Std 181).</p>
 <table class="grid"><tr><th>start s</th><th>from N</th><th>to N</th><th>rise ms</th>
 <th>overshoot %</th><th>settle ms</th><th>settle50 ms</th><th>k·x settle ms</th>
 <th>k·x / estimate</th></tr>{rows}</table>
+<h2>Uncertainty of a settled reading</h2>
+<p>GUM law of propagation (JCGM 100:2008) at the largest settled level, standard
+uncertainties (k = 1) unless stated:</p>
+<pre>{e(_budget_text(figures["uncertainty"]))}</pre>
 <h2>Alarms</h2>
 <ul>{alarms or "<li>none</li>"}</ul>
 <h2>Provenance</h2>
@@ -168,6 +172,20 @@ the start of the change, "settle50" from its 50 % crossing (IEEE Std 181).</p>
 <p>Reproduce this report with <code>{e(command)}</code>; check it with
 <code>forcelens audit {e(command.split(" ", 2)[2])}</code>.</p>
 """
+
+
+def _budget_text(u: dict[str, Any]) -> str:
+    rows = [
+        ("observer (noise, force model)", u["observer_n"]),
+        ("calibration (stiffness)", u["calibration_n"]),
+        ("resolution (one count, rectangular)", u["resolution_n"]),
+        ("model (relative term)", u["model_n"]),
+        ("combined u_c", u["combined_n"]),
+        ("expanded U (k = 2, about 95 %)", u["expanded_n_k2"]),
+    ]
+    lines = [f"at F = {u['force_n']:.6g} N"]
+    lines += [f"  {name:38s} {_cell(value, '.3g')} N" for name, value in rows]
+    return "\n".join(lines)
 
 
 def _page(body: str) -> str:
