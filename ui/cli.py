@@ -28,6 +28,7 @@ COMMAND_MODULES = (
     "ports",
     "calibrate",
     "identify",
+    "tune",
     "check",
     "simulate",
     "profile",

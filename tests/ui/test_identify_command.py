@@ -36,3 +36,18 @@ def test_step_identification_recovers_the_simulated_cell_and_writes_a_profile(
 def test_out_needs_a_profile(capsys: pytest.CaptureFixture[str]) -> None:
     assert main(["identify", str(RUN), "--test", "step", "--out", "x.toml"]) == 1
     assert "give --profile too" in capsys.readouterr().err
+
+
+def test_tune_estimates_the_noise_and_writes_a_tuned_profile(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    out = tmp_path / "tuned.toml"
+    args = ["tune", str(RUN), "--quiet-from", "0.05", "--quiet-to", "0.28", "--out", str(out)]
+    assert main(args) == 0
+    text = capsys.readouterr().out
+    assert "with re-acquisition" in text and "U = " in text and "(k = 2)" in text
+    tuned = load_profile(out)
+    # The demo run's simulated noise is 50 nm (invented); 460 samples give a relative
+    # standard error of about 3.3 % on a standard deviation: 15 % is over four of those.
+    assert tuned.transducer.noise_m == pytest.approx(5e-8, rel=0.15)
+    assert "tuned" in tuned.cell.source and tuned.observer.force_bandwidth_hz > 0
