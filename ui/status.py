@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import sys
 import time
-from typing import TextIO
+from typing import Any, TextIO
 
 import numpy as np
 
@@ -21,8 +21,12 @@ def format_status(
     lost: int = 0,
     rejected: int = 0,
     recording: str = "",
+    budget: Any = None,
 ) -> str:
     """One status line from the latest estimates (ESTIMATE_DTYPE, (n,), n ≥ 1).
+
+    With `budget` (an `estimator.uncertainty.ForceUncertainty`) U is the expanded
+    combined uncertainty; without it, the observer's part only.
 
     Shows device time, force ± U with k = 2, displacement, the settling state (in
     brackets), the connection state, the
@@ -30,9 +34,12 @@ def format_status(
     and rejected samples.
     """
     e = est[-1]
+    u = float(e["force_u_n"])
+    if budget is not None:  # the GUM combination of observer, calibration and resolution
+        u = float(budget.combined_n(e["force_n"], u))
     parts = [
         f"t {e['time_s']:8.3f} s",
-        f"F {e['force_n']:10.4f} N ± {2.0 * e['force_u_n']:.4f} N (U, k=2)",
+        f"F {e['force_n']:10.4f} N ± {2.0 * u:.4f} N (U, k=2)",
         f"x {e['displacement_m'] * 1e3:9.6f} mm",
     ]
     if settling:

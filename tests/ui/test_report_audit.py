@@ -45,7 +45,7 @@ def test_report_is_self_contained_and_an_untouched_run_audits_identical(
     out = folder.parent / f"{folder.name}-report"
     page = (out / "report.html").read_text()
     assert "data:image/png;base64," in page and 'src="plot.png"' not in page
-    assert "U = 2u (k = 2" in page and "forcelens report" in page and "Caution" not in page
+    assert "U = 2u_c (k = 2" in page and "forcelens report" in page and "Caution" not in page
     assert "Force testing can hurt people" in page
     assert "expanded U (k = 2, about 95 %)" in page  # the GUM budget of a settled reading
     figures = json.loads((out / "figures.json").read_text())

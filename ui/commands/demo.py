@@ -63,6 +63,7 @@ def run(args: argparse.Namespace) -> int:
     from estimator.observer import ForceObserver, concat_estimates
     from estimator.profile import default_demo_profile, load_profile
     from estimator.settling import is_settled
+    from estimator.uncertainty import ForceUncertainty
 
     profile = load_profile(args.profile) if args.profile else default_demo_profile()
     out_dir = Path(args.out)
@@ -85,6 +86,7 @@ def run(args: argparse.Namespace) -> int:
     k = pl.stiffness_n_per_m
     samples, estimates = [], []
     live = _StatusLine()
+    live.budget = ForceUncertainty.from_profile(profile)
     recent = max(1, round(_HOLD_S * acq.sample_rate_hz))
     with PtyCell(truth, speed=args.speed) as pty:  # the port exists from here on
         print(f"simulated cell on {pty.port_name}; connecting through pyserial")
@@ -118,7 +120,10 @@ def run(args: argparse.Namespace) -> int:
         f"re-acquired {observer.counters.reacquired}"
     )
     truth_f = np.asarray(truth.true_force_n)[got["seq"]]
-    table = _summary(programme, got["device_time_s"], est, k * got["displacement_m"], truth_f)
+    budget = ForceUncertainty.from_profile(profile)  # GUM: observer, calibration, resolution
+    table = _summary(
+        programme, got["device_time_s"], est, k * got["displacement_m"], truth_f, budget
+    )
     print(table)
     from ui.estimates_csv import write_estimates_csv
 
@@ -134,7 +139,7 @@ def run(args: argparse.Namespace) -> int:
                 time_s=est["time_s"],
                 displacement_m=got["displacement_m"],
                 force_n=est["force_n"],
-                force_expanded_u_n=2.0 * est["force_u_n"],
+                force_expanded_u_n=budget.expanded_n(est["force_n"], est["force_u_n"]),
                 static_force_n=k * got["displacement_m"],
                 truth_time_s=got["device_time_s"],
                 truth_force_n=truth_f,
@@ -173,7 +178,7 @@ def _zoom_window(programme: Any) -> tuple[float, float] | None:
     return (t0 - 0.01, t0 + 0.06)
 
 
-def _summary(programme: Any, t: Any, est: Any, kx: Any, truth_f: Any) -> str:
+def _summary(programme: Any, t: Any, est: Any, kx: Any, truth_f: Any, budget: Any) -> str:
     """Per load step: applied, estimate, k·x, and time to enter and stay within 2 %."""
     import numpy as np
 
@@ -192,7 +197,7 @@ def _summary(programme: Any, t: Any, est: Any, kx: Any, truth_f: Any) -> str:
         band = 0.02 * abs(f_to - f_from)  # 2 % of the step (common practice)
         tail = (t >= t0 + 0.7 * (t_end - t0)) & (t < t_end)
         f_obs = float(np.mean(est["force_n"][tail]))
-        u_obs = 2.0 * float(np.mean(est["force_u_n"][tail]))
+        u_obs = float(np.mean(budget.expanded_n(est["force_n"][tail], est["force_u_n"][tail])))
         f_kx = float(np.mean(kx[tail]))
         ts_obs = time_to_settle(t, est["force_n"], t0, t_end, f_to, band)
         ts_kx = time_to_settle(t, kx, t0, t_end, f_to, band)
@@ -214,6 +219,7 @@ class _StatusLine:
 
     def __init__(self) -> None:
         self.tty = sys.stdout.isatty()
+        self.budget: Any = None
         self.last = 0.0
         self.period = 0.1 if self.tty else 0.5
 
@@ -232,7 +238,7 @@ class _StatusLine:
         settled = is_settled(tail["force_n"], float(e["force_u_n"]), _BAND)
         state = "settled " if settled else "changing"
         line = (
-            f"t {e['time_s']:6.2f} s   F {e['force_n']:9.3f} N ± {2 * e['force_u_n']:.3f} N "
+            f"t {e['time_s']:6.2f} s   F {e['force_n']:9.3f} N ± {self.u_expanded(e):.3f} N "
             f"(U, k=2)   x {e['displacement_m'] * 1e3:8.5f} mm   {state}   "
             f"lost {decoder.samples_lost}  bad lines {decoder.lines_malformed}"
         )
@@ -244,3 +250,9 @@ class _StatusLine:
     def finish(self) -> None:
         if self.tty:
             print()
+
+    def u_expanded(self, e: Any) -> float:
+        """U (k = 2) of one estimate: the GUM combination when a budget is set."""
+        if self.budget is None:
+            return 2.0 * float(e["force_u_n"])
+        return float(self.budget.expanded_n(e["force_n"], e["force_u_n"]))

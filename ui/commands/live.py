@@ -145,6 +145,7 @@ def _simulated_cell(args: argparse.Namespace, profile: Any) -> Any:
 
 
 def _acquire(args: argparse.Namespace, profile: Any, port: str, cell: Any) -> int:
+    from estimator.uncertainty import ForceUncertainty
     from ui.console import HELP, Console, start_line_reader
     from ui.recording import open_recording
     from ui.session import LiveSession
@@ -164,6 +165,7 @@ def _acquire(args: argparse.Namespace, profile: Any, port: str, cell: Any) -> in
     if session.pipeline.monitor is not None:
         print(f"reading rule: {session.pipeline.monitor.describe()}", flush=True)
     status = StatusLine(enabled=not args.quiet)
+    budget = ForceUncertainty.from_profile(profile)
     console = Console(session)
     typed = None
     if sys.stdin.isatty() and not args.quiet:
@@ -206,6 +208,7 @@ def _acquire(args: argparse.Namespace, profile: Any, port: str, cell: Any) -> in
                             lost=st.decoder.samples_lost,
                             rejected=st.decoder.rejected,
                             recording=recording.run_id if recording else "",
+                            budget=budget,
                         )
                     )
                 while typed is not None and not typed.empty():

@@ -71,6 +71,7 @@ def run(args: argparse.Namespace) -> int:
 def _plot(replayed: Any, path: Path) -> Path:
     import numpy as np
 
+    from estimator.uncertainty import ForceUncertainty
     from ui.plots import RunTraces, render_run_png
 
     est = replayed.estimates
@@ -81,7 +82,9 @@ def _plot(replayed: Any, path: Path) -> Path:
             time_s=est["time_s"],
             displacement_m=x,
             force_n=est["force_n"],
-            force_expanded_u_n=2.0 * est["force_u_n"],
+            force_expanded_u_n=ForceUncertainty.from_profile(replayed.profile).expanded_n(
+                est["force_n"], est["force_u_n"]
+            ),
             static_force_n=k * x,
             title=f"run {replayed.data.description['run_id']}",
         ),
@@ -150,7 +153,8 @@ accredited calibration.</p>
 <tr><th>samples</th><td>{figures["samples"]}</td></tr>
 </table>
 <h2>Displacement and force</h2>
-<p>Force with its expanded uncertainty band U = 2u (k = 2, about 95 %); the static
+<p>Force with its expanded uncertainty band U = 2u_c (k = 2, about 95 %; u_c combines the
+observer, the calibration and the resolution by the GUM law of propagation); the static
 conversion k·x for comparison.</p>
 <img alt="plots" src="{{{{PLOT}}}}">
 <h2>Load changes</h2>

@@ -86,7 +86,12 @@ class RunPlayback:
         self.time_s = est["time_s"].astype(float)
         self.displacement_m = est["displacement_m"]
         self.force_n = est["force_n"]
-        self.force_u_n = est["force_u_n"]
+        from estimator.uncertainty import ForceUncertainty
+
+        # Combined standard uncertainty (GUM: observer, calibration, resolution), N.
+        self.force_u_n = ForceUncertainty.from_profile(self.profile).combined_n(
+            est["force_n"], est["force_u_n"]
+        )
         offsets = np.zeros(samples.size)
         for tare in tares:
             offsets[tare.index :] = tare.offset_m
@@ -95,7 +100,7 @@ class RunPlayback:
         self.seq = samples["seq"]
         self.events = self._place_events(data.events)
         ok = np.isfinite(self.force_n)
-        floor = 4.0 * float(np.median(self.force_u_n[ok])) if ok.any() else 0.0
+        floor = 4.0 * float(np.median(est["force_u_n"][ok])) if ok.any() else 0.0
         self.changes = change_table(
             self.time_s[ok], self.force_n[ok], self.static_force_n[ok], band_floor_n=floor
         )

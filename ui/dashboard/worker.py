@@ -55,7 +55,7 @@ class WorkerStatus:
     recording_folder: str = ""
     time_s: float = float("nan")
     force_n: float = float("nan")
-    force_u_n: float = float("nan")
+    force_u_n: float = float("nan")  # combined standard uncertainty u_c (k = 1)
     displacement_m: float = float("nan")
     settling: str = "waiting"  # the settling monitor's state
     settling_rule: str = ""  # the rule, in words
@@ -260,8 +260,16 @@ class AcquisitionWorker:
         k = self.profile.plant.stiffness_n_per_m
         static = k * (samples["displacement_m"] - session.pipeline.offset_m)
         self.buffer.append(
-            np.vstack([t, est["displacement_m"], est["force_n"], est["force_u_n"], static])
+            np.vstack([t, est["displacement_m"], est["force_n"], self._u_combined(est), static])
         )
+
+    def _u_combined(self, est: np.ndarray) -> np.ndarray:
+        """Combined standard uncertainty (GUM: observer, calibration, resolution), N."""
+        from estimator.uncertainty import ForceUncertainty
+
+        if getattr(self, "_budget", None) is None:
+            self._budget = ForceUncertainty.from_profile(self.profile)
+        return self._budget.combined_n(est["force_n"], est["force_u_n"])
 
     def _publish_session(self, session: Any, state: str | None = None) -> None:
         st = session.reader.stats()
