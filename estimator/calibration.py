@@ -38,6 +38,7 @@ import scipy.linalg
 from numpy.typing import ArrayLike
 
 from estimator.errors import ParameterError
+from estimator.validation import finite_float as _finite
 
 __all__ = [
     "CONVENTIONAL_AIR_DENSITY_KG_M3",
@@ -125,18 +126,6 @@ _CLASS_RANK = {lim.class_name: i for i, lim in enumerate(ISO376_CLASS_LIMITS)}
 
 
 # --------------------------------------------------------------------------- validation
-
-
-def _finite(name: str, value: object, fix: str) -> float:
-    if isinstance(value, bool):
-        raise ParameterError(f"{name} = {value!r} is a bool, not a number; {fix}")
-    try:
-        number = float(value)  # type: ignore[arg-type]
-    except (TypeError, ValueError):
-        raise ParameterError(f"{name} = {value!r} is not a number; {fix}") from None
-    if not math.isfinite(number):
-        raise ParameterError(f"{name} = {number!r} is not finite; {fix}")
-    return number
 
 
 def _in_range(name: str, value: object, lo: float, hi: float, unit: str, what: str) -> float:

@@ -24,6 +24,7 @@ from __future__ import annotations
 import math
 
 from estimator.errors import ParameterError
+from estimator.validation import finite_float as _finite
 
 __all__ = [
     "GRS80_A_M",
@@ -61,18 +62,6 @@ _A, _B, _F = GRS80_A_M, GRS80_B_M, GRS80_F
 _E2 = 1.0 - (_B / _A) ** 2  # first eccentricity squared, 0.00669438002290
 _K = (_B * GRS80_GAMMA_P_M_S2 - _A * GRS80_GAMMA_E_M_S2) / (_A * GRS80_GAMMA_E_M_S2)
 _M = GRS80_OMEGA_RAD_S**2 * _A**2 * _B / GRS80_GM_M3_S2  # 0.00344978600308
-
-
-def _finite(name: str, value: object, fix: str) -> float:
-    if isinstance(value, bool):
-        raise ParameterError(f"{name} = {value!r} is a bool, not a number; {fix}")
-    try:
-        number = float(value)  # type: ignore[arg-type]
-    except (TypeError, ValueError):
-        raise ParameterError(f"{name} = {value!r} is not a number; {fix}") from None
-    if not math.isfinite(number):
-        raise ParameterError(f"{name} = {number!r} is not finite; {fix}")
-    return number
 
 
 def normal_gravity_m_s2(latitude_deg: float, height_m: float = 0.0) -> float:

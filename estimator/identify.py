@@ -32,6 +32,7 @@ from numpy.typing import ArrayLike
 
 from estimator.errors import EstimatorError, ParameterError
 from estimator.plant import Plant
+from estimator.validation import finite_float as _finite
 
 __all__ = [
     "STEP_PARAMETERS",
@@ -257,18 +258,6 @@ def _record(time_s: ArrayLike, displacement_m: ArrayLike) -> tuple[np.ndarray, n
             f"time_s[{i}] = {t[i]!r}; sort the samples and drop duplicates"
         )
     return t, x
-
-
-def _finite(name: str, value: object, fix: str) -> float:
-    if isinstance(value, bool):
-        raise ParameterError(f"{name} = {value!r} is a bool, not a number; {fix}")
-    try:
-        number = float(value)  # type: ignore[arg-type]
-    except (TypeError, ValueError):
-        raise ParameterError(f"{name} = {value!r} is not a number; {fix}") from None
-    if not math.isfinite(number):
-        raise ParameterError(f"{name} = {number!r} is not finite; {fix}")
-    return number
 
 
 def _positive(name: str, value: object, fix: str) -> float:

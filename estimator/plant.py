@@ -48,6 +48,7 @@ import scipy.optimize
 from numpy.typing import ArrayLike
 
 from estimator.errors import ParameterError
+from estimator.validation import finite_float as _finite_float
 
 __all__ = [
     "CellDesign",
@@ -69,19 +70,6 @@ _BRENTQ_MAXITER = 500
 
 
 # --------------------------------------------------------------------------- validation
-
-
-def _finite_float(name: str, value: object, fix: str) -> float:
-    """Return ``value`` as a float, or raise ParameterError naming ``name`` and ``fix``."""
-    if isinstance(value, bool):
-        raise ParameterError(f"{name} = {value!r} is a bool, not a number; {fix}")
-    try:
-        number = float(value)  # type: ignore[arg-type]
-    except (TypeError, ValueError):
-        raise ParameterError(f"{name} = {value!r} is not a number; {fix}") from None
-    if not math.isfinite(number):
-        raise ParameterError(f"{name} = {number!r} is not finite (NaN or inf refused); {fix}")
-    return number
 
 
 def _positive(name: str, value: object, unit: str, what: str) -> float:
