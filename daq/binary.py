@@ -21,7 +21,7 @@ import math
 import numpy as np
 from numpy.typing import ArrayLike
 
-from daq.decoding import DecoderStats
+from daq.decoding import DecoderStats, feed_bytes, feed_host_time
 from daq.errors import FramingError
 from daq.samples import DEVICE_STATUS_SHIFT, FLAG_GAP_BEFORE, empty_block
 from daq.scaling import Scaling
@@ -180,23 +180,6 @@ def encode_frames(
     return out.tobytes()
 
 
-def _as_bytes(data: object) -> bytes:
-    if isinstance(data, bytes):
-        return data
-    if isinstance(data, (bytearray, memoryview)):
-        return bytes(data)
-    raise FramingError(f"feed: data is {type(data).__name__}, not bytes; pass the raw bytes read")
-
-
-def _host_time(host_time_s: object) -> float:
-    try:
-        return float(host_time_s)  # type: ignore[arg-type]
-    except (TypeError, ValueError):
-        raise FramingError(
-            f"feed: host_time_s={host_time_s!r} is not a number; pass seconds as float"
-        ) from None
-
-
 class BinaryDecoder:
     """Turn chunks of the binary frame stream into sample blocks.
 
@@ -299,8 +282,8 @@ class BinaryDecoder:
             Block of shape (n,), dtype `SAMPLE_DTYPE`, in stream order. Bad bytes never
             raise; they are counted and skipped.
         """
-        data = _as_bytes(data)
-        host = _host_time(host_time_s)
+        data = feed_bytes(data)
+        host = feed_host_time(host_time_s)
         buf = self._pending + data if self._pending else data
         L = self.frame_length
         n = len(buf)

@@ -18,7 +18,7 @@ import numpy as np
 from daq.errors import FramingError
 from daq.scaling import Scaling
 
-__all__ = ["FRAMINGS", "Decoder", "DecoderStats", "make_decoder"]
+__all__ = ["FRAMINGS", "Decoder", "DecoderStats", "feed_bytes", "feed_host_time", "make_decoder"]
 
 #: Every framing name a cell profile may give.
 FRAMINGS = ("ascii-lines", "binary-24", "binary-32")
@@ -103,3 +103,22 @@ def make_decoder(
     raise FramingError(
         f"framing={framing!r} is unknown; use one of {', '.join(repr(f) for f in FRAMINGS)}"
     )
+
+
+def feed_bytes(data: object) -> bytes:
+    """The bytes given to a decoder's ``feed`` (bytes, bytearray or memoryview)."""
+    if isinstance(data, bytes):
+        return data
+    if isinstance(data, (bytearray, memoryview)):
+        return bytes(data)
+    raise FramingError(f"feed: data is {type(data).__name__}, not bytes; pass the raw bytes read")
+
+
+def feed_host_time(host_time_s: object) -> float:
+    """The host time given to a decoder's ``feed``, s, as a float."""
+    try:
+        return float(host_time_s)  # type: ignore[arg-type]
+    except (TypeError, ValueError):
+        raise FramingError(
+            f"feed: host_time_s={host_time_s!r} is not a number; pass seconds as float"
+        ) from None

@@ -31,7 +31,7 @@ from collections.abc import Sequence
 import numpy as np
 from numpy.typing import ArrayLike
 
-from daq.decoding import DecoderStats
+from daq.decoding import DecoderStats, feed_bytes, feed_host_time
 from daq.errors import FramingError
 from daq.samples import FLAG_GAP_BEFORE, empty_block
 from daq.scaling import Scaling
@@ -225,19 +225,8 @@ class LineDecoder:
             Block of shape (n,), dtype `SAMPLE_DTYPE`, in stream order. Malformed lines
             never raise; they are counted and skipped.
         """
-        if isinstance(data, memoryview):
-            data = data.tobytes()
-        if not isinstance(data, (bytes, bytearray)):
-            raise FramingError(
-                f"feed: data is {type(data).__name__}, not bytes; pass the raw bytes read"
-            )
-        try:
-            host = float(host_time_s)
-        except (TypeError, ValueError):
-            raise FramingError(
-                f"feed: host_time_s={host_time_s!r} is not a number; pass seconds as float"
-            ) from None
-        data = bytes(data)
+        data = feed_bytes(data)
+        host = feed_host_time(host_time_s)
         if self._skipping:
             lf = data.find(b"\n")
             if lf < 0:
