@@ -164,6 +164,12 @@ def test_live_recording_under_faults_keeps_every_intact_sample_and_replays_bit_i
     assert main(["replay", str(folder)]) == 0
     out = capsys.readouterr().out
     assert "identical to the" in out and f"{seq.size} estimates" in out
+    # The audit also finds the settling states and the alarms logged live (the stall and
+    # the losses among them) exactly as a replay recomputes them.
+    alarms = [e for e in data.events if e["kind"] == "alarm"]
+    assert any(e["alarm"] == "stalled-stream" for e in alarms)
+    assert main(["audit", str(folder)]) == 0
+    assert "identical" in capsys.readouterr().out
 
 
 def test_live_killed_mid_run_leaves_a_readable_unclosed_run(

@@ -138,7 +138,15 @@ def _as_logged(event: dict[str, Any]) -> dict[str, Any]:
 
 
 def _strip(events: list[dict[str, Any]]) -> list[dict[str, Any]]:
-    return [{k: v for k, v in e.items() if k not in ("utc", "host_time_s")} for e in events]
+    """Transitions without their wall-clock stamps, in stream order.
+
+    A stall found live by a clock tick during the silence is logged before the
+    transitions of the next samples; a replay finds it with those samples. Both carry
+    the same stream position, so transitions are compared in the order of position,
+    then content.
+    """
+    kept = [{k: v for k, v in e.items() if k not in ("utc", "host_time_s")} for e in events]
+    return sorted(kept, key=lambda e: (e.get("index", -1), json.dumps(e, sort_keys=True)))
 
 
 def _first_difference(a: list[Any], b: list[Any]) -> int:
