@@ -98,8 +98,12 @@ class LiveSession:
         else:
             estimates = self.pipeline.process(samples[:0])
             changes = []
-        # Every received sample is in: the alarms may now judge a silence (stall).
-        changes += self.pipeline.tick(self._clock())
+        # A silence (stall) is judged only when every received sample is in: when the
+        # consumer lags, samples wait in the reader and the clock would run ahead of the
+        # data, raising a stall a replay could never see.
+        now = self._clock()
+        if self.reader.stats().samples_unread == 0:
+            changes += self.pipeline.tick(now)
         if writer is not None:
             writer.maybe_flush()
         return PollResult(samples, estimates, events, changes)
