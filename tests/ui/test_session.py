@@ -62,3 +62,28 @@ def test_recording_started_mid_stream_replays_bit_identically(
     capsys.readouterr()
     assert main(["replay", str(recording.folder)]) == 0
     assert f"identical to the {data.samples.size} estimates" in capsys.readouterr().out
+
+
+def test_no_stall_is_judged_while_received_samples_wait_in_the_reader() -> None:
+    import dataclasses
+
+    import numpy as np
+
+    from daq.samples import empty_block
+
+    session = LiveSession(PROFILE, "loop://")  # a pyserial URL; the reader is not started
+    block = empty_block(400)
+    block["seq"] = np.arange(400)
+    block["device_time_s"] = np.arange(400) / 2000.0
+    block["host_time_s"] = 100.0 + np.arange(400) / 2000.0
+    session.pipeline.process(block)
+    session._clock = lambda: 105.0  # 4.8 s after the last sample, by the host clock
+    real_stats = session.reader.stats
+
+    def waiting() -> object:
+        return dataclasses.replace(real_stats(), samples_unread=50)
+
+    session.reader.stats = waiting  # the consumer lags: samples are waiting
+    assert not any(getattr(c, "alarm_id", "") == "stalled-stream" for c in session.poll().changes)
+    session.reader.stats = real_stats  # nothing waits: the silence is real
+    assert any(getattr(c, "alarm_id", "") == "stalled-stream" for c in session.poll().changes)
