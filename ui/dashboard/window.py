@@ -182,6 +182,8 @@ class DashboardWindow(QtWidgets.QMainWindow):
         self.frames = 0
         self._messages_shown = 0
         self._last_tick: float | None = None
+        self._relative_axis: bool | None = None
+        self._x_range: tuple[float, float] | None = None
         self.setWindowTitle("forcelens — live force")
         self.resize(1500, 900)
         pg.setConfigOptions(antialias=False, background="w", foreground=(35, 35, 35))
@@ -527,7 +529,7 @@ class DashboardWindow(QtWidgets.QMainWindow):
         html_text = f"<span style='font-size: 19pt; font-weight: 700;'>{text}</span>"
         if state == "settled" and valid_since_s is not None:
             html_text += (
-                f"<br><span style='font-size: 10pt;'>valid since t = {valid_since_s:.3f} s</span>"
+                f"<br><span style='font-size: 10pt;'>valid since device time {valid_since_s:.3f} s</span>"
             )
         self.tile.setText(html_text)
         self.tile.setStyleSheet(
@@ -697,22 +699,40 @@ class DashboardWindow(QtWidgets.QMainWindow):
         t1 = float(t[-1])
         t0 = t1 - self.window_s
         bins = max(100, int(self.p_f.getViewBox().width()))
+        # Live, the time axis is relative to the newest sample: its range and ticks stay
+        # put, so the axes and grid are not redrawn every frame. Replay keeps device time.
+        live = self.playback is None
+        shift = t1 if live else 0.0
         xs = line_envelope(t, x, t0, t1, bins)
         fs = line_envelope(t, f, t0, t1, bins)
-        _line(self.c_x, *xs)
-        _line(self.c_force, *fs)
+        _line(self.c_x, xs[0] - shift, xs[1])
+        _line(self.c_force, fs[0] - shift, fs[1])
         shown = [fs[1]]
         if self.c_static.isVisible():
             ks = line_envelope(t, kx, t0, t1, bins)
-            _line(self.c_static, *ks)
+            _line(self.c_static, ks[0] - shift, ks[1])
             shown.append(ks[1])
-        self.band.set_band(*band_envelope(t, f - 2.0 * u, f + 2.0 * u, t0, t1, bins))
+        bx, blo, bhi = band_envelope(t, f - 2.0 * u, f + 2.0 * u, t0, t1, bins)
+        self.band.set_band(bx - shift, blo, bhi)
         _fit_y(self.p_x, [xs[1]])
         _fit_y(self.p_f, shown)
-        # Until the window is full the trace grows from the left edge.
-        left = max(t0, float(t[0]))
-        self.p_f.setXRange(left, left + self.window_s, padding=0.0)
+        self._set_time_axis(live)
+        if live:
+            x_range = (-self.window_s, 0.0)
+        else:  # until the window is full the trace grows from the left edge
+            left = max(t0, float(t[0]))
+            x_range = (left, left + self.window_s)
+        if x_range != self._x_range:
+            self.p_f.setXRange(*x_range, padding=0.0)
+            self._x_range = x_range
         self.frames += 1
+
+    def _set_time_axis(self, live: bool) -> None:
+        if live != self._relative_axis:
+            label = "time before the newest sample" if live else "device time"
+            self.p_f.setLabel("bottom", label, units="s")
+            self._relative_axis = live
+            self._x_range = None
 
     def _show_status(self, s: WorkerStatus) -> None:
         if math.isfinite(s.force_n):
