@@ -529,7 +529,8 @@ class DashboardWindow(QtWidgets.QMainWindow):
         html_text = f"<span style='font-size: 19pt; font-weight: 700;'>{text}</span>"
         if state == "settled" and valid_since_s is not None:
             html_text += (
-                f"<br><span style='font-size: 10pt;'>valid since device time {valid_since_s:.3f} s</span>"
+                "<br><span style='font-size: 10pt;'>"
+                f"valid since device time {valid_since_s:.3f} s</span>"
             )
         self.tile.setText(html_text)
         self.tile.setStyleSheet(
