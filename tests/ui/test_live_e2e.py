@@ -52,6 +52,20 @@ def _lines(stream: object, out: queue.Queue) -> None:
     out.put(None)
 
 
+def _start_live(args: list[str]) -> tuple[subprocess.Popen, queue.Queue]:
+    """`forcelens live ARGS` in a subprocess, its output lines arriving on a queue."""
+    proc = subprocess.Popen(
+        [sys.executable, "-m", "ui.cli", "live", *args],
+        stdout=subprocess.PIPE,
+        stderr=subprocess.STDOUT,
+        text=True,
+        env=dict(os.environ, PYTHONPATH=str(REPO)),
+    )
+    lines: queue.Queue = queue.Queue()
+    threading.Thread(target=_lines, args=(proc.stdout, lines), daemon=True).start()
+    return proc, lines
+
+
 def _wait_for(lines: queue.Queue, text: str, timeout_s: float, seen: list[str]) -> None:
     deadline = time.monotonic() + timeout_s
     while time.monotonic() < deadline:
@@ -87,31 +101,11 @@ def test_live_recording_under_faults_keeps_every_intact_sample_and_replays_bit_i
         Fault("drop", 52.0, count=1),
     ]
     runs = tmp_path / "runs"
-    env = dict(os.environ, PYTHONPATH=str(REPO))
     with PtyCell(truth, speed=SPEED, framing=framing, faults=faults) as cell:
-        proc = subprocess.Popen(
-            [
-                sys.executable,
-                "-m",
-                "ui.cli",
-                "live",
-                "--profile",
-                str(profile_path),
-                "--port",
-                cell.port_name,
-                "--record",
-                str(runs),
-                "--quiet",
-                "--note",
-                "end-to-end test (invented data)",
-            ],
-            stdout=subprocess.PIPE,
-            stderr=subprocess.STDOUT,
-            text=True,
-            env=env,
-        )
-        lines: queue.Queue = queue.Queue()
-        threading.Thread(target=_lines, args=(proc.stdout, lines), daemon=True).start()
+        proc, lines = _start_live(
+            ["--profile", str(profile_path), "--port", cell.port_name, "--record", str(runs),
+             "--quiet", "--note", "end-to-end test (invented data)"]
+        )  # fmt: skip
         seen: list[str] = []
         try:
             _wait_for(lines, "connected to", 30.0, seen)
@@ -179,16 +173,7 @@ def test_live_killed_mid_run_leaves_a_readable_unclosed_run(
     # (no chance to close the run). What was flushed must read back, be reported as not
     # closed, and replay to the estimates that were computed live.
     runs = tmp_path / "runs"
-    env = dict(os.environ, PYTHONPATH=str(REPO))
-    proc = subprocess.Popen(
-        [sys.executable, "-m", "ui.cli", "live", "--record", str(runs), "--quiet"],
-        stdout=subprocess.PIPE,
-        stderr=subprocess.STDOUT,
-        text=True,
-        env=env,
-    )
-    lines: queue.Queue = queue.Queue()
-    threading.Thread(target=_lines, args=(proc.stdout, lines), daemon=True).start()
+    proc, lines = _start_live(["--record", str(runs), "--quiet"])
     seen: list[str] = []
     try:
         _wait_for(lines, "connected to", 30.0, seen)

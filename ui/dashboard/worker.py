@@ -263,6 +263,14 @@ class AcquisitionWorker:
             np.vstack([t, est["displacement_m"], est["force_n"], self._u_combined(est), static])
         )
 
+    def _rule_text(self, monitor: Any) -> str:
+        """The settling rule in words (fixed for a session: worded once)."""
+        if monitor is None:
+            return ""
+        if getattr(self, "_rule", None) is None:
+            self._rule = monitor.describe()
+        return self._rule
+
     def _u_combined(self, est: np.ndarray) -> np.ndarray:
         """Combined standard uncertainty (GUM: observer, calibration, resolution), N."""
         from estimator.uncertainty import ForceUncertainty
@@ -278,7 +286,7 @@ class AcquisitionWorker:
         monitor, alarms = session.pipeline.monitor, session.pipeline.alarms
         self._publish(
             settling=monitor.state if monitor is not None else "",
-            settling_rule=monitor.describe() if monitor is not None else "",
+            settling_rule=self._rule_text(monitor),
             valid_since_s=monitor.valid_since_s if monitor is not None else None,
             alarms=tuple(
                 (a.alarm_id, a.severity, a.message, a.acknowledged) for a in alarms.active()
