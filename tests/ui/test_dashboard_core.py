@@ -2,11 +2,15 @@
 
 from __future__ import annotations
 
+import os
+from typing import Any
+
 import numpy as np
 import pytest
 
-from ui.dashboard.buffer import TRACE_FIELDS, TraceBuffer
+from ui.dashboard.buffer import PROCESS_CONTEXT, TRACE_FIELDS, TraceBuffer
 from ui.dashboard.envelope import band_envelope, bin_edges, line_envelope
+from ui.dashboard.worker import StatusBox, WorkerStatus
 
 
 def _cols(t: np.ndarray) -> np.ndarray:
@@ -30,6 +34,77 @@ def test_ring_buffer_keeps_the_latest_samples_in_order_across_wraps() -> None:
     np.testing.assert_array_equal(win[0], t[(t >= 3.499 - 0.2 - 1e-12)])
     assert win.shape[0] == len(TRACE_FIELDS)
     np.testing.assert_array_equal(buf.window(0.05, end_s=2.6)[0], t[(t >= 2.55) & (t <= 2.6)])
+
+
+def _write_blocks(buffer: TraceBuffer, start: int, stop: int) -> None:
+    """Run in a spawned process: append samples start..stop-1 in blocks of 700."""
+    t = np.arange(start, stop) * 1e-3
+    for i in range(0, t.size, 700):
+        buffer.append(_cols(t[i : i + 700]))
+
+
+def test_ring_buffer_written_by_another_process_is_seen_here() -> None:
+    # The dashboard's worker is a separate process: what it appends must land in this
+    # process's buffer (shared memory), not in a copy.
+    buf = TraceBuffer(2000)
+    buf.append(_cols(np.arange(0, 100) * 1e-3))
+    proc = PROCESS_CONTEXT.Process(target=_write_blocks, args=(buf, 100, 5000))
+    proc.start()
+    proc.join(60)
+    assert proc.exitcode == 0
+    assert buf.total == 5000
+    np.testing.assert_array_equal(buf.latest(2000), _cols(np.arange(3000, 5000) * 1e-3))
+
+
+def _die_holding(lock: Any) -> None:
+    """Run in a spawned process: take the lock and end without releasing it."""
+    lock.acquire()
+    os._exit(0)
+
+
+def test_a_lock_left_held_by_a_dead_process_blocks_nobody() -> None:
+    # A worker that dies while appending leaves the shared lock held. The window must
+    # not hang on it: reads return no samples, appends are skipped, the box says nothing new.
+    buf = TraceBuffer(100)
+    buf.append(_cols(np.arange(10) * 1e-3))
+    box = StatusBox()
+    box.put(WorkerStatus(state="connected"))
+    for lock in (buf._lock, box._lock):
+        proc = PROCESS_CONTEXT.Process(target=_die_holding, args=(lock,))
+        proc.start()
+        proc.join(60)
+        assert proc.exitcode == 0
+    assert buf.window(1.0).shape == (len(TRACE_FIELDS), 0)
+    assert buf.latest(5).shape == (len(TRACE_FIELDS), 0)
+    assert buf.append(_cols(np.arange(10, 20) * 1e-3)) is False
+    assert box.get() == (1, None)
+    box.put(WorkerStatus(state="stopped"))  # dropped, not hanging
+
+
+def test_status_box_hands_over_the_latest_status_only() -> None:
+    box = StatusBox()
+    version, status = box.get()
+    assert status is None  # nothing put yet
+    box.put(WorkerStatus(state="connecting"))
+    latest = WorkerStatus(
+        state="connected", samples=7, force_n=1.5, alarms=(("a", "b", "c", False),)
+    )
+    box.put(latest)
+    version, status = box.get(version)
+    assert repr(status) == repr(latest)  # repr: the NaN fields compare equal
+    assert box.get(version) == (version, None)  # nothing newer
+
+
+def test_status_box_sheds_oldest_messages_when_full_and_refuses_what_cannot_fit() -> None:
+    box = StatusBox(size_bytes=4096)
+    messages = tuple(f"message {i:03d} " + "x" * 80 for i in range(100))  # ~9 kB
+    box.put(WorkerStatus(messages=messages, message_total=100))
+    _, status = box.get()
+    assert status is not None and 0 < len(status.messages) < 100
+    assert status.messages == messages[-len(status.messages) :]  # the newest kept, in order
+    assert status.message_total == 100
+    with pytest.raises(ValueError, match="does not fit"):
+        StatusBox(size_bytes=64).put(WorkerStatus(error="e" * 200))
 
 
 def test_line_envelope_keeps_every_extreme() -> None:

@@ -2,6 +2,10 @@
 
 from __future__ import annotations
 
+import os
+import signal
+import subprocess
+import sys
 import time
 from collections.abc import Callable
 from pathlib import Path
@@ -55,3 +59,78 @@ def test_worker_streams_records_and_closes_the_run_on_stop(tmp_path: Path) -> No
     assert data.closed and data.closing["summary"]["reason"] == "window closed"
     kinds = [e["kind"] for e in data.events]
     assert "mark" in kinds and "tare" in kinds
+
+
+def test_a_worker_process_that_dies_is_reported_failed_with_its_exit_code(tmp_path: Path) -> None:
+    buffer = TraceBuffer(20_000)
+    sim = SimulatedSource(programme="hold 30 0", loop=False)  # invented: unloaded cell
+    worker = AcquisitionWorker(
+        default_demo_profile(), None, buffer, runs_root=tmp_path, simulated=sim
+    ).start()
+    try:
+        _wait(lambda: buffer.total > 100)
+        assert worker.status().state == "connected"
+        worker._process.kill()  # as a crash would end it
+        _wait(lambda: not worker.running)
+        status = worker.status()
+        assert status.state == "failed"
+        assert "ended unexpectedly" in status.error and "-9" in status.error
+    finally:
+        worker.stop()
+
+
+_ORPHAN_PARENT = """
+import sys, time
+from pathlib import Path
+from estimator.profile import default_demo_profile
+from ui.dashboard.buffer import TraceBuffer
+from ui.dashboard.worker import AcquisitionWorker, SimulatedSource
+
+if __name__ == "__main__":
+    buffer = TraceBuffer(20_000)
+    sim = SimulatedSource(programme="hold 60 0", loop=False)  # invented: unloaded cell
+    worker = AcquisitionWorker(default_demo_profile(), None, buffer, runs_root=Path(sys.argv[1]),
+                               simulated=sim).start()
+    worker.start_recording(note="orphan test (invented data)")
+    while worker.status().recording == "":
+        time.sleep(0.02)
+    print(worker._process.pid, flush=True)
+    time.sleep(600)
+"""
+
+
+def test_the_worker_closes_its_recording_when_the_window_process_is_killed(
+    tmp_path: Path,
+) -> None:
+    # A window killed outright must not leave its worker holding the port forever, nor
+    # leave the run unsealed: the worker notices its parent is gone and closes the run.
+    # The killed parent's resource tracker warns of the locks it leaves: kept in a file.
+    log = tmp_path / "parent-stderr.txt"
+    with log.open("w") as err:
+        parent = subprocess.Popen(
+            [sys.executable, "-c", _ORPHAN_PARENT, str(tmp_path / "runs")],
+            stdout=subprocess.PIPE,
+            stderr=err,
+            text=True,
+        )
+    try:
+        line = parent.stdout.readline()
+        assert line.strip().isdigit(), log.read_text()
+        worker_pid = int(line)
+    finally:
+        parent.send_signal(signal.SIGKILL)
+        parent.wait(10)
+
+    def gone() -> bool:
+        try:
+            os.kill(worker_pid, 0)
+        except ProcessLookupError:
+            return True
+        # A zombie (reparented, not yet reaped) counts as gone.
+        with open(f"/proc/{worker_pid}/stat") as f:
+            return f.read().split(")")[-1].split()[0] == "Z"
+
+    _wait(gone)
+    (folder,) = [p.parent for p in (tmp_path / "runs").glob("*/run.json")]
+    data = read_run(folder)
+    assert data.closed and data.closing["summary"]["reason"] == "the window's process ended"

@@ -1,21 +1,48 @@
-"""A fixed-size history of what the dashboard draws, written by the worker thread.
+"""A fixed-size history of what the dashboard draws, written by the acquisition process.
 
 `TraceBuffer` keeps the last `capacity` samples of five traces: device time,
 displacement, estimated force, its standard uncertainty and the static force k·x. The
-worker appends whole blocks; the window asks for the samples inside a time window. One
+acquisition worker appends whole blocks; the window asks for the samples inside a time
+window. The storage is shared memory and the lock a process lock, so the writer may be
+another process (the buffer is handed to it when that process starts) or a thread. One
 lock guards both; appends and reads copy only what they touch.
+
+No call waits on the lock for more than `LOCK_TIMEOUT_S`: an append holds it for
+microseconds, so a longer wait means the process on the other side died holding it.
+Then a read returns no samples and an append is skipped (the display only; recordings
+are written elsewhere), instead of hanging the window or the worker for good.
 """
 
 from __future__ import annotations
 
-import threading
+import multiprocessing
+from collections.abc import Iterator
+from contextlib import contextmanager
+from typing import Any
 
 import numpy as np
 
-__all__ = ["TRACE_FIELDS", "TraceBuffer"]
+__all__ = ["LOCK_TIMEOUT_S", "PROCESS_CONTEXT", "TRACE_FIELDS", "TraceBuffer", "holding"]
 
 #: The traces kept, in order: s, m, N, N (k = 1), N.
 TRACE_FIELDS = ("time_s", "displacement_m", "force_n", "force_u_n", "static_force_n")
+
+#: The way worker processes are started: "spawn" is safe beside Qt's threads everywhere.
+PROCESS_CONTEXT = multiprocessing.get_context("spawn")
+
+#: Longest wait for a lock shared with another process, s (see the module text).
+LOCK_TIMEOUT_S = 0.2
+
+
+@contextmanager
+def holding(lock: Any, timeout_s: float = LOCK_TIMEOUT_S) -> Iterator[bool]:
+    """Hold `lock` if it can be had within `timeout_s`; yields whether it was."""
+    got = lock.acquire(timeout=timeout_s)
+    try:
+        yield got
+    finally:
+        if got:
+            lock.release()
 
 
 class TraceBuffer:
@@ -25,9 +52,27 @@ class TraceBuffer:
         if capacity < 2:
             raise ValueError(f"TraceBuffer: capacity = {capacity}; need at least 2 samples")
         self.capacity = int(capacity)
-        self._data = np.full((len(TRACE_FIELDS), self.capacity), np.nan)
-        self._end = 0  # total samples ever appended
-        self._lock = threading.Lock()
+        self._raw = PROCESS_CONTEXT.RawArray("d", len(TRACE_FIELDS) * self.capacity)
+        self._count = PROCESS_CONTEXT.RawArray("q", 1)  # total samples ever appended
+        self._lock = PROCESS_CONTEXT.Lock()
+        self._attach()
+        self._data.fill(np.nan)
+
+    def _attach(self) -> None:
+        self._data = np.frombuffer(self._raw, dtype=np.float64).reshape(len(TRACE_FIELDS), -1)
+        self._counter = np.frombuffer(self._count, dtype=np.int64)
+
+    def __getstate__(self) -> dict[str, Any]:
+        """What a starting worker process receives: the shared memory, not a copy."""
+        return {k: self.__dict__[k] for k in ("capacity", "_raw", "_count", "_lock")}
+
+    def __setstate__(self, state: dict[str, Any]) -> None:
+        self.__dict__.update(state)
+        self._attach()
+
+    @property
+    def _end(self) -> int:
+        return int(self._counter[0])
 
     @property
     def total(self) -> int:
@@ -36,24 +81,32 @@ class TraceBuffer:
 
     def clear(self) -> None:
         """Forget everything."""
-        with self._lock:
+        with holding(self._lock) as got:
+            if not got:
+                raise RuntimeError("TraceBuffer.clear: the lock is held by a process that died")
             self._data.fill(np.nan)
-            self._end = 0
+            self._counter[0] = 0
 
-    def append(self, columns: np.ndarray) -> None:
-        """Append `columns`, shape (len(TRACE_FIELDS), n), oldest sample first."""
+    def append(self, columns: np.ndarray) -> bool:
+        """Append `columns`, shape (len(TRACE_FIELDS), n), oldest sample first.
+
+        Returns False when the block was skipped (the lock could not be had in time).
+        """
         n = columns.shape[1]
         if columns.shape[0] != len(TRACE_FIELDS):
             raise ValueError(f"TraceBuffer.append: expected {len(TRACE_FIELDS)} rows")
         skipped = max(0, n - self.capacity)  # older than the buffer can hold
         if skipped:
             columns, n = columns[:, skipped:], self.capacity
-        with self._lock:
+        with holding(self._lock) as got:
+            if not got:
+                return False
             start = (self._end + skipped) % self.capacity
             first = min(n, self.capacity - start)
             self._data[:, start : start + first] = columns[:, :first]
             self._data[:, : n - first] = columns[:, first:]
-            self._end += skipped + n
+            self._counter[0] += skipped + n
+        return True
 
     def _segments(self) -> list[tuple[int, int]]:
         """The filled part of the ring as (start, stop) column ranges, oldest first."""
@@ -71,7 +124,9 @@ class TraceBuffer:
 
     def latest(self, n: int) -> np.ndarray:
         """The last `n` samples (fewer if not yet there), shape (5, m), oldest first."""
-        with self._lock:
+        with holding(self._lock) as got:
+            if not got:
+                return self._take([])
             need = min(n, self._end, self.capacity)
             ranges = []
             for a, b in reversed(self._segments()):
@@ -85,9 +140,9 @@ class TraceBuffer:
 
         Times must increase through the buffer (the worker keeps them so).
         """
-        with self._lock:
+        with holding(self._lock) as got:
             segs = self._segments()
-            if self._end == 0:
+            if self._end == 0 or not got:
                 return np.zeros((len(TRACE_FIELDS), 0))
             last = (self._end - 1) % self.capacity
             t_end = float(self._data[0, last]) if end_s is None else end_s

@@ -1,16 +1,22 @@
-"""Acquisition and estimation on their own thread, for the dashboard.
+"""Acquisition and estimation in their own process, for the dashboard.
 
 `AcquisitionWorker` runs a `ui.session.LiveSession` (and, when no port is given, the
-built-in simulated cell) on a daemon thread. The window never calls the session
-directly: it queues commands (record, mark, zero, stop) that the worker carries out
-between two polls, reads a `WorkerStatus` snapshot, and draws from the shared
-`TraceBuffer`. Nothing here imports Qt.
+built-in simulated cell) in a worker process. The window never calls the session
+directly: it queues commands (record, mark, zero, acknowledge) that the worker carries
+out between two polls, reads the latest `WorkerStatus` from a shared `StatusBox`, and
+draws from the shared-memory `TraceBuffer`.
+
+Why a process and not a thread: with one interpreter lock, estimation at 10 kHz kept
+the window's thread waiting for the lock in the middle of its paints (gaps of ~100 ms
+on 2 cores). In its own process the session competes only for a core, and a slow paint
+never delays a poll. Nothing here imports Qt.
 """
 
 from __future__ import annotations
 
+import multiprocessing
+import pickle
 import queue
-import threading
 import time
 from collections import deque
 from dataclasses import dataclass, field
@@ -19,14 +25,15 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from ui.dashboard.buffer import TraceBuffer
+from ui.dashboard.buffer import PROCESS_CONTEXT, TraceBuffer, holding
 
 if TYPE_CHECKING:
     from estimator.profile import CellProfile
 
-__all__ = ["AcquisitionWorker", "SimulatedSource", "WorkerStatus"]
+__all__ = ["AcquisitionWorker", "SimulatedSource", "StatusBox", "WorkerStatus"]
 
 _POLL_S = 0.02  # time between two polls of the session, s
+_ENDED = ("stopped", "failed")
 
 
 @dataclass(frozen=True)
@@ -66,8 +73,50 @@ class WorkerStatus:
     error: str = ""
 
 
+class StatusBox:
+    """The latest `WorkerStatus`, shared between processes (a mailbox of one letter).
+
+    The worker overwrites it at every poll; the window reads it when it likes. Nothing
+    queues up, so a window that stops reading (a dialog open, a slow paint) never makes
+    the worker wait or grow. Like the trace buffer, neither side waits for the lock more
+    than `ui.dashboard.buffer.LOCK_TIMEOUT_S` (the other side may have died holding it):
+    a put is then dropped and a get finds nothing new.
+    """
+
+    def __init__(self, size_bytes: int = 1 << 17) -> None:
+        self.size_bytes = int(size_bytes)
+        self._raw = PROCESS_CONTEXT.RawArray("B", self.size_bytes)
+        self._head = PROCESS_CONTEXT.RawArray("q", 2)  # version, length in bytes
+        self._lock = PROCESS_CONTEXT.Lock()
+
+    def put(self, status: WorkerStatus) -> None:
+        """Replace the letter. A status too large to fit sheds its oldest messages."""
+        data = pickle.dumps(status, protocol=pickle.HIGHEST_PROTOCOL)
+        while len(data) > self.size_bytes and status.messages:
+            keep = status.messages[len(status.messages) // 2 + 1 :]
+            status = WorkerStatus(**{**status.__dict__, "messages": keep})
+            data = pickle.dumps(status, protocol=pickle.HIGHEST_PROTOCOL)
+        if len(data) > self.size_bytes:
+            raise ValueError(f"StatusBox: a status of {len(data)} bytes does not fit")
+        with holding(self._lock) as got:
+            if not got:
+                return
+            memoryview(self._raw).cast("B")[: len(data)] = data
+            self._head[1] = len(data)
+            self._head[0] += 1
+
+    def get(self, since: int = -1) -> tuple[int, WorkerStatus | None]:
+        """(version, status); status is None when nothing newer than `since` was put."""
+        with holding(self._lock) as got:
+            version, length = int(self._head[0]), int(self._head[1])
+            if not got or version == since or length == 0:
+                return version, None
+            data = bytes(memoryview(self._raw).cast("B")[:length])
+        return version, pickle.loads(data)  # our own worker process wrote it
+
+
 class AcquisitionWorker:
-    """A live session on a background thread, fed by a port or the simulated cell.
+    """A live session in a worker process, fed by a port or the simulated cell.
 
     Args:
         profile: cell profile.
@@ -91,40 +140,72 @@ class AcquisitionWorker:
         self.buffer = buffer
         self.runs_root = Path(runs_root)
         self.simulated = simulated or SimulatedSource()
-        self._commands: queue.Queue[tuple[str, tuple[Any, ...]]] = queue.Queue()
+        self._commands: Any = PROCESS_CONTEXT.Queue()
+        # A plain shared flag, not an Event: an Event's lock could be left held by a
+        # worker that died, and setting it would then hang the window.
+        self._stop = PROCESS_CONTEXT.RawValue("b", 0)
+        self._box = StatusBox()
+        self._version = -1
         self._status = WorkerStatus(port=port or "built-in simulated cell")
-        self._messages: deque[str] = deque(maxlen=50)
-        self._message_total = 0
-        self._lock = threading.Lock()
-        self._stop = threading.Event()
-        self._thread: threading.Thread | None = None
-        self._t_offset = 0.0
-        self._t_last: float | None = None
-        self.session: Any = None
+        self._process: Any = None
 
     # ------------------------------------------------------------- control
     def start(self) -> AcquisitionWorker:
-        """Start the thread (once); returns self."""
-        if self._thread is None:
-            self._thread = threading.Thread(target=self._run, name="acquisition", daemon=True)
-            self._thread.start()
+        """Start the worker process (once); returns self."""
+        if self._process is None:
+            self._process = PROCESS_CONTEXT.Process(
+                target=_acquire,
+                args=(
+                    self.profile,
+                    self.port,
+                    self.buffer,
+                    self.runs_root,
+                    self.simulated,
+                    self._commands,
+                    self._stop,
+                    self._box,
+                ),
+                name="forcelens-acquisition",
+                daemon=True,
+            )
+            self._process.start()
         return self
 
     def stop(self, timeout_s: float = 10.0) -> None:
-        """Stop acquiring; a recording in progress is closed cleanly first."""
-        self._stop.set()
-        if self._thread is not None:
-            self._thread.join(timeout_s)
+        """Stop acquiring; a recording in progress is closed cleanly first.
+
+        A worker that does not end within `timeout_s` is terminated (its recording then
+        reads back up to its last flush, as after a crash).
+        """
+        self._stop.value = 1
+        if self._process is not None:
+            self._process.join(timeout_s)
+            if self._process.is_alive():
+                self._process.terminate()
+                self._process.join(2.0)
+        self._commands.close()
 
     @property
     def running(self) -> bool:
-        """True while the thread is alive."""
-        return self._thread is not None and self._thread.is_alive()
+        """True while the worker process is alive."""
+        return self._process is not None and self._process.is_alive()
 
     def status(self) -> WorkerStatus:
-        """The latest snapshot (cheap; safe from any thread)."""
-        with self._lock:
-            return self._status
+        """The latest snapshot (cheap; call it from the window's thread)."""
+        self._version, latest = self._box.get(self._version)
+        if latest is not None:
+            self._status = latest
+        process = self._process
+        if (
+            process is not None
+            and process.exitcode is not None
+            and self._status.state not in _ENDED
+        ):
+            error = f"the acquisition process ended unexpectedly (exit code {process.exitcode})"
+            self._status = WorkerStatus(
+                **{**self._status.__dict__, "state": "failed", "error": error}
+            )
+        return self._status
 
     def start_recording(self, note: str = "", tags: tuple[str, ...] = ()) -> None:
         """Queue: begin a recording under `runs_root`."""
@@ -139,20 +220,70 @@ class AcquisitionWorker:
         self._commands.put(("mark", (text,)))
 
     def tare(self) -> None:
-        """Queue: zero on the latest samples (the caller has confirmed: cell unloaded)."""
-        self._commands.put(("tare", (time.monotonic(),)))  # the samples' host clock
+        """Queue: zero on the latest samples (the caller has confirmed: cell unloaded).
+
+        The request carries the host's monotonic clock, which the worker process shares.
+        """
+        self._commands.put(("tare", (time.monotonic(),)))
 
     def acknowledge(self, alarm_id: str) -> None:
         """Queue: acknowledge an active alarm (it stays until its condition clears)."""
         self._commands.put(("ack", (alarm_id,)))
 
-    # -------------------------------------------------------------- thread
+
+def _acquire(
+    profile: CellProfile,
+    port: str | None,
+    buffer: TraceBuffer,
+    runs_root: Path,
+    simulated: SimulatedSource,
+    commands: Any,
+    stop: Any,
+    box: StatusBox,
+) -> None:
+    """The worker process: run the session until `stop` is set or the window's process
+    is gone (then a recording in progress is closed cleanly all the same)."""
+    _Acquisition(profile, port, buffer, runs_root, simulated, commands, stop, box).run()
+
+
+class _Acquisition:
+    """The worker process's side: the session, its commands and its published status."""
+
+    def __init__(
+        self,
+        profile: CellProfile,
+        port: str | None,
+        buffer: TraceBuffer,
+        runs_root: Path,
+        simulated: SimulatedSource,
+        commands: Any,
+        stop: Any,
+        box: StatusBox,
+    ) -> None:
+        self.profile = profile
+        self.port = port
+        self.buffer = buffer
+        self.runs_root = runs_root
+        self.simulated = simulated
+        self._commands = commands
+        self._stop = stop
+        self._box = box
+        self._status = WorkerStatus(port=port or "built-in simulated cell")
+        self._messages: deque[str] = deque(maxlen=50)
+        self._message_total = 0
+        self._t_offset = 0.0
+        self._t_last: float | None = None
+        self._rule: str | None = None
+        self._budget: Any = None
+
+    # ------------------------------------------------------------ process
     def _say(self, text: str) -> None:
         stamp = time.strftime("%H:%M:%S")
         self._messages.append(f"{stamp} {text}")
         self._message_total += 1
 
-    def _run(self) -> None:
+    def run(self) -> None:
+        """Acquire until stopped; every failure ends as a published "failed" state."""
         cell = None
         try:
             port = self.port
@@ -160,7 +291,7 @@ class AcquisitionWorker:
                 cell = self._make_cell()
                 port = cell.port_name
             self._loop(port, cell)
-        except Exception as exc:  # shown in the window; the thread must not die silently
+        except Exception as exc:  # shown in the window; the worker must not die silently
             self._say(f"acquisition stopped: {exc}")
             self._publish(state="failed", error=str(exc))
         finally:
@@ -188,11 +319,15 @@ class AcquisitionWorker:
         from ui.session import LiveSession
 
         session = LiveSession(self.profile, port)
-        self.session = session
         session.start()
         started_cell = False
+        parent = multiprocessing.parent_process()
+        reason = "acquisition failed"  # until the loop ends normally
         try:
-            while not self._stop.is_set():
+            while not self._stop.value:
+                if parent is not None and not parent.is_alive():
+                    self._say("the window's process has ended: stopping")
+                    break
                 started = time.monotonic()
                 got = session.poll()
                 if cell is not None and not started_cell and session.connected_once:
@@ -207,12 +342,12 @@ class AcquisitionWorker:
                 if got.samples.size:
                     self._push(got.samples, got.estimates, session)
                 self._publish_session(session)
-                # Poll about 50 times a second: bigger blocks cost less per sample and
-                # leave the interpreter to the window more often (2 cores, one GIL).
-                self._stop.wait(max(0.0, _POLL_S - (time.monotonic() - started)))
+                # Poll about 50 times a second: bigger blocks cost less per sample.
+                time.sleep(max(0.0, _POLL_S - (time.monotonic() - started)))
+            reason = "window closed" if self._stop.value else "the window's process ended"
         finally:
             if session.recording is not None:
-                summary = session.stop_recording(reason="window closed")
+                summary = session.stop_recording(reason=reason)
                 self._say(f"recording closed: {summary['samples']} samples")
             session.close()
             self._publish_session(session, state="stopped")
@@ -267,7 +402,7 @@ class AcquisitionWorker:
         """The settling rule in words (fixed for a session: worded once)."""
         if monitor is None:
             return ""
-        if getattr(self, "_rule", None) is None:
+        if self._rule is None:
             self._rule = monitor.describe()
         return self._rule
 
@@ -275,7 +410,7 @@ class AcquisitionWorker:
         """Combined standard uncertainty (GUM: observer, calibration, resolution), N."""
         from estimator.uncertainty import ForceUncertainty
 
-        if getattr(self, "_budget", None) is None:
+        if self._budget is None:
             self._budget = ForceUncertainty.from_profile(self.profile)
         return self._budget.combined_n(est["force_n"], est["force_u_n"])
 
@@ -308,11 +443,11 @@ class AcquisitionWorker:
         )
 
     def _publish(self, **changes: Any) -> None:
-        with self._lock:
-            values = {
-                **self._status.__dict__,
-                **changes,
-                "messages": tuple(self._messages),
-                "message_total": self._message_total,
-            }
-            self._status = WorkerStatus(**values)
+        values = {
+            **self._status.__dict__,
+            **changes,
+            "messages": tuple(self._messages),
+            "message_total": self._message_total,
+        }
+        self._status = WorkerStatus(**values)
+        self._box.put(self._status)
