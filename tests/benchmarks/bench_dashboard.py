@@ -129,8 +129,10 @@ def live_pass(seconds: float, *, external: bool) -> tuple[float, float, float]:
             "  longest gaps (ms) and when (s):",
             [(round(gaps[i] * 1e3, 1), round(ticks_a[10 + i] - start, 2)) for i in top],
         )
-    status = window.worker.status()
-    received = status.samples / (status.time_s * RATE_HZ) if status.time_s > 0 else 0.0
+    # Received share: samples in hand over the samples the device sent from the first
+    # one received (a device that starts before the port is opened is not a loss).
+    t = window.buffer.latest(window.buffer.capacity)[0]
+    received = t.size / ((t[-1] - t[0]) * RATE_HZ + 1.0) if t.size > 1 else 0.0
     probe.stop()
     window.close()
     if sim is not None:

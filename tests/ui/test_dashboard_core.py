@@ -134,3 +134,66 @@ def test_band_envelope_bounds_the_band_and_skips_gaps() -> None:
     assert x.size < 300  # the empty columns of the gap are left out
     assert np.all(lo <= hi)
     assert lo.min() == pytest.approx((f - u).min()) and hi.max() == pytest.approx((f + u).max())
+
+
+def test_since_hands_each_sample_over_once_and_only_what_is_held() -> None:
+    buf = TraceBuffer(1000)
+    t = np.arange(5000) * 1e-3
+    rng = np.random.default_rng(5)
+    seen, total, i = [], 0, 0
+    while i < t.size:
+        n = int(rng.integers(1, 300))
+        buf.append(_cols(t[i : i + n]))
+        i += n
+        got, total = buf.since(total)
+        seen.append(got[0])
+    np.testing.assert_array_equal(np.concatenate(seen), t)
+    assert total == 5000
+    # More appended than the buffer holds: only the held (latest) samples come back.
+    buf.append(_cols(t[-1] + 1e-3 * np.arange(1, 1501)))
+    got, total = buf.since(total)
+    np.testing.assert_array_equal(got[0], t[-1] + 1e-3 * np.arange(501, 1501))
+    # With a span: only samples within span_s of the newest.
+    got, _ = buf.since(0, span_s=0.0995)
+    np.testing.assert_allclose(got[0], t[-1] + 1e-3 * np.arange(1401, 1501), rtol=0, atol=1e-12)
+
+
+def test_running_envelope_equals_a_column_by_column_reduction() -> None:
+    # Reference: for each column [j·w, (j+1)·w) with samples, the min and max of its
+    # finite values, computed one column at a time (the definition, written plainly).
+    from ui.dashboard.envelope import RunningEnvelope
+
+    rng = np.random.default_rng(6)
+    t = np.cumsum(rng.uniform(0.5e-4, 1.5e-4, 40_000))
+    t = np.concatenate([t[:15_000], t[25_000:] + 0.5])  # a 0.5 s gap in the data
+    values = rng.normal(0.0, 1.0, (2, t.size))
+    values[0, rng.integers(0, t.size, 200)] = np.nan  # lost values in one trace
+    values[1, 5000] = 40.0  # a single-sample spike
+    w, span = 1e-3, 1.2
+    env = RunningEnvelope(w, span)
+    i = 0
+    while i < t.size:  # blocks as the worker hands them over
+        n = int(rng.integers(1, 900))
+        env.add(t[i : i + n], values[:, i : i + n])
+        i += n
+    mid, lo, hi = env.columns()
+    col = np.floor(t / w).astype(np.int64)
+    first = int(np.floor((t[-1] - span) / w))
+    wanted = np.unique(col[col >= first])
+    np.testing.assert_allclose(mid, (wanted + 0.5) * w, rtol=0, atol=1e-12)
+    for j, c in enumerate(wanted):
+        inside = values[:, col == c]
+        for k in range(2):
+            finite = inside[k][np.isfinite(inside[k])]
+            if finite.size:
+                assert lo[k, j] == finite.min() and hi[k, j] == finite.max()
+            else:
+                assert np.isnan(lo[k, j]) and np.isnan(hi[k, j])
+    # The whole history, kept with a long span, still shows the spike and the gap.
+    env_all = RunningEnvelope(w, 100.0)
+    env_all.add(t, values)
+    mid_all, _, hi_all = env_all.columns()
+    assert np.nanmax(hi_all[1]) == 40.0
+    assert np.max(np.diff(mid_all)) > 0.5  # no columns inside the gap
+    with pytest.raises(ValueError, match="time goes back"):
+        env_all.add(t[:10], values[:, :10])

@@ -40,6 +40,18 @@ def test_window_reads_the_simulated_cell_records_and_the_run_replays(
     assert text.endswith(" N") and float(text.split()[0]) == pytest.approx(40.0, rel=0.02)
     assert "(U, k = 2" in window.u_label.text()
     assert window.frames > 0
+    # The live curve (running per-column envelope) shows every extreme of the window:
+    # the 40 N step and the ringing of k·x, nothing beyond the samples it was given.
+    window.timer.stop()
+    window.redraw()
+    t1 = window._running.t_last
+    data = window.buffer.window(window.window_s, end_s=t1)
+    w = window._running.column_s
+    wider = window.buffer.window(window.window_s + w, end_s=t1)  # the oldest partial column
+    for curve, row in ((window.c_force, 2), (window.c_static, 4)):
+        y = curve.getData()[1]
+        assert y.max() >= data[row].max() and y.min() <= data[row].min()
+        assert y.max() <= wider[row].max() and y.min() >= wider[row].min()
     window.record_button.click()  # stop recording
     qtbot.waitUntil(lambda: worker.status().recording == "", timeout=10_000)
     window.close()  # stops the worker

@@ -135,6 +135,30 @@ class TraceBuffer:
                 need -= take
             return self._take(ranges)
 
+    def since(self, total: int, span_s: float | None = None) -> tuple[np.ndarray, int]:
+        """The samples appended after the first `total`, and the new total, read together.
+
+        Only samples still held are returned, and with `span_s` only those with time
+        ≥ (newest time − span_s). Feeding the returned total back in gives each sample
+        once: what a drawing kept up to date incrementally needs. Shape (5, m).
+        """
+        with holding(self._lock) as got:
+            end = self._end
+            if not got:
+                return self._take([]), total
+            start = max(int(total), end - min(end, self.capacity), 0)
+            if start >= end:
+                return self._take([]), end
+            a, b = start % self.capacity, (end - 1) % self.capacity + 1
+            ranges = [(a, b)] if a < b else [(a, self.capacity), (0, b)]
+            if span_s is not None:
+                t_from = float(self._data[0, b - 1]) - span_s
+                ranges = [
+                    (a + int(np.searchsorted(self._data[0, a:b], t_from, side="left")), b)
+                    for a, b in ranges
+                ]
+            return self._take(ranges), end
+
     def window(self, span_s: float, end_s: float | None = None) -> np.ndarray:
         """Samples with time in [end − span, end] (end: the latest time); shape (5, m).
 

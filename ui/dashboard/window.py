@@ -23,7 +23,7 @@ import pyqtgraph as pg
 from pyqtgraph.Qt import QtCore, QtGui, QtWidgets
 
 from ui.dashboard.buffer import TraceBuffer
-from ui.dashboard.envelope import band_envelope, line_envelope
+from ui.dashboard.envelope import RunningEnvelope, band_envelope, line_envelope
 from ui.dashboard.worker import AcquisitionWorker, SimulatedSource, WorkerStatus
 from ui.safety import CAUTION
 
@@ -66,6 +66,7 @@ def _ms(seconds: float) -> str:
 _SEVERITY_COLOURS = {"critical": "#8e244d", "warning": "#a86b00", "advisory": "#37474f"}
 _PANEL_BG = "#f4f6f7"
 _MAX_WINDOW_S = 120.0
+_AXIS_WIDTH_PX = 64
 
 
 class TickGrid(pg.GraphicsObject):
@@ -120,7 +121,9 @@ def _runs(x: np.ndarray) -> list[tuple[int, int]]:
     """Index ranges [a, b) of `x` (increasing, (m,)) without a gap of > 3 typical steps."""
     dx = np.diff(x)
     steps = dx[dx > 0]  # envelope points come in pairs at one x
-    typical = float(np.median(steps)) if steps.size else 0.0
+    # The (upper) median step; np.partition, as np.median's first call imports numpy.ma
+    # (~30 ms) in the middle of a frame.
+    typical = float(np.partition(steps, steps.size // 2)[steps.size // 2]) if steps.size else 0.0
     cuts = np.flatnonzero(dx > 3.0 * typical) + 1 if typical > 0 else np.zeros(0, int)
     bounds = [0, *cuts.tolist(), x.size]
     return list(itertools.pairwise(bounds))
@@ -142,6 +145,19 @@ def _fit_y(plot: Any, curves: list[np.ndarray]) -> None:
         return
     pad = 0.08 * span
     plot.setYRange(lo - pad, hi + pad, padding=0.0)
+
+
+def _set_text(label: QtWidgets.QLabel, text: str) -> None:
+    """Set a label's text only when it changes (a change may re-lay out the panel)."""
+    if label.text() != text:
+        label.setText(text)
+
+
+def _fixed_size(label: QtWidgets.QLabel, width: int) -> None:
+    """Give a label that changes every frame a fixed size: a label whose minimum and
+    maximum sizes agree does not re-lay out the panel when its text changes."""
+    label.ensurePolished()  # the style sheet's font counts in the height
+    label.setFixedSize(width, label.sizeHint().height())
 
 
 def _line(curve: Any, x: np.ndarray, y: np.ndarray) -> None:
@@ -227,6 +243,9 @@ class DashboardWindow(QtWidgets.QMainWindow):
         self._last_tick: float | None = None
         self._relative_axis: bool | None = None
         self._x_range: tuple[float, float] | None = None
+        self._running: RunningEnvelope | None = None  # live envelopes, updated per frame
+        self._running_key: tuple[Any, float, int] | None = None
+        self._running_total = 0
         self.setWindowTitle("forcelens — live force")
         self.resize(1500, 900)
         pg.setConfigOptions(antialias=False, background="w", foreground=(35, 35, 35))
@@ -262,6 +281,10 @@ class DashboardWindow(QtWidgets.QMainWindow):
         self.p_f.setLabel("bottom", "device time", units="s")
         _add_grid(self.p_f)
         self.p_f.setXLink(self.p_x)
+        for plot in (self.p_x, self.p_f):
+            # A fixed axis width: wider tick labels after a load change would otherwise
+            # re-lay out both plots in the middle of a frame (and the plots stay aligned).
+            plot.getAxis("left").setWidth(_AXIS_WIDTH_PX)
         self.plots.ci.layout.setRowStretchFactor(1, 2)
         legend = self.p_f.addLegend(offset=(10, 10))
         self.band = BandItem(_BAND)
@@ -386,6 +409,11 @@ class DashboardWindow(QtWidgets.QMainWindow):
             widget.setTextInteractionFlags(QtCore.Qt.TextInteractionFlag.TextSelectableByMouse)
             grid.addWidget(widget, i, 1)
         lay.addLayout(grid)
+        margins = lay.contentsMargins()
+        inner = panel.maximumWidth() - margins.left() - margins.right()
+        for label in (self.force_label, self.u_label, self.x_label):
+            _fixed_size(label, inner)
+        _fixed_size(self.rate_label, 200)
         lay.addSpacing(8)
         self.note_edit = QtWidgets.QLineEdit()
         self.note_edit.setPlaceholderText("note for the recording")
@@ -568,6 +596,9 @@ class DashboardWindow(QtWidgets.QMainWindow):
             self.worker.acknowledge(item.data(QtCore.Qt.ItemDataRole.UserRole))
 
     def _show_tile(self, state: str, valid_since_s: float | None) -> None:
+        if (state, valid_since_s) == getattr(self, "_tile_shown", None):
+            return  # a new style sheet re-polishes and re-lays out the panel: only on change
+        self._tile_shown = (state, valid_since_s)
         text, colour = _TILES.get(state, (state.upper(), "#37474f"))
         html_text = f"<span style='font-size: 19pt; font-weight: 700;'>{text}</span>"
         if state == "settled" and valid_since_s is not None:
@@ -736,40 +767,91 @@ class DashboardWindow(QtWidgets.QMainWindow):
         self._show_status(status)
         if self.frozen or status.state == "failed":
             return  # a failed worker may have died holding the buffer's lock: don't wait on it
-        data = self.buffer.window(self.window_s)
-        if data.shape[1] < 2:
-            return
-        t, x, f, u, kx = data
-        t1 = float(t[-1])
-        t0 = t1 - self.window_s
         bins = max(100, int(self.p_f.getViewBox().width()))
         # Live, the time axis is relative to the newest sample: its range and ticks stay
         # put, so the axes and grid are not redrawn every frame. Replay keeps device time.
         live = self.playback is None
+        rate = self.profile.acquisition.sample_rate_hz
+        if live and self.window_s * rate >= 4 * bins:
+            traces = self._running_traces(bins)  # dense: only the new samples are reduced
+        else:
+            traces = self._window_traces(bins)
+        if traces is None:
+            return
+        t_first, t1, xs, fs, ks, band = traces
+        t0 = t1 - self.window_s
         shift = t1 if live else 0.0
-        xs = line_envelope(t, x, t0, t1, bins)
-        fs = line_envelope(t, f, t0, t1, bins)
         _line(self.c_x, xs[0] - shift, xs[1])
         _line(self.c_force, fs[0] - shift, fs[1])
         shown = [fs[1]]
-        if self.c_static.isVisible():
-            ks = line_envelope(t, kx, t0, t1, bins)
+        if ks is not None:
             _line(self.c_static, ks[0] - shift, ks[1])
             shown.append(ks[1])
-        bx, blo, bhi = band_envelope(t, f - 2.0 * u, f + 2.0 * u, t0, t1, bins)
-        self.band.set_band(bx - shift, blo, bhi)
+        self.band.set_band(band[0] - shift, band[1], band[2])
         _fit_y(self.p_x, [xs[1]])
         _fit_y(self.p_f, shown)
         self._set_time_axis(live)
         if live:
             x_range = (-self.window_s, 0.0)
         else:  # until the window is full the trace grows from the left edge
-            left = max(t0, float(t[0]))
+            left = max(t0, t_first)
             x_range = (left, left + self.window_s)
         if x_range != self._x_range:
             self.p_f.setXRange(*x_range, padding=0.0)
             self._x_range = x_range
         self.frames += 1
+
+    def _window_traces(self, bins: int) -> Any:
+        """Envelopes of the samples in the time window, read whole (replay, sparse data)."""
+        data = self.buffer.window(self.window_s)
+        if data.shape[1] < 2:
+            return None
+        t, x, f, u, kx = data
+        t1 = float(t[-1])
+        t0 = t1 - self.window_s
+        ks = line_envelope(t, kx, t0, t1, bins) if self.c_static.isVisible() else None
+        return (
+            float(t[0]),
+            t1,
+            line_envelope(t, x, t0, t1, bins),
+            line_envelope(t, f, t0, t1, bins),
+            ks,
+            band_envelope(t, f - 2.0 * u, f + 2.0 * u, t0, t1, bins),
+        )
+
+    def _running_traces(self, bins: int) -> Any:
+        """The same envelopes, kept up to date from the samples that arrived since the
+        last frame (columns fixed in device time, one per pixel of the window)."""
+        key = (self.buffer, self.window_s, bins)  # the buffer by identity
+        if self._running is None or self._running_key != key:
+            self._running = RunningEnvelope(self.window_s / bins, self.window_s)
+            self._running_key = key
+            self._running_total = 0
+        data, self._running_total = self.buffer.since(self._running_total, self.window_s)
+        if data.shape[1]:
+            t, x, f, u, kx = data
+            if t[0] < self._running.t_last:  # cannot happen with the worker's clock; be safe
+                self._running = None
+                return self._window_traces(bins)
+            self._running.add(t, np.vstack([x, f, kx, f - 2.0 * u, f + 2.0 * u]))
+        mid, lo, hi = self._running.columns()
+        if mid.size < 2:
+            return None
+
+        def line(row: int) -> tuple[np.ndarray, np.ndarray]:
+            keep = np.isfinite(lo[row]) & np.isfinite(hi[row])
+            return np.repeat(mid[keep], 2), np.column_stack([lo[row, keep], hi[row, keep]]).ravel()
+
+        keep = np.isfinite(lo[3]) & np.isfinite(hi[4])
+        t1 = self._running.t_last
+        return (
+            float(mid[0]),
+            t1,
+            line(0),
+            line(1),
+            line(2) if self.c_static.isVisible() else None,
+            (mid[keep], lo[3, keep], hi[4, keep]),
+        )
 
     def _set_time_axis(self, live: bool) -> None:
         if live != self._relative_axis:
@@ -780,22 +862,22 @@ class DashboardWindow(QtWidgets.QMainWindow):
 
     def _show_status(self, s: WorkerStatus) -> None:
         if math.isfinite(s.force_n):
-            self.force_label.setText(f"{s.force_n:.3f} N")
-            self.u_label.setText(f"± {2.0 * s.force_u_n:.3f} N   (U, k = 2, ≈95 %)")
-            self.x_label.setText(f"displacement {s.displacement_m * 1e3:.6f} mm")
-        self.state_label.setText(s.state + (f" — {s.error}" if s.error else ""))
+            _set_text(self.force_label, f"{s.force_n:.3f} N")
+            _set_text(self.u_label, f"± {2.0 * s.force_u_n:.3f} N   (U, k = 2, ≈95 %)")
+            _set_text(self.x_label, f"displacement {s.displacement_m * 1e3:.6f} mm")
+        _set_text(self.state_label, s.state + (f" — {s.error}" if s.error else ""))
         if s.rate_hz is not None:
             drift = f" ({s.drift_ppm:+.0f} ppm)" if s.drift_ppm is not None else ""
-            self.rate_label.setText(f"{s.rate_hz:.1f} S/s{drift}")
+            _set_text(self.rate_label, f"{s.rate_hz:.1f} S/s{drift}")
         elif self.playback is not None:
             rate = self.playback.profile.acquisition.sample_rate_hz
-            self.rate_label.setText(f"{rate:g} S/s (nominal, recorded run)")
+            _set_text(self.rate_label, f"{rate:g} S/s (nominal, recorded run)")
         else:
-            self.rate_label.setText("measuring…")
-        self.lost_label.setText(f"{s.lost} lost, {s.rejected} bad frames")
-        self.rec_label.setText(s.recording or "not recording")
+            _set_text(self.rate_label, "measuring…")
+        _set_text(self.lost_label, f"{s.lost} lost, {s.rejected} bad frames")
+        _set_text(self.rec_label, s.recording or "not recording")
         self._show_tile(s.settling or "waiting", s.valid_since_s)
-        self.rule_label.setText(s.settling_rule)
+        _set_text(self.rule_label, s.settling_rule)
         self._show_alarms(s.alarms)
         self._show_messages(s)
 
