@@ -134,3 +134,44 @@ def test_the_worker_closes_its_recording_when_the_window_process_is_killed(
     (folder,) = [p.parent for p in (tmp_path / "runs").glob("*/run.json")]
     data = read_run(folder)
     assert data.closed and data.closing["summary"]["reason"] == "the window's process ended"
+
+
+def test_the_built_in_cell_process_sends_nothing_before_go_then_every_sample() -> None:
+    from daq.lines import LineDecoder
+    from daq.samples import concat_blocks
+    from daq.scaling import Scaling
+    from daq.serial_source import SerialSource
+    from ui.dashboard.worker import CellProcess
+
+    profile = default_demo_profile()
+    # Invented programme: 0.25 s at 10 N, played twice as fast, once.
+    cell = CellProcess(profile, SimulatedSource(programme="hold 0.25 10", speed=2.0, loop=False))
+    try:
+        tr = profile.transducer
+        scaling = Scaling(tr.volts_per_count, tr.metres_per_volt, tr.zero_volts)
+        with SerialSource(cell.port_name, 921600, LineDecoder(scaling)) as src:
+            early = src.read_block(0.5)  # the port is open, no go yet
+            cell.start()
+            blocks = []
+            deadline = time.monotonic() + 10.0
+            while time.monotonic() < deadline and sum(b.size for b in blocks) < 500:
+                blocks.append(src.read_block(0.05))
+    finally:
+        cell.stop()
+    assert early.size == 0
+    # 0.25 s at the demo profile's 2 kHz: 500 samples, all of them, in order.
+    np.testing.assert_array_equal(concat_blocks(blocks)["seq"], np.arange(500))
+    assert not os.path.exists(cell.port_name)  # stopped as Ctrl-C stops it: port removed
+
+
+def test_a_simulated_cell_that_cannot_start_is_reported_with_its_reason(tmp_path: Path) -> None:
+    sim = SimulatedSource(faults="melt@1")  # no such fault kind
+    worker = AcquisitionWorker(
+        default_demo_profile(), None, TraceBuffer(1000), runs_root=tmp_path, simulated=sim
+    ).start()
+    try:
+        _wait(lambda: worker.status().state == "failed")
+    finally:
+        worker.stop()
+    error = worker.status().error
+    assert "simulated cell did not start" in error and "melt" in error

@@ -92,6 +92,14 @@ def register(subparsers: argparse._SubParsersAction) -> None:
             "the port first (opening a port discards what arrived before; default 2)"
         ),
     )
+    parser.add_argument(
+        "--start-on-input",
+        action="store_true",
+        help=(
+            "start when a line arrives on standard input instead of after --start-delay "
+            "(for a program that opens the port first and then says go)"
+        ),
+    )
     parser.set_defaults(run=run_simulate)
 
 
@@ -159,7 +167,10 @@ def run_simulate(args: argparse.Namespace) -> int:
             flush=True,
         )
         try:
-            time.sleep(args.start_delay)
+            if args.start_on_input:
+                sys.stdin.readline()  # a line, or end of input: go
+            else:
+                time.sleep(args.start_delay)
             pty.start()
             while not pty.wait(0.2):
                 if pty.error is not None:

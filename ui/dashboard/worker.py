@@ -30,7 +30,7 @@ from ui.dashboard.buffer import PROCESS_CONTEXT, TraceBuffer, holding
 if TYPE_CHECKING:
     from estimator.profile import CellProfile
 
-__all__ = ["AcquisitionWorker", "SimulatedSource", "StatusBox", "WorkerStatus"]
+__all__ = ["AcquisitionWorker", "CellProcess", "SimulatedSource", "StatusBox", "WorkerStatus"]
 
 _POLL_S = 0.02  # time between two polls of the session, s
 _ENDED = ("stopped", "failed")
@@ -71,6 +71,73 @@ class WorkerStatus:
     messages: tuple[str, ...] = field(default_factory=tuple)  # the latest ones, oldest first
     message_total: int = 0  # messages said since the start (the window shows the new ones)
     error: str = ""
+
+
+class CellProcess:
+    """The built-in simulated cell, run as ``forcelens simulate`` in a process of its own.
+
+    A real device costs our processes nothing. The simulated one, run on threads beside
+    the session, competed with it for the interpreter lock and, with the window, for 2
+    cores; in its own process it is what it stands for: a device at the end of a port.
+    Its samples start when `start` is called (once the session has opened the port),
+    so nothing is sent before anyone listens. Invented data.
+    """
+
+    def __init__(self, profile: CellProfile, simulated: SimulatedSource) -> None:
+        import re
+        import subprocess
+        import sys
+        import tempfile
+
+        from daq.errors import SourceError
+        from estimator.profile import save_profile
+
+        self._folder = tempfile.TemporaryDirectory(prefix="forcelens-cell-profile-")
+        path = Path(self._folder.name) / "cell.toml"
+        save_profile(profile, path)
+        sim = simulated
+        cmd = [sys.executable, "-m", "ui.cli", "simulate", "--profile", str(path)]
+        cmd += ["--seed", str(sim.seed), "--speed", repr(float(sim.speed))]
+        cmd += ["--start-on-input"]
+        cmd += ["--programme", sim.programme] if sim.programme else []
+        cmd += ["--faults", sim.faults] if sim.faults else []
+        cmd += ["--loop"] if sim.loop else []
+        self._process = subprocess.Popen(
+            cmd, stdin=subprocess.PIPE, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True
+        )
+        assert self._process.stdout is not None and self._process.stderr is not None
+        assert self._process.stdin is not None
+        first = self._process.stdout.readline()  # "simulated cell on PORT — ..."
+        found = re.search(r" on (\S+) ", first)
+        if found is None:
+            self._process.wait(10)
+            said = (self._process.stderr.read() or first).strip()
+            self._folder.cleanup()
+            raise SourceError(f"the simulated cell did not start: {said}")
+        self.port_name = found.group(1)
+
+    def start(self) -> None:
+        """Tell the cell to start streaming (the port is open by now)."""
+        assert self._process.stdin is not None
+        self._process.stdin.write("go\n")
+        self._process.stdin.flush()
+
+    def stop(self) -> None:
+        """Stop the cell as Ctrl-C would (it removes its port), killing it if it lingers."""
+        import signal
+        import subprocess
+
+        if self._process.poll() is None:
+            self._process.send_signal(signal.SIGINT)
+            try:
+                self._process.wait(5)
+            except subprocess.TimeoutExpired:
+                self._process.kill()
+                self._process.wait(5)
+        for stream in (self._process.stdin, self._process.stdout, self._process.stderr):
+            if stream is not None:
+                stream.close()
+        self._folder.cleanup()
 
 
 class StatusBox:
@@ -298,22 +365,10 @@ class _Acquisition:
             if cell is not None:
                 cell.stop()
 
-    def _make_cell(self) -> Any:
-        from daq.programme import demo_programme, parse_programme
-        from daq.simulator import PtyCell
-        from ui.wiring import parse_faults, simulated_cell_for
+    def _make_cell(self) -> CellProcess:
+        import ui.session  # noqa: F401 - imported before the cell streams, not after
 
-        sim = self.simulated
-        programme = parse_programme(sim.programme) if sim.programme else demo_programme()
-        model = simulated_cell_for(self.profile, seed=sim.seed)
-        return PtyCell(
-            model.generate(programme),
-            speed=sim.speed,
-            loop=sim.loop,
-            regenerate=lambda rep: model.generate(programme, seed=sim.seed + rep),
-            framing=self.profile.acquisition.framing,
-            faults=parse_faults(sim.faults),
-        )
+        return CellProcess(self.profile, self.simulated)
 
     def _loop(self, port: str, cell: Any) -> None:
         from ui.session import LiveSession
@@ -333,6 +388,7 @@ class _Acquisition:
                 if cell is not None and not started_cell and session.connected_once:
                     cell.start()
                     started_cell = True
+                    self._say(f"simulated cell (invented data) streaming from {port}")
                 for ev in got.events:
                     self._say(f"{ev.kind}: {ev.message}")
                 for change in got.changes:
