@@ -83,6 +83,8 @@ class TickGrid(pg.GraphicsObject):
         self._plot = plot
         self._pen = pg.mkPen(colour, width=1, cosmetic=True)
         self._rect = QtCore.QRectF()
+        self._lines: list[QtCore.QLineF] = []
+        self._lines_key: tuple[float, ...] | None = None
         self.setZValue(-100)  # under the data
         plot.getViewBox().sigRangeChanged.connect(self._range_changed)
 
@@ -104,12 +106,15 @@ class TickGrid(pg.GraphicsObject):
         if r.isEmpty():
             return
         vb = self._plot.getViewBox()
-        xs = self._major_ticks("bottom", r.left(), r.right(), vb.width())
-        ys = self._major_ticks("left", r.top(), r.bottom(), vb.height())
-        lines = [QtCore.QLineF(x, r.top(), x, r.bottom()) for x in xs]
-        lines += [QtCore.QLineF(r.left(), y, r.right(), y) for y in ys]
+        key = (r.left(), r.top(), r.width(), r.height(), vb.width(), vb.height())
+        if key != self._lines_key:  # the ticks change only with the view: ask once per view
+            xs = self._major_ticks("bottom", r.left(), r.right(), vb.width())
+            ys = self._major_ticks("left", r.top(), r.bottom(), vb.height())
+            self._lines = [QtCore.QLineF(x, r.top(), x, r.bottom()) for x in xs]
+            self._lines += [QtCore.QLineF(r.left(), y, r.right(), y) for y in ys]
+            self._lines_key = key
         painter.setPen(self._pen)
-        painter.drawLines(lines)
+        painter.drawLines(self._lines)
 
 
 def _add_grid(plot: Any) -> None:
