@@ -69,12 +69,19 @@ def test_a_worker_process_that_dies_is_reported_failed_with_its_exit_code(tmp_pa
     ).start()
     try:
         _wait(lambda: buffer.total > 100)
-        assert worker.status().state == "connected"
+        status = worker.status()
+        assert status.state == "connected"
+        (said,) = [m for m in status.messages if "streaming from" in m]
+        cell_port = said.split("streaming from ")[1]
+        assert os.path.exists(cell_port)
         worker._process.kill()  # as a crash would end it
         _wait(lambda: not worker.running)
         status = worker.status()
         assert status.state == "failed"
         assert "ended unexpectedly" in status.error and "-9" in status.error
+        # The cell's process sees its input end and stops, removing its port: a crash
+        # leaves no simulated device running.
+        _wait(lambda: not os.path.exists(cell_port))
     finally:
         worker.stop()
 

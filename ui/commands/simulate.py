@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import argparse
 import sys
+import threading
 import time
 from typing import TYPE_CHECKING
 
@@ -96,8 +97,9 @@ def register(subparsers: argparse._SubParsersAction) -> None:
         "--start-on-input",
         action="store_true",
         help=(
-            "start when a line arrives on standard input instead of after --start-delay "
-            "(for a program that opens the port first and then says go)"
+            "start when a line arrives on standard input instead of after --start-delay, "
+            "and stop when standard input ends (for a program that opens the port first, "
+            "then says go; if that program dies, the cell stops too)"
         ),
     )
     parser.set_defaults(run=run_simulate)
@@ -166,15 +168,27 @@ def run_simulate(args: argparse.Namespace) -> int:
             f"programme {programme.duration_s:g} s" + (", looping" if args.loop else ""),
             flush=True,
         )
+        input_ended = threading.Event()
         try:
             if args.start_on_input:
-                sys.stdin.readline()  # a line, or end of input: go
+                if not sys.stdin.readline():
+                    print("stopped: standard input ended before the go", flush=True)
+                    return 0
+
+                def watch_input() -> None:
+                    sys.stdin.read()  # returns at end of input: whoever started us is gone
+                    input_ended.set()
+
+                threading.Thread(target=watch_input, name="stdin watch", daemon=True).start()
             else:
                 time.sleep(args.start_delay)
             pty.start()
             while not pty.wait(0.2):
                 if pty.error is not None:
                     raise pty.error
+                if input_ended.is_set():
+                    print(f"stopped (input ended): {pty.lines_written} lines written", flush=True)
+                    return 0
         except KeyboardInterrupt:
             print(f"\nstopped: {pty.lines_written} lines written", flush=True)
             return 0

@@ -80,7 +80,8 @@ class CellProcess:
     the session, competed with it for the interpreter lock and, with the window, for 2
     cores; in its own process it is what it stands for: a device at the end of a port.
     Its samples start when `start` is called (once the session has opened the port),
-    so nothing is sent before anyone listens. Invented data.
+    so nothing is sent before anyone listens. It stops when its standard input ends, so
+    a worker that dies does not leave it running. Invented data.
     """
 
     def __init__(self, profile: CellProfile, simulated: SimulatedSource) -> None:
@@ -355,7 +356,7 @@ class _Acquisition:
         try:
             port = self.port
             if port is None:
-                cell = self._make_cell()
+                cell = CellProcess(self.profile, self.simulated)
                 port = cell.port_name
             self._loop(port, cell)
         except Exception as exc:  # shown in the window; the worker must not die silently
@@ -364,11 +365,6 @@ class _Acquisition:
         finally:
             if cell is not None:
                 cell.stop()
-
-    def _make_cell(self) -> CellProcess:
-        import ui.session  # noqa: F401 - imported before the cell streams, not after
-
-        return CellProcess(self.profile, self.simulated)
 
     def _loop(self, port: str, cell: Any) -> None:
         from ui.session import LiveSession
