@@ -154,8 +154,8 @@ class TraceBuffer:
             if span_s is not None:
                 t_from = float(self._data[0, b - 1]) - span_s
                 ranges = [
-                    (a + int(np.searchsorted(self._data[0, a:b], t_from, side="left")), b)
-                    for a, b in ranges
+                    (lo + int(np.searchsorted(self._data[0, lo:hi], t_from, side="left")), hi)
+                    for lo, hi in ranges
                 ]
             return self._take(ranges), end
 

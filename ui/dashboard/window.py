@@ -251,6 +251,7 @@ class DashboardWindow(QtWidgets.QMainWindow):
         self._running: RunningEnvelope | None = None  # live envelopes, updated per frame
         self._running_key: tuple[Any, float, int] | None = None
         self._running_total = 0
+        self._tile_shown: tuple[str, float | None] | None = None
         self.setWindowTitle("forcelens — live force")
         self.resize(1500, 900)
         pg.setConfigOptions(antialias=False, background="w", foreground=(35, 35, 35))
@@ -601,7 +602,7 @@ class DashboardWindow(QtWidgets.QMainWindow):
             self.worker.acknowledge(item.data(QtCore.Qt.ItemDataRole.UserRole))
 
     def _show_tile(self, state: str, valid_since_s: float | None) -> None:
-        if (state, valid_since_s) == getattr(self, "_tile_shown", None):
+        if (state, valid_since_s) == self._tile_shown:
             return  # a new style sheet re-polishes and re-lays out the panel: only on change
         self._tile_shown = (state, valid_since_s)
         text, colour = _TILES.get(state, (state.upper(), "#37474f"))
