@@ -147,3 +147,32 @@ def test_a_stalled_simulated_cell_raises_an_alarm_that_can_be_acknowledged(
         lambda: "alarm raised: 1600 of the last" in window.log.toPlainText(), timeout=10_000
     )
     window.close()
+
+
+def test_a_worker_that_dies_holding_the_buffer_lock_leaves_the_window_responsive(
+    qtbot, tmp_path: Path
+) -> None:
+    # The worst case for the window: the acquisition process is killed while it holds
+    # the trace buffer's lock. The window must say so and keep running its timer without
+    # waiting on that lock (a frame then skips the plots).
+    sim = SimulatedSource(programme="hold 30 0", loop=False)  # invented: unloaded cell
+    window = DashboardWindow(default_demo_profile(), runs_root=tmp_path, simulated=sim)
+    qtbot.addWidget(window)
+    window.show()
+    window.connect_source()
+    worker = window.worker
+    qtbot.waitUntil(lambda: worker.status().samples > 200, timeout=20_000)
+    frames = window.frames
+    qtbot.waitUntil(lambda: window.frames > frames, timeout=10_000)
+    window.buffer._lock.acquire()  # as the worker would hold it mid-append...
+    worker._process.kill()  # ...when it is killed
+    qtbot.waitUntil(lambda: "failed" in window.state_label.text(), timeout=10_000)
+    assert "ended unexpectedly" in window.state_label.text()
+    reads: list[str] = []
+    window.buffer.since = lambda *a, **k: reads.append("since")  # type: ignore[method-assign]
+    window.buffer.window = lambda *a, **k: reads.append("window")  # type: ignore[method-assign]
+    for _ in range(5):
+        window.redraw()  # no buffer read while the worker is failed
+    assert reads == []
+    window.close()  # disconnecting does not touch the buffer's lock either
+    assert window.worker is None
