@@ -20,10 +20,6 @@ from ui.safety import CAUTION
 __all__ = ["register"]
 
 
-_HOLD_S = 0.02  # live settling rule: the last 20 ms lie within the band
-_BAND = 0.02  # 2 % of the reading (common practice)
-
-
 def register(subparsers: Any) -> None:
     p = subparsers.add_parser(
         "demo",
@@ -54,16 +50,14 @@ def register(subparsers: Any) -> None:
 def run(args: argparse.Namespace) -> int:
     import numpy as np
 
-    from daq.lines import LineDecoder
     from daq.programme import demo_programme
     from daq.samples import concat_blocks
     from daq.scaling import Scaling
-    from daq.serial_source import SerialSource
     from daq.simulator import PtyCell, SimulatedCell, write_truth_csv
-    from estimator.observer import ForceObserver, concat_estimates
+    from estimator.observer import concat_estimates
     from estimator.profile import default_demo_profile, load_profile
-    from estimator.settling import is_settled
     from estimator.uncertainty import ForceUncertainty
+    from ui.session import LiveSession
 
     profile = load_profile(args.profile) if args.profile else default_demo_profile()
     out_dir = Path(args.out)
@@ -82,42 +76,49 @@ def run(args: argparse.Namespace) -> int:
         f"ζ {pl.damping_ratio:g}, k {pl.stiffness_n_per_m:g} N/m) at {acq.sample_rate_hz:g} Hz, "
         f"{programme.duration_s:.1f} s of load steps."
     )
-    observer = ForceObserver.from_profile(profile)
     k = pl.stiffness_n_per_m
     samples, estimates = [], []
     live = _StatusLine()
     live.budget = ForceUncertainty.from_profile(profile)
-    recent = max(1, round(_HOLD_S * acq.sample_rate_hz))
-    with PtyCell(truth, speed=args.speed) as pty:  # the port exists from here on
+    # The same path as `forcelens live` and the dashboard: serial reader, decoder of the
+    # profile's framing, estimation pipeline with the settling monitor and the alarms.
+    with PtyCell(truth, speed=args.speed, framing=acq.framing) as pty:  # the port exists
         print(f"simulated cell on {pty.port_name}; connecting through pyserial")
-        decoder = LineDecoder(scaling)
-        deadline = time.monotonic() + programme.duration_s / args.speed + 15.0
-        quiet_since = None
-        # Open the port before the cell starts sending: opening discards what
-        # arrived before, as with a real device.
-        with SerialSource(pty.port_name, acq.baudrate, decoder) as source:
+        session = LiveSession(profile, pty.port_name).start()
+        try:
+            deadline = time.monotonic() + programme.duration_s / args.speed + 15.0
+            # Open the port before the cell starts sending: opening discards what
+            # arrived before, as with a real device.
+            while not session.connected_once and time.monotonic() < deadline:
+                session.poll()
+                time.sleep(0.01)
             pty.start()
+            quiet_since = None
             while time.monotonic() < deadline:
-                block = source.read_block(0.05)
-                if block.size:
+                got = session.poll()
+                if got.samples.size:
                     quiet_since = None
-                    samples.append(block)
-                    est = observer.process(block["device_time_s"], block["displacement_m"])
-                    estimates.append(est)
-                    live.maybe_show(estimates, recent, decoder, is_settled)
+                    samples.append(got.samples)
+                    estimates.append(got.estimates)
+                    live.maybe_show(got.estimates[-1], session)
                 elif pty.finished:
                     quiet_since = quiet_since or time.monotonic()
                     if time.monotonic() - quiet_since > 0.3:
                         break
+                time.sleep(0.02)
+        finally:
+            session.close()
         live.finish()
         if pty.error is not None:
             raise OSError(f"simulated cell stopped: {pty.error}")
     got = concat_blocks(samples)
     est = concat_estimates(estimates)
+    decoded = session.reader.stats().decoder
+    totals = session.pipeline.observer_totals()
     print(
-        f"received {got.size} of {len(truth)} samples; malformed lines {decoder.lines_malformed}, "
-        f"lost {decoder.samples_lost}; observer rejected {observer.counters.rejected}, "
-        f"re-acquired {observer.counters.reacquired}"
+        f"received {got.size} of {len(truth)} samples; malformed lines or frames "
+        f"{decoded.rejected}, lost {decoded.samples_lost}; observer rejected "
+        f"{totals['rejected']}, re-acquired {totals['reacquired']}"
     )
     truth_f = np.asarray(truth.true_force_n)[got["seq"]]
     budget = ForceUncertainty.from_profile(profile)  # GUM: observer, calibration, resolution
@@ -223,24 +224,19 @@ class _StatusLine:
         self.last = 0.0
         self.period = 0.1 if self.tty else 0.5
 
-    def maybe_show(self, estimates: list, recent: int, decoder: Any, is_settled: Any) -> None:
+    def maybe_show(self, e: Any, session: Any) -> None:
+        """Show estimate `e` with the session's settling state and losses (rate-limited)."""
         now = time.monotonic()
         if now - self.last < self.period:
             return
         self.last = now
-        import numpy as np
-
-        tail = estimates[-1]
-        if tail.size < recent and len(estimates) > 1:
-            tail = np.concatenate(estimates[-4:])
-        tail = tail[-recent:]
-        e = tail[-1]
-        settled = is_settled(tail["force_n"], float(e["force_u_n"]), _BAND)
-        state = "settled " if settled else "changing"
+        monitor = session.pipeline.monitor
+        state = monitor.state if monitor is not None else "—"
+        decoded = session.reader.stats().decoder
         line = (
             f"t {e['time_s']:6.2f} s   F {e['force_n']:9.3f} N ± {self.u_expanded(e):.3f} N "
-            f"(U, k=2)   x {e['displacement_m'] * 1e3:8.5f} mm   {state}   "
-            f"lost {decoder.samples_lost}  bad lines {decoder.lines_malformed}"
+            f"(U, k=2)   x {e['displacement_m'] * 1e3:8.5f} mm   {state:<8}   "
+            f"lost {decoded.samples_lost}  bad {decoded.rejected}"
         )
         if self.tty:
             print("\r" + line, end="", flush=True)
