@@ -9,7 +9,7 @@ import pytest
 
 from estimator.errors import ParameterError
 from estimator.plant import Plant
-from estimator.settling import is_settled, settling_band_n, time_to_settle
+from estimator.settling import time_to_settle
 
 
 def test_time_to_settle_on_a_decaying_exponential() -> None:
@@ -38,12 +38,3 @@ def test_time_to_settle_edge_cases() -> None:
     assert math.isnan(time_to_settle(t, np.ones(10), 5.0, 6.0, 1.0, 0.1))  # no samples
     with pytest.raises(ParameterError, match="band"):
         time_to_settle(t, np.ones(10), 0.0, 1.0, 1.0, 0.0)
-
-
-def test_is_settled_band_rule() -> None:
-    assert settling_band_n(50.0, 0.1) == pytest.approx(1.0)  # 2 % of 50 N
-    assert settling_band_n(0.0, 0.1) == pytest.approx(0.2)  # U = 2u at zero load
-    assert is_settled(np.array([49.5, 50.0, 50.5]), 0.1)
-    assert not is_settled(np.array([48.0, 50.0, 52.0]), 0.1)
-    assert not is_settled(np.array([]), 0.1)
-    assert not is_settled(np.array([50.0, np.nan]), 0.1)
