@@ -390,13 +390,11 @@ class DashboardWindow(QtWidgets.QMainWindow):
         lay.addWidget(self.x_label)
         self.tile = QtWidgets.QLabel()
         self.tile.setAlignment(QtCore.Qt.AlignmentFlag.AlignCenter)
-        self.tile.setMinimumHeight(64)
         lay.addWidget(self.tile)
         self.rule_label = QtWidgets.QLabel()
         self.rule_label.setWordWrap(True)
         self.rule_label.setStyleSheet("color: #455a64; font-size: 8pt;")
         lay.addWidget(self.rule_label)
-        self._show_tile("waiting", None)
         lay.addSpacing(6)
         grid = QtWidgets.QGridLayout()
         self.state_label = QtWidgets.QLabel("not connected")
@@ -420,6 +418,16 @@ class DashboardWindow(QtWidgets.QMainWindow):
         for label in (self.force_label, self.u_label, self.x_label):
             _fixed_size(label, inner)
         _fixed_size(self.rate_label, 200)
+        # The tile: each state drawn once now, so that its style and large glyphs are
+        # cached before the first load change, and a fixed size (the tallest state's).
+        tallest = 0
+        for state in _TILES:
+            self._show_tile(state, 0.0)
+            self.tile.ensurePolished()
+            self.tile.grab()
+            tallest = max(tallest, self.tile.sizeHint().height())
+        self._show_tile("waiting", None)
+        self.tile.setFixedSize(inner, tallest)
         lay.addSpacing(8)
         self.note_edit = QtWidgets.QLineEdit()
         self.note_edit.setPlaceholderText("note for the recording")

@@ -14,7 +14,9 @@ never delays a poll. Nothing here imports Qt.
 
 from __future__ import annotations
 
+import contextlib
 import multiprocessing
+import os
 import pickle
 import queue
 import time
@@ -34,6 +36,7 @@ __all__ = ["AcquisitionWorker", "CellProcess", "SimulatedSource", "StatusBox", "
 
 _POLL_S = 0.02  # time between two polls of the session, s
 _ENDED = ("stopped", "failed")
+_CELL_NICENESS = 5  # the built-in simulated cell's process runs this much nicer
 
 
 @dataclass(frozen=True)
@@ -108,6 +111,10 @@ class CellProcess:
         )
         assert self._process.stdout is not None and self._process.stderr is not None
         assert self._process.stdin is not None
+        # A stand-in for a device, it yields the cores to the acquisition and the window
+        # when they are short (it only sends later then; nothing is lost).
+        with contextlib.suppress(OSError, AttributeError):  # not on every platform
+            os.setpriority(os.PRIO_PROCESS, self._process.pid, _CELL_NICENESS)
         first = self._process.stdout.readline()  # "simulated cell on PORT — ..."
         found = re.search(r" on (\S+) ", first)
         if found is None:
@@ -381,12 +388,12 @@ class _Acquisition:
                     break
                 started = time.monotonic()
                 got = session.poll()
+                for ev in got.events:
+                    self._say(f"{ev.kind}: {ev.message}")
                 if cell is not None and not started_cell and session.connected_once:
                     cell.start()
                     started_cell = True
                     self._say(f"simulated cell (invented data) streaming from {port}")
-                for ev in got.events:
-                    self._say(f"{ev.kind}: {ev.message}")
                 for change in got.changes:
                     if getattr(change, "alarm_id", None):
                         self._say(f"alarm {change.event}: {change.message}")
