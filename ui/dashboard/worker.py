@@ -228,20 +228,14 @@ class AcquisitionWorker:
     def start(self) -> AcquisitionWorker:
         """Start the worker process (once); returns self."""
         if self._process is None:
+            acquisition = _Acquisition(
+                self.profile, self.port, self.buffer, self.runs_root, self.simulated,
+                self._commands, self._stop, self._box,
+            )  # fmt: skip
+            # The bound method is pickled to the new process with what it holds: the
+            # shared buffer, box, flag and queue, not copies of them.
             self._process = PROCESS_CONTEXT.Process(
-                target=_acquire,
-                args=(
-                    self.profile,
-                    self.port,
-                    self.buffer,
-                    self.runs_root,
-                    self.simulated,
-                    self._commands,
-                    self._stop,
-                    self._box,
-                ),
-                name="forcelens-acquisition",
-                daemon=True,
+                target=acquisition.run, name="forcelens-acquisition", daemon=True
             )
             self._process.start()
         return self
@@ -306,21 +300,6 @@ class AcquisitionWorker:
         self._commands.put(("ack", (alarm_id,)))
 
 
-def _acquire(
-    profile: CellProfile,
-    port: str | None,
-    buffer: TraceBuffer,
-    runs_root: Path,
-    simulated: SimulatedSource,
-    commands: Any,
-    stop: Any,
-    box: StatusBox,
-) -> None:
-    """The worker process: run the session until `stop` is set or the window's process
-    is gone (then a recording in progress is closed cleanly all the same)."""
-    _Acquisition(profile, port, buffer, runs_root, simulated, commands, stop, box).run()
-
-
 class _Acquisition:
     """The worker process's side: the session, its commands and its published status."""
 
@@ -358,7 +337,9 @@ class _Acquisition:
         self._message_total += 1
 
     def run(self) -> None:
-        """Acquire until stopped; every failure ends as a published "failed" state."""
+        """The worker process: acquire until stopped or until the window's process is
+        gone (a recording in progress is closed cleanly either way); every failure ends
+        as a published "failed" state."""
         cell = None
         try:
             port = self.port
