@@ -29,14 +29,14 @@ The rule (:class:`SettlingRule`, shown to the user by :meth:`SettlingRule.descri
   ``N = round(hold_s · sample_rate_hz)``, so they span exactly ``hold_s``) is complete
   and every estimate in it lies within ``mean ± b``;
 * *leave* ``settled`` when the spread, or the newest estimate's distance from the mean,
-  exceeds ``release_factor · b`` (hysteresis), or when the observer rejects a sample or
-  re-acquires;
+  exceeds ``release_factor · b`` (hysteresis), or when the observer holds a sample as a
+  possible outlier or its jump model takes over;
 * *enter* ``out-of-range`` when the newest estimate is outside
   ``[force_min_n, force_max_n]``; *leave* it when the estimate is back inside by at
   least the band (hysteresis).
 
-A gap in time (``FLAG_GAP``), a missing sample (``FLAG_MISSING``), a re-acquisition
-(``FLAG_REACQUIRED``), a non-finite estimate or a time that goes back (device restart)
+A gap in time (``FLAG_GAP``), a missing sample (``FLAG_MISSING``), a load jump
+(``FLAG_JUMP``), a non-finite estimate or a time that goes back (device restart)
 starts the hold window again: the monitor never claims the force stayed steady over a
 time it did not observe.
 
@@ -57,8 +57,8 @@ from estimator.errors import ParameterError
 from estimator.observer import (
     ESTIMATE_DTYPE,
     FLAG_GAP,
+    FLAG_JUMP,
     FLAG_MISSING,
-    FLAG_REACQUIRED,
     FLAG_REJECTED,
 )
 
@@ -352,7 +352,7 @@ class SettlingMonitor:
         finite = np.isfinite(f) & np.isfinite(u)
         t_prev = np.concatenate(([self._t_last], t[:-1]))
         back = ~(t > t_prev)  # time went back (or NaN): device restart
-        restart_here = ((flags & (FLAG_GAP | FLAG_REACQUIRED)) != 0) | back
+        restart_here = ((flags & (FLAG_GAP | FLAG_JUMP)) != 0) | back
         restart_after = ((flags & FLAG_MISSING) != 0) | ~finite
         candidate = np.where(restart_after, pos + 1, np.where(restart_here, pos, -1))
         anchor = np.maximum.accumulate(np.maximum(candidate, self._anchor))
@@ -387,7 +387,7 @@ class SettlingMonitor:
             full = count == h + 1
             steady = usable & full & (spread <= band)
             holds = usable & full & (spread <= rule.release_factor * band)
-            jumped = (flags & (FLAG_REJECTED | FLAG_REACQUIRED)) != 0
+            jumped = (flags & (FLAG_REJECTED | FLAG_JUMP)) != 0
             step = np.abs(f - mean)
             changing = usable & (jumped | (step > band))
             # once settled, only a step beyond the release band unsettles (hysteresis)

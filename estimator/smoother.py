@@ -1,147 +1,177 @@
-"""Rauch–Tung–Striebel smoothing of a whole record, for offline use.
+"""Fixed-interval smoothing of a whole record, for offline use.
 
-The live observer can only use samples up to the present; offline, the smoother
-also uses every later sample, which lowers the error and removes the filter's lag.
-It runs the observer forward (both paths, exactly as live), keeping the
-covariances of the time-varying samples, then runs the RTS backward recursion
+The live observer can only use samples up to the present; offline, the smoother also
+uses every later sample, which removes the filter's lag.
 
-    J[k]  = P[k] Φ[k+1]ᵀ P⁻[k+1]⁻¹
-    xs[k] = x[k] + J[k] (xs[k+1] − Φ[k+1] x[k])
-    Ps[k] = P[k] + J[k] (Ps[k+1] − P⁻[k+1]) J[k]ᵀ
+1. **Outliers** are decided exactly as live (the observer's own forward pass); the
+   samples it judged outliers are then treated as missing.
+2. **Prior and intensity by maximum likelihood.** For each of the two continuous force
+   priors of the bank — the random walk (hold model) and the integrated random walk
+   (rate model) — the intensity that maximises the record's innovation log-likelihood
+   ``ℓ = Σ ln p(z_k | z_1..k−1)`` is found on a log grid widened while the best value
+   sits on its edge (the prediction-error decomposition; Harvey, "Forecasting,
+   structural time series models and the Kalman filter", 1989, from memory), and the
+   measurement noise is refined the same way. The prior with the larger likelihood is
+   kept.
+3. **Smoothing**: the Kalman filter of that model keeps every posterior and the
+   Rauch–Tung–Striebel backward pass combines them with the later samples
+   (:mod:`estimator.mm_smooth_kernel` with one model is exactly that recursion).
 
-Source: H. E. Rauch, F. Tung, C. T. Striebel, "Maximum likelihood estimates of
-linear dynamic systems", AIAA Journal 3(8), 1445-1450, 1965.
-
-A re-acquisition (the observer assumed a load jump) breaks the chain: no
-information is carried back across it, because the model did not hold there.
+This is one fitted prior per record; a smoother that switches priors along the record
+(across load changes) is future work. Innovation, NIS and flags are those of the live
+pass; force, its uncertainty, displacement, velocity and the model probabilities
+(1 for the prior kept) are smoothed.
 """
 
 from __future__ import annotations
 
+import dataclasses
 import math
+from dataclasses import dataclass
 
 import numpy as np
-import scipy.signal
 
-from estimator.observer import FLAG_REACQUIRED, ForceObserver
+from estimator.force_models import FAMILY_HOLD, FAMILY_RATE, model_tables, scaling
+from estimator.mm_kernel import imm_block
+from estimator.mm_smooth_kernel import kim_backward
+from estimator.observer import FLAG_OUTLIER_BEFORE, ForceObserver
 
-__all__ = ["rts_smooth"]
+__all__ = ["SmootherFit", "fit_prior", "smooth_record"]
+
+_STEP = 4.0  # ratio between grid points of an intensity
+_WIDEN = 12  # times a grid may move past its edge
 
 
-def rts_smooth(
+@dataclass(frozen=True)
+class SmootherFit:
+    """The prior the likelihood chose, its intensity, noise scale and likelihood."""
+
+    family: int  # FAMILY_HOLD or FAMILY_RATE
+    intensity: float  # N²/s (hold) or N²/s³ (rate)
+    noise_scale: float  # ratio to the observer's measurement standard deviation
+    log_likelihood: float
+
+
+def _single(obs: ForceObserver, family: int, q: float, dts: np.ndarray) -> tuple:
+    """Tables (Φ, Q, π) of one model of ``family`` with intensity ``q``, per step."""
+    models = dataclasses.replace(obs.models, q_hold_n2_per_s=q, q_rate_n2_per_s3=(q,))
+    PHI, Q, _ = model_tables(obs.plant, models, dts)
+    j = 0 if family == FAMILY_HOLD else 1
+    return PHI[:, j : j + 1].copy(), Q[:, j : j + 1].copy(), np.ones((dts.size, 1, 1))
+
+
+def _filter(
+    obs: ForceObserver,
+    family: int,
+    q: float,
+    noise: float,
+    z: np.ndarray,
+    dts: np.ndarray,
+    rows: np.ndarray,
+    log: bool,
+) -> tuple:
+    """One-model Kalman filter of the scaled record; returns (ℓ, log arrays)."""
+    PHI, Q, PI = _single(obs, family, q, dts)
+    k = obs.plant.stiffness_n_per_m
+    R = k * k * obs.R * noise * noise
+    zs = k * z
+    n = z.size
+    x = np.zeros((2, 1, 4))
+    z0 = float(zs[np.flatnonzero(np.isfinite(zs))[0]]) if np.isfinite(zs).any() else 0.0
+    x[:, 0] = (z0, 0.0, z0, 0.0)
+    s = obs.force_span_n
+    P = np.zeros((2, 1, 4, 4))
+    P[:, 0] = np.diag([R, s * s, s * s, s * s if family == FAMILY_RATE else 0.0])
+    mu = np.ones((2, 1))
+    ox, ov = np.empty((n, 4)), np.empty((n, 4))
+    oy, os_, of, om, oll = (np.empty(n), np.empty(n), np.empty(n, np.int64),
+                            np.empty((n, 1)), np.empty(n))  # fmt: skip
+    lx = np.empty((n if log else 0, 1, 4))
+    lP = np.empty((n if log else 0, 1, 4, 4))
+    imm_block(zs, rows, PHI, Q, PI, R, 1e12, 1e-3, 1.0, 0.0, x, P, mu, np.zeros(3),
+              ox, ov, oy, os_, of, om, oll, lx, lP)  # fmt: skip
+    return float(oll.sum()), (PHI, Q, PI, lx, lP, om)
+
+
+def fit_prior(obs: ForceObserver, time_s: np.ndarray, displacement_m: np.ndarray) -> SmootherFit:
+    """The prior, intensity and noise scale that maximise the record's likelihood."""
+    dts, rows = _steps(obs, time_s)
+    z = np.asarray(displacement_m, dtype=float)
+    best: SmootherFit | None = None
+    starts = {FAMILY_HOLD: obs.models.q_hold_n2_per_s, FAMILY_RATE: obs.models.q_rate_n2_per_s3[0]}
+    for family, q0 in starts.items():
+        cache: dict[tuple[float, float], float] = {}
+
+        def ll(q: float, noise: float, family: int = family, cache: dict = cache) -> float:
+            key = (round(math.log(q), 9), round(math.log(noise), 9))
+            if key not in cache:
+                cache[key] = _filter(obs, family, q, noise, z, dts, rows, False)[0]
+            return cache[key]
+
+        q, noise = q0, 1.0
+        for step, axis in ((_STEP**2, 0), (_STEP, 0), (1.1, 1)):
+            for _ in range(_WIDEN):
+                pts = [(q, noise)]
+                pts += [(q * step, noise), (q / step, noise)] if axis == 0 else [
+                    (q, noise * step), (q, noise / step)]  # fmt: skip
+                vals = [ll(*p) for p in pts]
+                i = int(np.argmax(vals))
+                if i == 0:
+                    break
+                q, noise = pts[i]
+        fit = SmootherFit(family, q, noise, ll(q, noise))
+        if best is None or fit.log_likelihood > best.log_likelihood:
+            best = fit
+    assert best is not None
+    return best
+
+
+def _steps(obs: ForceObserver, time_s: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Distinct step lengths (nominal first) and each sample's row among them."""
+    t = np.asarray(time_s, dtype=float)
+    dt = np.empty_like(t)
+    dt[0] = obs.dt_s
+    dt[1:] = np.diff(t)
+    nominal = np.abs(dt - obs.dt_s) <= obs.tuning.timing_tolerance * obs.dt_s
+    dt[nominal] = obs.dt_s
+    dts, rows = np.unique(dt, return_inverse=True)
+    order = np.argsort(dts != obs.dt_s, kind="stable")  # nominal first
+    rank = np.empty_like(order)
+    rank[order] = np.arange(order.size)
+    return dts[order], rank[rows].astype(np.int64)
+
+
+def smooth_record(
     observer: ForceObserver, time_s: np.ndarray, displacement_m: np.ndarray
 ) -> np.ndarray:
     """Smoothed estimates of a whole record, one ``ESTIMATE_DTYPE`` row per sample.
 
-    ``observer`` is reset first and used for the forward pass. Innovation and NIS
-    columns are those of the forward (filter) pass; force, its uncertainty,
-    displacement and velocity are smoothed.
+    ``observer`` is reset and used for the live-style forward pass.
     """
-    observer.covariance_log = {}
+    t = np.ascontiguousarray(time_s, dtype=float)
+    z = np.ascontiguousarray(displacement_m, dtype=float)
     observer.reset()
-    try:
-        filtered = observer.process(time_s, displacement_m)
-        log = observer.covariance_log
-    finally:
-        observer.covariance_log = None
-    n = filtered.size
-    out = filtered.copy()
-    if n < 2:
+    live = observer.process(t, z)
+    out = live.copy()
+    if t.size < 2:
         return out
-    ss = observer._ss
-    phi_nom = observer._nominal.phi
-    J_ss = ss.P_post @ phi_nom.T @ np.linalg.inv(ss.P_prior)
-    X = np.column_stack(
-        [filtered["displacement_m"], filtered["velocity_m_s"], filtered["force_n"]]
+    z_clean = z.copy()
+    outlier = np.flatnonzero(live["flags"] & FLAG_OUTLIER_BEFORE) - 1
+    z_clean[outlier[outlier >= 0]] = np.nan
+    fit = fit_prior(observer, t, z_clean)
+    dts, rows = _steps(observer, t)
+    _, (PHI, Q, PI, lx, lP, om) = _filter(
+        observer, fit.family, fit.intensity, fit.noise_scale, z_clean, dts, rows, True
     )
-    # Steps k → k+1 that use only steady-state matrices (no logged covariance on
-    # either side, no re-acquisition at k+1) form stretches with a constant gain.
-    in_log = np.zeros(n, bool)
-    in_log[list(log)] = True
-    steady_step = ~in_log[:-1] & ~in_log[1:] & ((filtered["flags"][1:] & FLAG_REACQUIRED) == 0)
-    xs_all = np.empty_like(X)
-    us = np.empty(n)
-    xs = X[-1].copy()
-    Ps = log[n - 1][2] if (n - 1) in log else ss.P_post
-    xs_all[-1] = xs
-    us[-1] = math.sqrt(Ps[2, 2])
-    k = n - 2
-    while k >= 0:
-        if steady_step[k]:
-            a = _stretch_start(steady_step, k)
-            xs_all[a : k + 1] = _steady_backward(J_ss, phi_nom, X[a : k + 1], xs)
-            us[a : k + 1], Ps = _steady_covariance(J_ss, ss, Ps, k - a + 1)
-            xs = xs_all[a].copy()
-            k = a - 1
-            continue
-        P_f = log[k][2] if k in log else ss.P_post
-        if filtered["flags"][k + 1] & FLAG_REACQUIRED:
-            xs, Ps = X[k].copy(), P_f
-        else:
-            phi, P_p, _ = log.get(k + 1, (phi_nom, ss.P_prior, None))
-            J = P_f @ phi.T @ np.linalg.inv(P_p)
-            xs = X[k] + J @ (xs - phi @ X[k])
-            Ps = P_f + J @ (Ps - P_p) @ J.T
-        xs_all[k] = xs
-        us[k] = math.sqrt(max(Ps[2, 2], 0.0))
-        k -= 1
-    out["displacement_m"] = xs_all[:, 0]
-    out["velocity_m_s"] = xs_all[:, 1]
-    out["force_n"] = xs_all[:, 2]
-    out["force_u_n"] = us
+    n = t.size
+    sx, sv, smu = np.empty((n, 4)), np.empty((n, 4)), np.empty((n, 1))
+    kim_backward(rows, PHI, Q, PI, lx, lP, om, sx, sv, smu)
+    D = scaling(observer.plant)
+    out["force_n"] = sx[:, 2]
+    out["force_u_n"] = np.sqrt(sv[:, 2])
+    out["displacement_m"] = sx[:, 0] / D[0]
+    out["velocity_m_s"] = sx[:, 1] / D[1]
+    out["p_hold"] = float(fit.family == FAMILY_HOLD)
+    out["p_rate"] = float(fit.family == FAMILY_RATE)
+    out["p_jump"] = 0.0
     return out
-
-
-def _stretch_start(steady_step: np.ndarray, k: int) -> int:
-    """First index of the run of True values in ``steady_step`` that ends at ``k``."""
-    breaks = np.nonzero(~steady_step[: k + 1])[0]
-    return int(breaks[-1]) + 1 if breaks.size else 0
-
-
-def _steady_backward(
-    J: np.ndarray, phi: np.ndarray, X: np.ndarray, xs_next: np.ndarray
-) -> np.ndarray:
-    """Backward recursion ``xs[j] = J xs[j+1] + (I − JΦ) X[j]`` over a steady stretch.
-
-    Run in the eigenvector basis of ``J``: one first-order ``lfilter`` per mode on the
-    reversed stretch. Falls back to a plain loop when that basis is ill-conditioned.
-    Returns the smoothed states, shape like ``X`` (m, 3).
-    """
-    M = np.eye(3) - J @ phi
-    lam, V = np.linalg.eig(J)
-    if np.linalg.cond(V) > 1e8:
-        out = np.empty_like(X)
-        nxt = xs_next
-        for j in range(X.shape[0] - 1, -1, -1):
-            nxt = J @ nxt + M @ X[j]
-            out[j] = nxt
-        return out
-    C = np.linalg.solve(V, M) @ X[::-1].T  # (3, m) mode inputs, last sample first
-    w0 = np.linalg.solve(V, xs_next.astype(complex))
-    W = np.empty(C.shape, complex)
-    for i in range(3):
-        W[i], _ = scipy.signal.lfilter([1.0], [1.0, -lam[i]], C[i], zi=[lam[i] * w0[i]])
-    return (V @ W).real.T[::-1]
-
-
-def _steady_covariance(
-    J: np.ndarray, ss: object, Ps: np.ndarray, m: int
-) -> tuple[np.ndarray, np.ndarray]:
-    """Smoothed force σ for ``m`` steady steps backward, and the last covariance.
-
-    The covariance recursion does not depend on the data; once it stops changing it
-    is constant for the rest of the stretch.
-    """
-    us = np.empty(m)
-    P_f, P_p = ss.P_post, ss.P_prior  # type: ignore[attr-defined]
-    j = m - 1
-    while j >= 0:
-        new = P_f + J @ (Ps - P_p) @ J.T
-        done = np.allclose(new, Ps, rtol=1e-13, atol=0.0)
-        Ps = new
-        us[j] = math.sqrt(max(Ps[2, 2], 0.0))
-        j -= 1
-        if done:
-            us[: j + 1] = us[j + 1]
-            break
-    return us, Ps

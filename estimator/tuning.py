@@ -3,16 +3,16 @@
 * `noise_from_quiet`: the transducer's white noise from a stretch with the cell unloaded
   and at rest: the residual standard deviation about a straight line (slow drift
   removed), less the quantisation variance LSB²/12 that the observer adds itself.
-* `tune_bandwidth`: for each candidate force bandwidth, run the observer over a record
+* `tune_bandwidth`: for each candidate bandwidth of the observer's hold model (the
+  random-walk prior of held loads), run the observer over a record
   and sum the Gaussian log-likelihood of its innovations,
   ``ℓ = −½ Σ [ln(2π·S_i) + y_i²/S_i]`` (the prediction-error decomposition of the
   likelihood of a state-space model; e.g. Harvey, "Forecasting, structural time series
   models and the Kalman filter", 1989, from memory); the bandwidth with the largest ℓ
   describes the record best.
 * `compare_on_steps`: the noise of the held levels and the settling time after each
-  step, for several observers, so the gain of re-acquisition can be shown: a quiet
-  (low-bandwidth) observer that reopens its force uncertainty when the innovations jump
-  is both quiet between load changes and quick at a step.
+  step, for several observers (the multiple-model observer's jump model keeps even a
+  quiet hold model quick at a step).
 """
 
 from __future__ import annotations
@@ -27,8 +27,8 @@ from numpy.typing import ArrayLike
 from estimator.errors import EstimatorError, ParameterError
 from estimator.observer import (
     FLAG_GAP,
+    FLAG_JUMP,
     FLAG_MISSING,
-    FLAG_REACQUIRED,
     FLAG_REJECTED,
     ForceObserver,
     ObserverTuning,
@@ -89,7 +89,7 @@ def innovation_log_likelihood(estimates: np.ndarray) -> tuple[float, int]:
     """
     y = estimates["innovation_m"]
     nis = estimates["nis"]
-    bad = FLAG_REJECTED | FLAG_MISSING | FLAG_GAP | FLAG_REACQUIRED
+    bad = FLAG_REJECTED | FLAG_MISSING | FLAG_GAP | FLAG_JUMP
     use = ((estimates["flags"] & bad) == 0) & np.isfinite(y) & np.isfinite(nis) & (nis > 0)
     use[0] = False  # the start-up sample has no prediction
     s = y[use] ** 2 / nis[use]
@@ -103,8 +103,6 @@ class TuneResult:
     bandwidths_hz: np.ndarray
     log_likelihood: np.ndarray
     best_hz: float
-    steady_force_u_n: float
-    measured_bandwidth_hz: float
 
     @property
     def at_edge(self) -> bool:
@@ -141,8 +139,7 @@ def tune_bandwidth(
 
     ll = np.array([innovation_log_likelihood(observer(b).process(t, z))[0] for b in grid])
     best = float(grid[int(np.argmax(ll))])
-    chosen = observer(best)
-    return TuneResult(grid, ll, best, chosen.steady_force_u_n, chosen.force_bandwidth_hz())
+    return TuneResult(grid, ll, best)
 
 
 @dataclass(frozen=True)

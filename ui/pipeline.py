@@ -59,6 +59,9 @@ ESTIMATE_UNITS: dict[str, str] = {
     "velocity_m_s": "m/s",
     "innovation_m": "m",
     "nis": "1",
+    "p_hold": "1",
+    "p_rate": "1",
+    "p_jump": "1",
     "flags": "1",
 }
 #: Event kind recording a zero (tare).
@@ -179,7 +182,7 @@ class EstimationPipeline:
         #: Times the device clock went back and the observer started afresh.
         self.restarts = 0
         self._totals = dict.fromkeys(
-            ("samples", "rejected", "missing", "gaps", "reacquired", "steady"), 0
+            ("samples", "rejected", "suspect", "missing", "gaps", "jumps"), 0
         )
 
     # ---------------------------------------------------------------- feeding
@@ -267,7 +270,7 @@ class EstimationPipeline:
         self.observer.reset()
 
     def observer_totals(self) -> dict[str, int]:
-        """Observer counters (samples, rejected, missing, gaps, reacquired, steady) summed
+        """Observer counters (samples, rejected, suspect, missing, gaps, jumps) summed
         over every restart and zero since the pipeline was built."""
         c = self.observer.counters
         return {name: total + getattr(c, name) for name, total in self._totals.items()}

@@ -118,7 +118,7 @@ def run(args: argparse.Namespace) -> int:
     print(
         f"received {got.size} of {len(truth)} samples; malformed lines or frames "
         f"{decoded.rejected}, lost {decoded.samples_lost}; observer rejected "
-        f"{totals['rejected']}, re-acquired {totals['reacquired']}"
+        f"{totals['rejected']}, load jumps {totals['jumps']}"
     )
     truth_f = np.asarray(truth.true_force_n)[got["seq"]]
     budget = ForceUncertainty.from_profile(profile)  # GUM: observer, calibration, resolution

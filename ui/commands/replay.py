@@ -104,7 +104,7 @@ def _replay_csv(args: argparse.Namespace, source: Path, speed: float) -> int:
     c = observer.counters
     print(
         f"{source}: {t.size} samples; rejected {c.rejected}, missing {c.missing}, "
-        f"gaps {c.gaps}, re-acquired {c.reacquired}"
+        f"gaps {c.gaps}, load jumps {c.jumps}"
     )
     return 0
 
@@ -136,7 +136,7 @@ def _replay_run(args: argparse.Namespace, folder: Path, speed: float) -> int:
     c = observer.counters
     print(
         f"replayed {estimates.size} samples; rejected {c.rejected}, gaps {c.gaps}, "
-        f"re-acquired {c.reacquired}, zero events {len(tares)}"
+        f"load jumps {c.jumps}, zero events {len(tares)}"
     )
     live = data.streams.get(ESTIMATE_STREAM)
     if live is None or args.smooth:
@@ -170,7 +170,7 @@ def _estimate(
     args: argparse.Namespace, profile: Any, samples: Any, tares: list, speed: float
 ) -> tuple[Any, Any]:
     from estimator.observer import concat_estimates
-    from estimator.smoother import rts_smooth
+    from estimator.smoother import smooth_record
     from ui.pipeline import EstimationPipeline
     from ui.status import StatusLine, format_status
 
@@ -179,7 +179,7 @@ def _estimate(
         if tares:
             raise ValueError("--smooth cannot replay a run with zero events yet; leave it out")
         print(f"smoothing {samples.size} samples...", file=sys.stderr)
-        est = rts_smooth(pipeline.observer, samples["device_time_s"], samples["displacement_m"])
+        est = smooth_record(pipeline.observer, samples["device_time_s"], samples["displacement_m"])
         return est, pipeline.observer
     parts = []
     if math.isinf(speed):

@@ -4,7 +4,7 @@ The noise comes from a quiet stretch (cell unloaded and at rest, ``--quiet-from`
 ``--quiet-to``); the force bandwidth from the innovation log-likelihood of the record (or
 the ``--from``/``--to`` part of it). A staircase of load steps on the simulated cell
 (invented data) then shows what the tuning gives: the noise of the held readings and the
-settling time, with re-acquisition (quiet and quick) and without it.
+settling time, for the chosen hold bandwidth and a faster one.
 """
 
 from __future__ import annotations
@@ -26,7 +26,7 @@ def register(subparsers: Any) -> None:
             "Estimate the transducer noise from a quiet stretch of a run or CSV (cell "
             "unloaded, at rest) and choose the observer's force bandwidth by the innovation "
             "log-likelihood of the record; show the resulting steady noise and settling on "
-            "a simulated staircase, with and without re-acquisition. --out writes the "
+            "a simulated staircase, chosen and faster. --out writes the "
             "tuned profile."
         ),
     )
@@ -78,11 +78,7 @@ def run(args: argparse.Namespace) -> int:
     edge = ""
     if result.at_edge:
         edge = " (at the edge of the candidates: the record does not pin it down)"
-    print(
-        f"chosen: {result.best_hz:.3g} Hz{edge}; measured −3 dB bandwidth "
-        f"{result.measured_bandwidth_hz:.3g} Hz; steady force uncertainty "
-        f"{result.steady_force_u_n:.3g} N (1σ), U = {2 * result.steady_force_u_n:.3g} N (k = 2)"
-    )
+    print(f"chosen: {result.best_hz:.3g} Hz{edge} for the hold model of the observer")
     tuned = profile.with_updates(
         transducer=dataclasses.replace(profile.transducer, noise_m=noise.noise_m),
         observer=dataclasses.replace(
@@ -119,13 +115,9 @@ def _staircase(profile: Any, bandwidth_hz: float) -> None:
     x = scaling_for(profile).to_metres(run.counts)
     steps = [(0.5 * (i + 1), f) for i, f in enumerate(levels)]
 
-    def observer(b: float, reacquire: bool) -> ForceObserver:
+    def observer(b: float) -> ForceObserver:
         base = ForceObserver.from_profile(profile)
-        tuning = ObserverTuning(
-            force_bandwidth_hz=b,
-            gate_sigma=profile.observer.gate_sigma if reacquire else 1e9,
-            reacquire_after=profile.observer.reacquire_after if reacquire else 10**9,
-        )
+        tuning = ObserverTuning(force_bandwidth_hz=b, gate_sigma=profile.observer.gate_sigma)
         span = profile.limits.force_max_n - profile.limits.force_min_n
         return ForceObserver(base.plant, base.dt_s, profile.transducer.noise_m,
                              profile.transducer.resolution_m, tuning, span)  # fmt: skip
@@ -133,9 +125,8 @@ def _staircase(profile: Any, bandwidth_hz: float) -> None:
     fast = min(10.0 * bandwidth_hz, 0.2 / profile.acquisition.sample_period_s)
     rows = compare_on_steps(
         [
-            (f"{bandwidth_hz:.3g} Hz with re-acquisition", observer(bandwidth_hz, True)),
-            (f"{bandwidth_hz:.3g} Hz without", observer(bandwidth_hz, False)),
-            (f"{fast:.3g} Hz without", observer(fast, False)),
+            (f"hold model at {bandwidth_hz:.3g} Hz", observer(bandwidth_hz)),
+            (f"hold model at {fast:.3g} Hz", observer(fast)),
         ],
         t,
         x,

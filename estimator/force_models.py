@@ -1,0 +1,192 @@
+"""The force priors of the multiple-model observer, and their discrete tables.
+
+Every model shares the state ``s = [x, v, F, Ḟ]`` (m, m/s, N, N/s) and the cell's
+plant ``m·x'' + b·x' + k·x = F``. They differ in what they assume of the force:
+
+* **hold** — ``F`` is a random walk of small intensity ``q_hold`` (N²/s) and ``Ḟ`` is
+  pinned to 0: deadweights, held loads, slow drift;
+* **rate ×n** — ``Ḟ`` is a random walk (the force an integrated random walk) of
+  intensity ``q_rate`` (N²/s³): ramps, sines and other smooth loads. Several
+  intensities, a factor apart, cover slow to fast loads; the model probabilities pick
+  the ones the record supports;
+* **jump** — within one sample period the force may jump (standard deviation
+  ``jump_sd_n``) and so may its rate (``jump_rate_sd_n_per_s``): a step, a release, the
+  corner of a ramp. It lasts one step and then hands over to the others.
+
+A jump at an unknown instant within a step of ``dt`` has the same first two moments as
+a random walk of intensity ``σ²/dt`` over that step, so each model's noise is a sum
+``Q = q_F·Q_F + q_Ḟ·Q_Ḟ`` of two unit-intensity Van Loan integrals (Van Loan 1978; see
+:mod:`estimator.discretization`).
+
+**Scaled state.** The kernel works in ``s̃ = D s`` with
+``D = diag(k, k/ωn, 1, 1/ωn)``: all four components in newtons, so the covariances
+stay well conditioned at any sample rate. ``z̃ = k·z``, ``R̃ = k²·R``.
+
+**Mode switching** (per step of ``dt``): the regular models (hold and rates) switch to
+each other at a total rate ``1/dwell_s`` and to a jump at the rate ``1/jump_interval_s``;
+a jump stays a jump with probability ``jump_stay`` and otherwise goes to hold (share
+``jump_to_hold``) or to a rate model.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from estimator.discretization import van_loan
+from estimator.errors import ParameterError
+from estimator.plant import Plant
+
+__all__ = ["FAMILY_HOLD", "FAMILY_JUMP", "FAMILY_RATE", "ForceModels", "model_tables"]
+
+FAMILY_HOLD, FAMILY_RATE, FAMILY_JUMP = 0, 1, 2
+
+
+@dataclass(frozen=True)
+class ForceModels:
+    """Intensities and switching of the force priors (SI units).
+
+    Attributes:
+        q_hold_n2_per_s: random-walk intensity of the hold model, N²/s.
+        q_rate_n2_per_s3: intensities of the rate models, N²/s³, increasing.
+        jump_sd_n: standard deviation of a force jump, N.
+        jump_rate_sd_n_per_s: standard deviation of a jump of the force rate, N/s.
+        dwell_s: mean time between switches among the regular models, s.
+        jump_interval_s: mean time between load jumps, s.
+        jump_stay: probability that a jump continues for another step.
+        jump_to_hold: share of the jump's exits that go to the hold model.
+    """
+
+    q_hold_n2_per_s: float
+    q_rate_n2_per_s3: tuple[float, ...]
+    jump_sd_n: float
+    jump_rate_sd_n_per_s: float
+    dwell_s: float = 0.5
+    jump_interval_s: float = 2.0
+    jump_stay: float = 0.2
+    jump_to_hold: float = 0.5
+
+    def __post_init__(self) -> None:
+        for name in ("q_hold_n2_per_s", "jump_sd_n", "jump_rate_sd_n_per_s", "dwell_s"):
+            _positive(name, getattr(self, name))
+        _positive("jump_interval_s", self.jump_interval_s)
+        if not self.q_rate_n2_per_s3:
+            raise ParameterError("q_rate_n2_per_s3 is empty: give at least one rate intensity")
+        for q in self.q_rate_n2_per_s3:
+            _positive("q_rate_n2_per_s3", q)
+        for name in ("jump_stay", "jump_to_hold"):
+            v = getattr(self, name)
+            if not (isinstance(v, int | float) and 0.0 <= v < 1.0):
+                raise ParameterError(f"{name} = {v!r}: must be a probability in [0, 1)")
+
+    @property
+    def count(self) -> int:
+        """Number of models: hold, the rate models, jump."""
+        return len(self.q_rate_n2_per_s3) + 2
+
+    @property
+    def families(self) -> np.ndarray:
+        """FAMILY_* of each model, shape (count,)."""
+        return np.array([FAMILY_HOLD] + [FAMILY_RATE] * (self.count - 2) + [FAMILY_JUMP])
+
+    @classmethod
+    def for_cell(
+        cls, plant: Plant, force_span_n: float, q_hold_n2_per_s: float, *, rates: int = 4
+    ) -> ForceModels:
+        """The default bank for a cell of natural frequency fn and rated span.
+
+        The rate models cover loads whose rate changes on time scales from about
+        ``1/(3·10⁻⁴·fn)`` down to ``1/(4·10⁻²·fn)``: intensities
+        ``q = span²·(2π·B)³`` for ``B`` spaced ×5 from ``3·10⁻⁴·fn``. A jump is
+        a quarter of the span; a jump of the rate moves the force by 1 % of the span
+        per period of the cell.
+        """
+        _positive("force_span_n", force_span_n)
+        fn = plant.natural_freq_hz
+        bands = 3e-4 * fn * 5.0 ** np.arange(rates)
+        q_rate = tuple(float(force_span_n**2 * (2 * math.pi * b) ** 3) for b in bands)
+        return cls(
+            q_hold_n2_per_s=q_hold_n2_per_s,
+            q_rate_n2_per_s3=q_rate,
+            jump_sd_n=0.25 * force_span_n,
+            jump_rate_sd_n_per_s=1e-2 * force_span_n * fn,
+        )
+
+    def transitions(self, dt_s: float) -> np.ndarray:
+        """Mode transition matrix ``π[i, j]`` for one step of ``dt_s`` (rows sum to 1)."""
+        r = self.count
+        n_reg = r - 1
+        p_switch = min(dt_s / self.dwell_s, 0.5) / max(n_reg - 1, 1)
+        p_jump = min(dt_s / self.jump_interval_s, 0.5)
+        PI = np.zeros((r, r))
+        if n_reg > 1:
+            PI[:n_reg, :n_reg] = p_switch
+        PI[:n_reg, -1] = p_jump
+        leave = 1.0 - self.jump_stay
+        PI[-1, 0] = leave * self.jump_to_hold
+        PI[-1, 1:n_reg] = leave * (1.0 - self.jump_to_hold) / (n_reg - 1)
+        PI[-1, -1] = self.jump_stay
+        for j in range(n_reg):
+            PI[j, j] = 0.0
+            PI[j, j] = 1.0 - PI[j].sum()
+        return PI
+
+
+def _positive(name: str, value: object) -> None:
+    if not (isinstance(value, int | float) and math.isfinite(value) and value > 0):
+        raise ParameterError(f"{name} = {value!r}: must be a finite number > 0")
+
+
+def scaling(plant: Plant) -> np.ndarray:
+    """Diagonal of ``D`` that scales ``[x, v, F, Ḟ]`` into newtons, shape (4,)."""
+    k, wn = plant.stiffness_n_per_m, plant.natural_freq_rad_s
+    return np.array([k, k / wn, 1.0, 1.0 / wn])
+
+
+def _continuous(plant: Plant, rate_dynamics: bool) -> np.ndarray:
+    m, b, k = plant.mass_kg, plant.damping_n_s_per_m, plant.stiffness_n_per_m
+    A = np.zeros((4, 4))
+    A[0, 1] = 1.0
+    A[1, 0], A[1, 1], A[1, 2] = -k / m, -b / m, 1.0 / m
+    if rate_dynamics:
+        A[2, 3] = 1.0
+    return A
+
+
+def model_tables(
+    plant: Plant, models: ForceModels, dts_s: np.ndarray
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Scaled ``(Φ, Q, π)`` of every model for each step length in ``dts_s``.
+
+    Returns arrays of shapes (nt, r, 4, 4), (nt, r, 4, 4) and (nt, r, r).
+    """
+    D = scaling(plant)
+    r = models.count
+    nt = len(dts_s)
+    PHI = np.zeros((nt, r, 4, 4))
+    Q = np.zeros((nt, r, 4, 4))
+    PI = np.zeros((nt, r, r))
+    e_f = np.array([[0.0], [0.0], [1.0], [0.0]])
+    e_r = np.array([[0.0], [0.0], [0.0], [1.0]])
+    a_hold = _continuous(plant, rate_dynamics=False)
+    a_rate = _continuous(plant, rate_dynamics=True)
+    outer = np.outer(D, D)
+    ratio = D[:, None] / D[None, :]
+    for t, dt in enumerate(dts_s):
+        dt = float(dt)
+        phi_h, qf_h = van_loan(a_hold, e_f, 1.0, dt)
+        phi_h[3, :] = 0.0  # Ḟ pinned to 0
+        phi_r, qf_r = van_loan(a_rate, e_f, 1.0, dt)
+        _, qr_r = van_loan(a_rate, e_r, 1.0, dt)
+        PHI[t, 0] = phi_h * ratio
+        Q[t, 0] = models.q_hold_n2_per_s * qf_h * outer
+        for j, q in enumerate(models.q_rate_n2_per_s3, start=1):
+            PHI[t, j] = phi_r * ratio
+            Q[t, j] = q * qr_r * outer
+        PHI[t, -1] = phi_r * ratio
+        jump = models.jump_sd_n**2 / dt * qf_r + models.jump_rate_sd_n_per_s**2 / dt * qr_r
+        Q[t, -1] = jump * outer
+        PI[t] = models.transitions(dt)
+    return PHI, Q, PI

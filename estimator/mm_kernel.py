@@ -1,0 +1,359 @@
+"""Per-sample kernel of the multiple-model observer (compiled with numba).
+
+**The IMM step.** For ``r`` models that share one state of dimension 4 and observe its
+first component, one step is the interacting multiple model (IMM) recursion of Blom &
+Bar-Shalom:
+
+1. interaction: predicted mode probabilities ``c̄_j = Σ_i π_ij μ_i``, mixing weights
+   ``μ_i|j = π_ij μ_i / c̄_j``, mixed state ``x0_j = Σ_i μ_i|j x_i`` and covariance
+   ``P0_j = Σ_i μ_i|j (P_i + (x_i − x0_j)(x_i − x0_j)ᵀ)``;
+2. prediction per model: ``x_j = Φ_j x0_j``, ``P_j = Φ_j P0_j Φ_jᵀ + Q_j``;
+3. update per model with the scalar measurement ``z = x[0] + noise`` of variance ``R``:
+   ``S_j = P_j[0,0] + R``, ``K_j = P_j[:,0]/S_j``, Joseph form
+   ``P ← (I − K H) P (I − K H)ᵀ + K R Kᵀ`` (symmetric and positive under rounding);
+   likelihood ``Λ_j = N(y_j; 0, S_j)``;
+4. mode probabilities ``μ_j ∝ c̄_j Λ_j``, computed in logarithms so none underflows.
+
+**Outliers, decided one sample later.** A single sample cannot tell an isolated
+outlier from the first sample of a sudden load change: both are a large innovation. The
+next sample can: after a load change the data keep moving, after an outlier they come
+back. So a sample whose innovation is beyond ``gate`` standard deviations of the most
+probable model is held as *suspect*: two branches are kept, "used" (the IMM step above)
+and "outlier" (prediction only). The next sample runs the IMM step from both, and the
+branches are weighed by everything they predicted — prior probability ``ε`` of an
+outlier, the density of the suspect sample under each hypothesis (an outlier is spread
+with standard deviation ``outlier_sd``), the density of the next sample — and merged
+per model by moment matching. An isolated outlier is thus rejected, and a load change
+loses none of its samples. The row of a suspect sample shows both branches merged with
+the weights known then; its flag says so.
+
+Sources: H. A. P. Blom, Y. Bar-Shalom, "The interacting multiple model algorithm for
+systems with Markovian switching coefficients", IEEE Trans. Automatic Control 33(8),
+780-783, 1988; Y. Bar-Shalom, X. R. Li, T. Kirubarajan, "Estimation with Applications
+to Tracking and Navigation", Wiley 2001, section 11.6.6; the two-hypothesis weighing
+is Bayes' rule over the suspect sample and the next one.
+
+Nothing here allocates per sample; every decision depends only on past samples, so a
+record fed in blocks of any size gives bit-identical results (the suspect branch is part
+of the carried state).
+"""
+
+from __future__ import annotations
+
+import math
+
+import numba
+import numpy as np
+
+__all__ = [
+    "FLAG_OUT_REJECTED_BEFORE",
+    "FLAG_OUT_SUSPECT",
+    "FLAG_OUT_UNUSED",
+    "imm_block",
+]
+
+FLAG_OUT_UNUSED = 1  #: no measurement (NaN): predict only
+FLAG_OUT_SUSPECT = 2  #: innovation beyond the gate: held until the next sample decides
+FLAG_OUT_REJECTED_BEFORE = 4  #: the previous (suspect) sample was judged an outlier
+
+_LOG_2PI = math.log(2.0 * math.pi)
+
+
+@numba.njit(cache=True, nogil=True, inline="always")
+def _interact_predict(it, PHI, Q, PI, prune, x, P, mu, cbar, x0, P0, w, d, T):
+    """Steps 1 and 2: mixed priors, then each model's prediction, in place in x, P.
+
+    A model whose probability is below ``prune`` passes nothing on to the others.
+    """
+    r = mu.shape[0]
+    for j in range(r):
+        c = 0.0
+        for i in range(r):
+            c += PI[it, i, j] * mu[i]
+        cbar[j] = c
+    for j in range(r):
+        tot = 0.0
+        for i in range(r):
+            w[i] = PI[it, i, j] * mu[i] if (i == j or mu[i] >= prune) else 0.0
+            tot += w[i]
+        if tot <= 0.0:  # every source pruned: the model keeps its own state
+            for i in range(r):
+                w[i] = 1.0 if i == j else 0.0
+            tot = 1.0
+        for i in range(r):
+            w[i] /= tot
+        for a in range(4):
+            s = 0.0
+            for i in range(r):
+                s += w[i] * x[i, a]
+            x0[j, a] = s
+        for a in range(4):
+            for b in range(a, 4):
+                P0[j, a, b] = 0.0
+        for i in range(r):
+            if w[i] == 0.0:
+                continue
+            for a in range(4):
+                d[a] = x[i, a] - x0[j, a]
+            for a in range(4):
+                for b in range(a, 4):
+                    P0[j, a, b] += w[i] * (P[i, a, b] + d[a] * d[b])
+        for a in range(4):
+            for b in range(a):
+                P0[j, a, b] = P0[j, b, a]
+    for j in range(r):
+        for a in range(4):
+            s = 0.0
+            for b in range(4):
+                s += PHI[it, j, a, b] * x0[j, b]
+            x[j, a] = s
+        for a in range(4):
+            for b in range(4):
+                s = 0.0
+                for c in range(4):
+                    s += PHI[it, j, a, c] * P0[j, c, b]
+                T[a, b] = s
+        for a in range(4):
+            for b in range(a, 4):
+                s = Q[it, j, a, b]
+                for c in range(4):
+                    s += T[a, c] * PHI[it, j, b, c]
+                P[j, a, b] = s
+                P[j, b, a] = s
+    for j in range(r):
+        mu[j] = cbar[j]
+
+
+@numba.njit(cache=True, nogil=True, inline="always")
+def _update(z, R, x, P, mu, lj, d, T):
+    """Steps 3 and 4 in place; returns the log predictive density of ``z``."""
+    r = mu.shape[0]
+    lmax = -np.inf
+    for j in range(r):
+        s_ = P[j, 0, 0] + R
+        y_ = z - x[j, 0]
+        lj[j] = -0.5 * (_LOG_2PI + math.log(s_) + y_ * y_ / s_)
+        if lj[j] > lmax:
+            lmax = lj[j]
+    total = 0.0
+    for j in range(r):
+        mu[j] = mu[j] * math.exp(lj[j] - lmax)
+        total += mu[j]
+    for j in range(r):
+        mu[j] /= total
+    for j in range(r):
+        s_ = P[j, 0, 0] + R
+        y_ = z - x[j, 0]
+        for a in range(4):
+            d[a] = P[j, a, 0] / s_  # gain K
+        for a in range(4):
+            x[j, a] += d[a] * y_
+        # Joseph form with H = e1: (I − K e1ᵀ) P (I − K e1ᵀ)ᵀ + K R Kᵀ
+        for a in range(4):
+            for b in range(4):
+                T[a, b] = P[j, a, b] - d[a] * P[j, 0, b]
+        for a in range(4):
+            for b in range(a, 4):
+                v = T[a, b] - T[a, 0] * d[b] + d[a] * R * d[b]
+                P[j, a, b] = v
+                P[j, b, a] = v
+    return lmax + math.log(total)
+
+
+@numba.njit(cache=True, nogil=True, inline="always")
+def _decided(wa, prune):
+    """The weight of branch "used", with a decision beyond ``prune`` made hard."""
+    if wa < prune:
+        return 0.0
+    if wa > 1.0 - prune:
+        return 1.0
+    return wa
+
+
+@numba.njit(cache=True, nogil=True, inline="always")
+def _merge(wa, xa, Pa, mua, xb, Pb, mub):
+    """Per-model moment matching of branch a (weight wa) and b (1 − wa), into a."""
+    r = mua.shape[0]
+    wb = 1.0 - wa
+    for j in range(r):
+        pa = wa * mua[j]
+        pb = wb * mub[j]
+        m = pa + pb
+        if m <= 0.0:
+            continue
+        fa = pa / m
+        fb = pb / m
+        for a in range(4):
+            xm = fa * xa[j, a] + fb * xb[j, a]
+            for b in range(4):
+                xmb = fa * xa[j, b] + fb * xb[j, b]
+                Pa[j, a, b] = fa * (Pa[j, a, b] + (xa[j, a] - xm) * (xa[j, b] - xmb)) + fb * (
+                    Pb[j, a, b] + (xb[j, a] - xm) * (xb[j, b] - xmb)
+                )
+        for a in range(4):
+            xa[j, a] = fa * xa[j, a] + fb * xb[j, a]
+        mua[j] = m
+
+
+@numba.njit(cache=True, nogil=True, inline="always")
+def _combine(k, wa, xa, Pa, mua, xb, Pb, mub, prune, ca, cb, out_x, out_var):
+    """Mean and variance (per component) of the two-branch, r-model mixture.
+
+    Models below ``prune`` are left out (the rest renormalised).
+    """
+    r = mua.shape[0]
+    wb = 1.0 - wa
+    tot = 0.0
+    for j in range(r):
+        ca[j] = wa * mua[j] if wa * mua[j] >= prune else 0.0
+        cb[j] = wb * mub[j] if wb * mub[j] >= prune else 0.0
+        tot += ca[j] + cb[j]
+    for j in range(r):
+        ca[j] /= tot
+        cb[j] /= tot
+    for a in range(4):
+        s = 0.0
+        for j in range(r):
+            s += ca[j] * xa[j, a] + cb[j] * xb[j, a]
+        out_x[k, a] = s
+    for a in range(4):
+        s = 0.0
+        m = out_x[k, a]
+        for j in range(r):
+            s += ca[j] * (Pa[j, a, a] + (xa[j, a] - m) ** 2)
+            s += cb[j] * (Pb[j, a, a] + (xb[j, a] - m) ** 2)
+        out_var[k, a] = s
+
+
+@numba.njit(cache=True, nogil=True)
+def imm_block(
+    z: np.ndarray,  # (n,) measurements (scaled units), NaN when missing
+    table: np.ndarray,  # (n,) int: row of the model tables for each step
+    PHI: np.ndarray,  # (nt, r, 4, 4) transition of each model
+    Q: np.ndarray,  # (nt, r, 4, 4) process noise of each model
+    PI: np.ndarray,  # (nt, r, r) mode transition probabilities, rows sum to 1
+    R: float,  # measurement variance (scaled units²)
+    gate2: float,  # squared gate for a suspect sample
+    outlier_prob: float,  # prior probability ε that a sample is an outlier
+    outlier_sd: float,  # spread of an outlier about the prediction (scaled units)
+    prune: float,  # models less probable than this pass nothing on and are not shown
+    x: np.ndarray,  # (2, r, 4) posterior states: branch "used", branch "outlier"
+    P: np.ndarray,  # (2, r, 4, 4) posterior covariances of both branches
+    mu: np.ndarray,  # (2, r) mode probabilities of both branches
+    pend: np.ndarray,  # (3,) [suspect pending 0/1, its log density used, as outlier]
+    out_x: np.ndarray,  # (n, 4) combined state
+    out_var: np.ndarray,  # (n, 4) combined variances (diagonal)
+    out_y: np.ndarray,  # (n,) innovation of the combined prediction
+    out_s: np.ndarray,  # (n,) variance of that innovation
+    out_flag: np.ndarray,  # (n,) FLAG_OUT_* bits
+    out_mu: np.ndarray,  # (n, r) mode probabilities
+    out_ll: np.ndarray,  # (n,) log predictive density of the sample (0 when unused)
+    log_x: np.ndarray,  # (n or 0, r, 4) per-model posterior states, for a smoother
+    log_P: np.ndarray,  # (n or 0, r, 4, 4) per-model posterior covariances
+) -> int:
+    """Run the block; returns the number of samples judged outliers in it."""
+    n = z.shape[0]
+    r = mu.shape[1]
+    keep_log = log_x.shape[0] > 0
+    x0 = np.empty((r, 4))
+    P0 = np.empty((r, 4, 4))
+    cbar = np.empty(r)
+    w = np.empty(r)
+    d = np.empty(4)
+    T = np.empty((4, 4))
+    lj = np.empty(r)
+    ca = np.empty(r)
+    cb = np.empty(r)
+    xa, Pa, mua = x[0], P[0], mu[0]
+    xb, Pb, mub = x[1], P[1], mu[1]
+    log_eps = math.log(outlier_prob)
+    log_1m_eps = math.log1p(-outlier_prob)
+    rejected = 0
+    for k in range(n):
+        it = table[k]
+        zk = z[k]
+        flag = 0
+        pending = pend[0] != 0.0
+        _interact_predict(it, PHI, Q, PI, prune, xa, Pa, mua, cbar, x0, P0, w, d, T)
+        if pending:
+            _interact_predict(it, PHI, Q, PI, prune, xb, Pb, mub, cbar, x0, P0, w, d, T)
+        # prediction of the measurement (branch "used" only: the suspect is undecided)
+        # (models below ``prune`` left out, as in the reported mixture)
+        zhat = 0.0
+        wsum = 0.0
+        jbest = 0
+        for j in range(r):
+            if mua[j] > mua[jbest]:
+                jbest = j
+        for j in range(r):
+            if mua[j] >= prune or j == jbest:
+                zhat += mua[j] * xa[j, 0]
+                wsum += mua[j]
+        zhat /= wsum
+        smix = 0.0
+        for j in range(r):
+            if mua[j] >= prune or j == jbest:
+                smix += mua[j] * (Pa[j, 0, 0] + R + (xa[j, 0] - zhat) ** 2)
+        smix /= wsum
+        out_y[k] = zk - zhat
+        out_s[k] = smix
+        if math.isnan(zk):
+            flag |= FLAG_OUT_UNUSED
+            out_ll[k] = 0.0
+            if pending:  # nothing to decide with: weigh by the suspect sample alone
+                la = log_1m_eps + pend[1]
+                lb = log_eps + pend[2]
+                wa = _decided(1.0 / (1.0 + math.exp(lb - la)), prune)
+                if wa < 0.5:
+                    rejected += 1
+                    flag |= FLAG_OUT_REJECTED_BEFORE
+                _merge(wa, xa, Pa, mua, xb, Pb, mub)
+                pend[0] = 0.0
+        else:
+            if pending:
+                # weigh "suspect used" against "suspect an outlier" by both samples
+                la = log_1m_eps + pend[1] + _update(zk, R, xa, Pa, mua, lj, d, T)
+                lb = log_eps + pend[2] + _update(zk, R, xb, Pb, mub, lj, d, T)
+                wa = _decided(1.0 / (1.0 + math.exp(lb - la)), prune)
+                if wa < 0.5:
+                    rejected += 1
+                    flag |= FLAG_OUT_REJECTED_BEFORE
+                _merge(wa, xa, Pa, mua, xb, Pb, mub)
+                pend[0] = 0.0
+                out_ll[k] = 0.0
+            else:
+                y = zk - xa[jbest, 0]
+                s_best = Pa[jbest, 0, 0] + R
+                if y * y > gate2 * s_best:
+                    # suspect: keep the prediction as the "outlier" branch, then update
+                    for j in range(r):
+                        mub[j] = mua[j]
+                        for a in range(4):
+                            xb[j, a] = xa[j, a]
+                            for b in range(4):
+                                Pb[j, a, b] = Pa[j, a, b]
+                    so2 = outlier_sd * outlier_sd + smix
+                    yo = zk - zhat
+                    pend[2] = -0.5 * (_LOG_2PI + math.log(so2) + yo * yo / so2)
+                    pend[1] = _update(zk, R, xa, Pa, mua, lj, d, T)
+                    pend[0] = 1.0
+                    flag |= FLAG_OUT_SUSPECT
+                    out_ll[k] = 0.0
+                else:
+                    out_ll[k] = _update(zk, R, xa, Pa, mua, lj, d, T)
+        if pend[0] != 0.0:
+            # a suspect row: both branches, weighed by what is known so far
+            wa = 1.0 / (1.0 + math.exp(log_eps + pend[2] - log_1m_eps - pend[1]))
+            _combine(k, wa, xa, Pa, mua, xb, Pb, mub, prune, ca, cb, out_x, out_var)
+        else:
+            _combine(k, 1.0, xa, Pa, mua, xb, Pb, mub, prune, ca, cb, out_x, out_var)
+        out_flag[k] = flag
+        for j in range(r):
+            out_mu[k, j] = mua[j]
+        if keep_log:
+            for j in range(r):
+                for a in range(4):
+                    log_x[k, j, a] = xa[j, a]
+                    for b in range(4):
+                        log_P[k, j, a, b] = Pa[j, a, b]
+    return rejected
