@@ -171,6 +171,18 @@ def _decided(wa, prune):
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
+def _resolve(ll_used, ll_out, log_eps, log_1m_eps, pend, prune, x, P, mu):  # noqa: ANN001, ANN202
+    """Decide the pending suspect given the next sample's log densities under both
+    branches; merge the branches into branch 0; True when it was judged an outlier."""
+    la = log_1m_eps + pend[1] + ll_used
+    lb = log_eps + pend[2] + ll_out
+    wa = _decided(1.0 / (1.0 + math.exp(lb - la)), prune)
+    _merge(wa, x[0], P[0], mu[0], x[1], P[1], mu[1])
+    pend[0] = 0.0
+    return wa < 0.5
+
+
+@numba.njit(cache=True, nogil=True, inline="always")
 def _merge(wa, xa, Pa, mua, xb, Pb, mub):
     """Per-model moment matching of branch a (weight wa) and b (1 − wa), into a."""
     r = mua.shape[0]
@@ -301,25 +313,17 @@ def imm_block(
             flag |= FLAG_OUT_UNUSED
             out_ll[k] = 0.0
             if pending:  # nothing to decide with: weigh by the suspect sample alone
-                la = log_1m_eps + pend[1]
-                lb = log_eps + pend[2]
-                wa = _decided(1.0 / (1.0 + math.exp(lb - la)), prune)
-                if wa < 0.5:
+                if _resolve(0.0, 0.0, log_eps, log_1m_eps, pend, prune, x, P, mu):
                     rejected += 1
                     flag |= FLAG_OUT_REJECTED_BEFORE
-                _merge(wa, xa, Pa, mua, xb, Pb, mub)
-                pend[0] = 0.0
         else:
             if pending:
                 # weigh "suspect used" against "suspect an outlier" by both samples
-                la = log_1m_eps + pend[1] + _update(zk, R, xa, Pa, mua, lj, d, T)
-                lb = log_eps + pend[2] + _update(zk, R, xb, Pb, mub, lj, d, T)
-                wa = _decided(1.0 / (1.0 + math.exp(lb - la)), prune)
-                if wa < 0.5:
+                la = _update(zk, R, xa, Pa, mua, lj, d, T)
+                lb = _update(zk, R, xb, Pb, mub, lj, d, T)
+                if _resolve(la, lb, log_eps, log_1m_eps, pend, prune, x, P, mu):
                     rejected += 1
                     flag |= FLAG_OUT_REJECTED_BEFORE
-                _merge(wa, xa, Pa, mua, xb, Pb, mub)
-                pend[0] = 0.0
                 out_ll[k] = 0.0
             else:
                 y = zk - xa[jbest, 0]
