@@ -93,7 +93,7 @@ class ForceModels:
 
     @classmethod
     def for_cell(
-        cls, plant: Plant, force_span_n: float, q_hold_n2_per_s: float, *, rates: int = 4
+        cls, plant: Plant, force_span_n: float, q_hold_n2_per_s: float, *, rates: int = 5
     ) -> ForceModels:
         """The default bank for a cell of natural frequency fn and rated span.
 

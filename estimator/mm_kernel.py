@@ -18,7 +18,9 @@ Bar-Shalom:
 outlier from the first sample of a sudden load change: both are a large innovation. The
 next sample can: after a load change the data keep moving, after an outlier they come
 back. So a sample whose innovation is beyond ``gate`` standard deviations of the most
-probable model is held as *suspect*: two branches are kept, "used" (the IMM step above)
+probable model, or that would make the jump model the more probable half on its own
+(at high sample rates one sample of a jump is barely above the noise, so a single
+noisy sample can do that), is held as *suspect*: two branches are kept, "used" (the IMM step above)
 and "outlier" (prediction only). The next sample runs the IMM step from both, and the
 branches are weighed by everything they predicted — prior probability ``ε`` of an
 outlier, the density of the suspect sample under each hypothesis (an outlier is spread
@@ -57,13 +59,16 @@ FLAG_OUT_SUSPECT = 2  #: innovation beyond the gate: held until the next sample 
 FLAG_OUT_REJECTED_BEFORE = 4  #: the previous (suspect) sample was judged an outlier
 
 _LOG_2PI = math.log(2.0 * math.pi)
+_SHOW_USED = 0.5  # a suspect row shows the sample used only at these odds or better
+_DECIDED = 0.05  # two-sample odds of a suspect beyond which the decision is hard
+_JUMP_SUSPECT = 0.01  # posterior of the jump model from one sample that makes it suspect
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
 def _interact_predict(it, PHI, Q, PI, prune, x, P, mu, cbar, x0, P0, w, d, T):
     """Steps 1 and 2: mixed priors, then each model's prediction, in place in x, P.
 
-    A model whose probability is below ``prune`` passes nothing on to the others.
+    A model whose probability is below its ``prune`` entry passes nothing on.
     """
     r = mu.shape[0]
     for j in range(r):
@@ -74,7 +79,7 @@ def _interact_predict(it, PHI, Q, PI, prune, x, P, mu, cbar, x0, P0, w, d, T):
     for j in range(r):
         tot = 0.0
         for i in range(r):
-            w[i] = PI[it, i, j] * mu[i] if (i == j or mu[i] >= prune) else 0.0
+            w[i] = PI[it, i, j] * mu[i] if (i == j or mu[i] >= prune[i]) else 0.0
             tot += w[i]
         if tot <= 0.0:  # every source pruned: the model keeps its own state
             for i in range(r):
@@ -161,24 +166,54 @@ def _update(z, R, x, P, mu, lj, d, T):
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
-def _decided(wa, prune):
-    """The weight of branch "used", with a decision beyond ``prune`` made hard."""
-    if wa < prune:
+def _decided(wa):
+    """The weight of branch "used", made hard beyond ``_DECIDED`` of either side.
+
+    A soft merge of a branch that assumed a jump of tens of newtons with weight 0.01
+    spreads that jump into every model for milliseconds; odds of 19 to 1 after two
+    samples are taken as a decision.
+    """
+    if wa < _DECIDED:
         return 0.0
-    if wa > 1.0 - prune:
+    if wa > 1.0 - _DECIDED:
         return 1.0
     return wa
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
-def _resolve(ll_used, ll_out, log_eps, log_1m_eps, pend, prune, x, P, mu):  # noqa: ANN001, ANN202
+def _jump_takes_over(z, R, x, P, mu, jump):
+    """True when ``z`` alone would raise the jump model above ``_JUMP_SUSPECT``."""
+    if jump < 0:
+        return False
+    r = mu.shape[0]
+    lmax = -np.inf
+    lj = 0.0
+    for j in range(r):
+        s_ = P[j, 0, 0] + R
+        y_ = z - x[j, 0]
+        v = -0.5 * (math.log(s_) + y_ * y_ / s_)
+        if j == jump:
+            lj = v
+        if v > lmax:
+            lmax = v
+    total = 0.0
+    for j in range(r):
+        s_ = P[j, 0, 0] + R
+        y_ = z - x[j, 0]
+        total += mu[j] * math.exp(-0.5 * (math.log(s_) + y_ * y_ / s_) - lmax)
+    return mu[jump] * math.exp(lj - lmax) > _JUMP_SUSPECT * total
+
+
+@numba.njit(cache=True, nogil=True, inline="always")
+def _resolve(ll_used, ll_out, log_eps, log_1m_eps, pend, x, P, mu):
     """Decide the pending suspect given the next sample's log densities under both
     branches; merge the branches into branch 0; True when it was judged an outlier."""
     la = log_1m_eps + pend[1] + ll_used
     lb = log_eps + pend[2] + ll_out
-    wa = _decided(1.0 / (1.0 + math.exp(lb - la)), prune)
+    wa = _decided(1.0 / (1.0 + math.exp(lb - la)))
     _merge(wa, x[0], P[0], mu[0], x[1], P[1], mu[1])
     pend[0] = 0.0
+    pend[3] = 1.0 if wa >= 0.5 else 0.0  # a change confirmed under way
     return wa < 0.5
 
 
@@ -211,14 +246,14 @@ def _merge(wa, xa, Pa, mua, xb, Pb, mub):
 def _combine(k, wa, xa, Pa, mua, xb, Pb, mub, prune, ca, cb, out_x, out_var):
     """Mean and variance (per component) of the two-branch, r-model mixture.
 
-    Models below ``prune`` are left out (the rest renormalised).
+    Models below their ``prune`` entry are left out (the rest renormalised).
     """
     r = mua.shape[0]
     wb = 1.0 - wa
     tot = 0.0
     for j in range(r):
-        ca[j] = wa * mua[j] if wa * mua[j] >= prune else 0.0
-        cb[j] = wb * mub[j] if wb * mub[j] >= prune else 0.0
+        ca[j] = wa * mua[j] if wa * mua[j] >= prune[j] else 0.0
+        cb[j] = wb * mub[j] if wb * mub[j] >= prune[j] else 0.0
         tot += ca[j] + cb[j]
     for j in range(r):
         ca[j] /= tot
@@ -248,11 +283,14 @@ def imm_block(
     gate2: float,  # squared gate for a suspect sample
     outlier_prob: float,  # prior probability ε that a sample is an outlier
     outlier_sd: float,  # spread of an outlier about the prediction (scaled units)
-    prune: float,  # models less probable than this pass nothing on and are not shown
+    prune: np.ndarray,  # (r,) a model less probable than its entry passes nothing on
+    #                     and is not shown
+    jump: int,  # index of the jump model (its taking over makes a sample suspect), or -1
     x: np.ndarray,  # (2, r, 4) posterior states: branch "used", branch "outlier"
     P: np.ndarray,  # (2, r, 4, 4) posterior covariances of both branches
     mu: np.ndarray,  # (2, r) mode probabilities of both branches
-    pend: np.ndarray,  # (3,) [suspect pending 0/1, its log density used, as outlier]
+    pend: np.ndarray,  # (4,) suspect pending 0/1, its log density used and as outlier,
+    #                    1 while a change is confirmed under way
     out_x: np.ndarray,  # (n, 4) combined state
     out_var: np.ndarray,  # (n, 4) combined variances (diagonal)
     out_y: np.ndarray,  # (n,) innovation of the combined prediction
@@ -298,13 +336,13 @@ def imm_block(
             if mua[j] > mua[jbest]:
                 jbest = j
         for j in range(r):
-            if mua[j] >= prune or j == jbest:
+            if mua[j] >= prune[j] or j == jbest:
                 zhat += mua[j] * xa[j, 0]
                 wsum += mua[j]
         zhat /= wsum
         smix = 0.0
         for j in range(r):
-            if mua[j] >= prune or j == jbest:
+            if mua[j] >= prune[j] or j == jbest:
                 smix += mua[j] * (Pa[j, 0, 0] + R + (xa[j, 0] - zhat) ** 2)
         smix /= wsum
         out_y[k] = zk - zhat
@@ -312,23 +350,23 @@ def imm_block(
         if math.isnan(zk):
             flag |= FLAG_OUT_UNUSED
             out_ll[k] = 0.0
-            if pending:  # nothing to decide with: weigh by the suspect sample alone
-                if _resolve(0.0, 0.0, log_eps, log_1m_eps, pend, prune, x, P, mu):
-                    rejected += 1
-                    flag |= FLAG_OUT_REJECTED_BEFORE
+            # nothing to decide a pending suspect with: weigh by the suspect alone
+            if pending and _resolve(0.0, 0.0, log_eps, log_1m_eps, pend, x, P, mu):
+                rejected += 1
+                flag |= FLAG_OUT_REJECTED_BEFORE
         else:
             if pending:
                 # weigh "suspect used" against "suspect an outlier" by both samples
                 la = _update(zk, R, xa, Pa, mua, lj, d, T)
                 lb = _update(zk, R, xb, Pb, mub, lj, d, T)
-                if _resolve(la, lb, log_eps, log_1m_eps, pend, prune, x, P, mu):
+                if _resolve(la, lb, log_eps, log_1m_eps, pend, x, P, mu):
                     rejected += 1
                     flag |= FLAG_OUT_REJECTED_BEFORE
                 out_ll[k] = 0.0
             else:
                 y = zk - xa[jbest, 0]
                 s_best = Pa[jbest, 0, 0] + R
-                if y * y > gate2 * s_best:
+                if y * y > gate2 * s_best or _jump_takes_over(zk, R, xa, Pa, mua, jump):
                     # suspect: keep the prediction as the "outlier" branch, then update
                     for j in range(r):
                         mub[j] = mua[j]
@@ -345,10 +383,20 @@ def imm_block(
                     out_ll[k] = 0.0
                 else:
                     out_ll[k] = _update(zk, R, xa, Pa, mua, lj, d, T)
+                    pend[3] = 0.0
         if pend[0] != 0.0:
-            # a suspect row: both branches, weighed by what is known so far
+            # a suspect row: both branches, weighed by what is known so far. When the
+            # outlier is the likelier and no change is confirmed under way, the row shows
+            # the estimate without the sample (an isolated outlier must not move it),
+            # with a variance that spans both branches about it.
             wa = 1.0 / (1.0 + math.exp(log_eps + pend[2] - log_1m_eps - pend[1]))
             _combine(k, wa, xa, Pa, mua, xb, Pb, mub, prune, ca, cb, out_x, out_var)
+            if pend[3] == 0.0 and wa < _SHOW_USED:
+                for a in range(4):
+                    d[a] = out_x[k, a]
+                _combine(k, 0.0, xa, Pa, mua, xb, Pb, mub, prune, ca, cb, out_x, out_var)
+                for a in range(4):
+                    out_var[k, a] += (d[a] - out_x[k, a]) ** 2
         else:
             _combine(k, 1.0, xa, Pa, mua, xb, Pb, mub, prune, ca, cb, out_x, out_var)
         out_flag[k] = flag

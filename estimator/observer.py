@@ -117,6 +117,11 @@ class ObserverTuning:
             deviations of the measurement noise.
         prune: models less probable than this pass nothing on and are left out of the
             reported mixture (0: the textbook IMM).
+        jump_prune: the same for the jump model. Its one-sample signature at high
+            sample rates is barely above the noise, so an ordinary 3–5σ sample gives it a
+            probability of 10⁻³–10⁻²; mixed into the other models, its span-sized
+            covariance would shake the estimate by newtons. A real load change takes it
+            to near 1 within a few samples.
         timing_tolerance: a step within this fraction of the nominal period counts
             as uniform and uses the nominal model.
         initial_force_sigma_n: prior standard deviation of the force at start-up (N);
@@ -130,6 +135,7 @@ class ObserverTuning:
     outlier_probability: float = 1e-3
     outlier_spread: float = 100.0
     prune: float = 1e-3
+    jump_prune: float = 0.05
     timing_tolerance: float = 0.01
     initial_force_sigma_n: float | None = None
     models: ForceModels | None = None
@@ -146,6 +152,8 @@ class ObserverTuning:
             )
         if not (0.0 <= self.prune < 0.1):
             raise ParameterError(f"prune = {self.prune!r}: must be in [0, 0.1)")
+        if not (0.0 <= self.jump_prune < 0.5):
+            raise ParameterError(f"jump_prune = {self.jump_prune!r}: must be in [0, 0.5)")
         _positive("timing_tolerance", self.timing_tolerance)
         if self.timing_tolerance >= 0.5:
             raise ParameterError(
@@ -192,7 +200,7 @@ class _State:
     x: np.ndarray  # (2, r, 4)
     P: np.ndarray  # (2, r, 4, 4)
     mu: np.ndarray  # (2, r)
-    pend: np.ndarray = field(default_factory=lambda: np.zeros(3))
+    pend: np.ndarray = field(default_factory=lambda: np.zeros(4))
     t_last: float | None = None
     jump_last: bool = False
 
@@ -250,6 +258,11 @@ class ForceObserver:
         #: the bank of force priors in use
         self.models = self.tuning.models or ForceModels.for_cell(plant, span, q_hold)
         self._families = self.models.families
+        # the jump model is broad: below `jump_prune` it passes nothing on (see ObserverTuning)
+        self._prune = np.where(
+            self._families == FAMILY_JUMP, max(self.tuning.jump_prune, self.tuning.prune),
+            self.tuning.prune,
+        )  # fmt: skip
         self._D = scaling(plant)
         self._tables: dict[float, int] = {}
         self._phi, self._q, self._pi = model_tables(plant, self.models, np.array([self.dt_s]))
@@ -378,7 +391,8 @@ class ForceObserver:
             tun.gate_sigma**2,
             tun.outlier_probability,
             tun.outlier_spread * k * math.sqrt(self.R),
-            tun.prune,
+            self._prune,
+            self.models.count - 1,
             st.x,
             st.P,
             st.mu,
