@@ -152,6 +152,7 @@ class EstimationPipeline:
             raise ValueError(f"tare_window_s = {tare_window_s!r}: must be a number > 0 s")
         self.profile = profile
         self.observer = ForceObserver.from_profile(profile)
+        self.observer.warm_up()  # before any port opens: no sample waits for the compiler
         self.recorder = recorder
         self.monitor: SettlingMonitor | None = None
         self.alarms: AlarmSet | None = None

@@ -262,7 +262,7 @@ def test_settled_only_after_the_estimate_has_settled_on_the_truth(seed: int) -> 
     n_hold = round(RULE.hold_s * RATE)
     entries = np.array([c.index for c in changes if c.new == SETTLED])
     observer = ForceObserver.from_profile(PROFILE)
-    gate_m = PROFILE.observer.gate_sigma * math.sqrt(observer.innovation_variance_m2)
+    gate_m = PROFILE.observer.gate_sigma * observer.measurement_sd_m  # √S ≥ √R: no later
     previous = 0.0
     for k, level in enumerate(LEVELS):
         s, e = k * n_seg, (k + 1) * n_seg

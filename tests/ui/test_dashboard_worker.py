@@ -27,10 +27,6 @@ def _wait(cond: Callable[[], bool], timeout_s: float = 20.0) -> None:
         time.sleep(0.01)
 
 
-@pytest.mark.xfail(
-    strict=False,
-    reason="regression of the multiple-model observer (issue 11, open): to be investigated (numba compile time in the worker's first block, or the new estimate columns)",  # noqa: E501
-)
 def test_worker_streams_records_and_closes_the_run_on_stop(tmp_path: Path) -> None:
     profile = default_demo_profile()
     buffer = TraceBuffer(20_000)
