@@ -61,7 +61,7 @@ FLAG_OUT_REJECTED_BEFORE = 4  #: the previous (suspect) sample was judged an out
 _LOG_2PI = math.log(2.0 * math.pi)
 _SHOW_USED = 0.5  # a suspect row shows the sample used only at these odds or better
 _DECIDED = 0.05  # two-sample odds of a suspect beyond which the decision is hard
-_JUMP_SUSPECT = 0.01  # posterior of the jump model from one sample that makes it suspect
+_JUMP_SUSPECT = 0.05  # posterior of the jump model from one sample that makes it suspect
 
 
 @numba.njit(cache=True, nogil=True, inline="always")

@@ -36,8 +36,11 @@ The rule (:class:`SettlingRule`, shown to the user by :meth:`SettlingRule.descri
   least the band (hysteresis).
 
 A gap in time (``FLAG_GAP``), a missing sample (``FLAG_MISSING``), a load jump
-(``FLAG_JUMP``), a non-finite estimate or a time that goes back (device restart)
-starts the hold window again: the monitor never claims the force stayed steady over a
+(``FLAG_JUMP``), a sample held as a possible outlier (``FLAG_REJECTED``: right after a
+load change the observer's σ is large, and a band widened by it must not let the old
+window pass for settled), a row whose smooth-load (rate) models are the more probable
+(``p_rate > 0.5``: the observer says the load is moving), a non-finite estimate or a
+time that goes back (device restart) starts the hold window again: the monitor never claims the force stayed steady over a
 time it did not observe.
 
 Determinism: every decision depends only on the estimates given, and the window sums
@@ -352,7 +355,10 @@ class SettlingMonitor:
         finite = np.isfinite(f) & np.isfinite(u)
         t_prev = np.concatenate(([self._t_last], t[:-1]))
         back = ~(t > t_prev)  # time went back (or NaN): device restart
-        restart_here = ((flags & (FLAG_GAP | FLAG_JUMP)) != 0) | back
+        # the observer's own word that the load is not held: its smooth-load models are
+        # the more probable (a ramp, or a small step they are following)
+        moving = est["p_rate"] > 0.5
+        restart_here = ((flags & (FLAG_GAP | FLAG_JUMP | FLAG_REJECTED)) != 0) | back | moving
         restart_after = ((flags & FLAG_MISSING) != 0) | ~finite
         candidate = np.where(restart_after, pos + 1, np.where(restart_here, pos, -1))
         anchor = np.maximum.accumulate(np.maximum(candidate, self._anchor))
@@ -387,7 +393,7 @@ class SettlingMonitor:
             full = count == h + 1
             steady = usable & full & (spread <= band)
             holds = usable & full & (spread <= rule.release_factor * band)
-            jumped = (flags & (FLAG_REJECTED | FLAG_JUMP)) != 0
+            jumped = ((flags & (FLAG_REJECTED | FLAG_JUMP)) != 0) | moving
             step = np.abs(f - mean)
             changing = usable & (jumped | (step > band))
             # once settled, only a step beyond the release band unsettles (hysteresis)
