@@ -40,8 +40,8 @@ A gap in time (``FLAG_GAP``), a missing sample (``FLAG_MISSING``), a load jump
 load change the observer's σ is large, and a band widened by it must not let the old
 window pass for settled), a row whose smooth-load (rate) models are the more probable
 (``p_rate > 0.5``: the observer says the load is moving), a non-finite estimate or a
-time that goes back (device restart) starts the hold window again: the monitor never claims the force stayed steady over a
-time it did not observe.
+time that goes back (device restart) starts the hold window again: the monitor never
+claims the force stayed steady over a time it did not observe.
 
 Determinism: every decision depends only on the estimates given, and the window sums
 are accumulated in a fixed order over a fixed number of columns, so any cutting of the
