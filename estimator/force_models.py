@@ -93,20 +93,26 @@ class ForceModels:
 
     @classmethod
     def for_cell(
-        cls, plant: Plant, force_span_n: float, q_hold_n2_per_s: float, *, rates: int = 5
+        cls,
+        plant: Plant,
+        force_span_n: float,
+        q_hold_n2_per_s: float,
+        *,
+        rates: int = 5,
+        rate_scale: float = 1.0,
     ) -> ForceModels:
         """The default bank for a cell of natural frequency fn and rated span.
 
         The rate models cover loads whose rate changes on time scales from about
-        ``1/(3·10⁻⁴·fn)`` down to ``1/(4·10⁻²·fn)``: intensities
-        ``q = span²·(2π·B)³`` for ``B`` spaced ×5 from ``3·10⁻⁴·fn``. A jump is
+        ``1/(3·10⁻⁴·fn)`` down to ``1/(0.19·fn)`` (five models): intensities
+        ``q = rate_scale·span²·(2π·B)³`` for ``B`` spaced ×5 from ``3·10⁻⁴·fn``. A jump is
         a quarter of the span; a jump of the rate moves the force by 1 % of the span
         per period of the cell.
         """
         _positive("force_span_n", force_span_n)
         fn = plant.natural_freq_hz
         bands = 3e-4 * fn * 5.0 ** np.arange(rates)
-        q_rate = tuple(float(force_span_n**2 * (2 * math.pi * b) ** 3) for b in bands)
+        q_rate = tuple(float(rate_scale * force_span_n**2 * (2 * math.pi * b) ** 3) for b in bands)
         return cls(
             q_hold_n2_per_s=q_hold_n2_per_s,
             q_rate_n2_per_s3=q_rate,

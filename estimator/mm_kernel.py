@@ -205,11 +205,16 @@ def _jump_takes_over(z, R, x, P, mu, jump):
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
-def _resolve(ll_used, ll_out, log_eps, log_1m_eps, pend, x, P, mu):
-    """Decide the pending suspect given the next sample's log densities under both
-    branches; merge the branches into branch 0; True when it was judged an outlier."""
-    la = log_1m_eps + pend[1] + ll_used
-    lb = log_eps + pend[2] + ll_out
+def _logaddexp(a, b):
+    """``log(e^a + e^b)`` without overflow."""
+    m = max(a, b)
+    return m + math.log(math.exp(a - m) + math.exp(b - m))
+
+
+@numba.njit(cache=True, nogil=True, inline="always")
+def _resolve(la, lb, pend, x, P, mu):
+    """Decide the pending suspect from the log weights of its branches ("used", "an
+    outlier"); merge them into branch 0; True when it was judged an outlier."""
     wa = _decided(1.0 / (1.0 + math.exp(lb - la)))
     _merge(wa, x[0], P[0], mu[0], x[1], P[1], mu[1])
     pend[0] = 0.0
@@ -297,7 +302,8 @@ def imm_block(
     out_s: np.ndarray,  # (n,) variance of that innovation
     out_flag: np.ndarray,  # (n,) FLAG_OUT_* bits
     out_mu: np.ndarray,  # (n, r) mode probabilities
-    out_ll: np.ndarray,  # (n,) log predictive density of the sample (0 when unused)
+    out_ll: np.ndarray,  # (n,) log predictive density of the sample (0 when missing;
+    #                      a suspect and the next sample share their joint density)
     log_x: np.ndarray,  # (n or 0, r, 4) per-model posterior states, for a smoother
     log_P: np.ndarray,  # (n or 0, r, 4, 4) per-model posterior covariances
 ) -> int:
@@ -351,18 +357,22 @@ def imm_block(
             flag |= FLAG_OUT_UNUSED
             out_ll[k] = 0.0
             # nothing to decide a pending suspect with: weigh by the suspect alone
-            if pending and _resolve(0.0, 0.0, log_eps, log_1m_eps, pend, x, P, mu):
+            if pending and _resolve(log_1m_eps + pend[1], log_eps + pend[2], pend, x, P, mu):
                 rejected += 1
                 flag |= FLAG_OUT_REJECTED_BEFORE
         else:
             if pending:
-                # weigh "suspect used" against "suspect an outlier" by both samples
-                la = _update(zk, R, xa, Pa, mua, lj, d, T)
-                lb = _update(zk, R, xb, Pb, mub, lj, d, T)
-                if _resolve(la, lb, log_eps, log_1m_eps, pend, x, P, mu):
+                # weigh "suspect used" against "suspect an outlier" by both samples;
+                # the two samples' joint log density, less the suspect's own (entered
+                # on its row), is this row's share of the likelihood
+                la = log_1m_eps + pend[1] + _update(zk, R, xa, Pa, mua, lj, d, T)
+                lb = log_eps + pend[2] + _update(zk, R, xb, Pb, mub, lj, d, T)
+                out_ll[k] = _logaddexp(la, lb) - _logaddexp(
+                    log_1m_eps + pend[1], log_eps + pend[2]
+                )
+                if _resolve(la, lb, pend, x, P, mu):
                     rejected += 1
                     flag |= FLAG_OUT_REJECTED_BEFORE
-                out_ll[k] = 0.0
             else:
                 y = zk - xa[jbest, 0]
                 s_best = Pa[jbest, 0, 0] + R
@@ -380,7 +390,7 @@ def imm_block(
                     pend[1] = _update(zk, R, xa, Pa, mua, lj, d, T)
                     pend[0] = 1.0
                     flag |= FLAG_OUT_SUSPECT
-                    out_ll[k] = 0.0
+                    out_ll[k] = _logaddexp(log_1m_eps + pend[1], log_eps + pend[2])
                 else:
                     out_ll[k] = _update(zk, R, xa, Pa, mua, lj, d, T)
                     pend[3] = 0.0

@@ -110,6 +110,7 @@ class ObserverTuning:
             (see `process_noise_for_bandwidth`), unless ``process_noise_n2_per_s``
             is given.
         process_noise_n2_per_s: the hold model's intensity ``q`` (N²/s) directly.
+        rate_scale: factor on the intensities of the default bank's rate models.
         gate_sigma: innovation (in standard deviations of the most probable model)
             beyond which a sample is held as a possible outlier until the next sample.
         outlier_probability: prior probability that a sample is an outlier.
@@ -134,6 +135,7 @@ class ObserverTuning:
     gate_sigma: float = 5.0
     outlier_probability: float = 1e-3
     outlier_spread: float = 100.0
+    rate_scale: float = 1.0
     prune: float = 1e-3
     jump_prune: float = 0.05
     timing_tolerance: float = 0.01
@@ -145,6 +147,7 @@ class ObserverTuning:
         if self.process_noise_n2_per_s is not None:
             _positive("process_noise_n2_per_s", self.process_noise_n2_per_s)
         _positive("gate_sigma", self.gate_sigma)
+        _positive("rate_scale", self.rate_scale)
         _positive("outlier_spread", self.outlier_spread)
         if not (0.0 < self.outlier_probability < 0.5):
             raise ParameterError(
@@ -256,7 +259,9 @@ class ForceObserver:
         _positive("force span", span)
         self.force_span_n = float(span)
         #: the bank of force priors in use
-        self.models = self.tuning.models or ForceModels.for_cell(plant, span, q_hold)
+        self.models = self.tuning.models or ForceModels.for_cell(
+            plant, span, q_hold, rate_scale=self.tuning.rate_scale
+        )
         self._families = self.models.families
         # the jump model is broad: below `jump_prune` it passes nothing on (see ObserverTuning)
         self._prune = np.where(
@@ -284,6 +289,7 @@ class ForceObserver:
             force_bandwidth_hz=obs.force_bandwidth_hz,
             process_noise_n2_per_s=obs.process_noise_n2_per_s,
             gate_sigma=obs.gate_sigma,
+            rate_scale=obs.rate_scale,
         )
         span = profile.limits.force_max_n - profile.limits.force_min_n
         return cls(

@@ -110,10 +110,10 @@ KEY_HELP: dict[str, dict[str, str]] = {
         + ", ".join(ALLOWED_LINE_COLUMNS),
     },
     "observer": {
-        "force_bandwidth_hz": "bandwidth the observer allows the force, Hz",
-        "process_noise_n2_per_s": "force random-walk intensity in N^2/s; overrides the bandwidth",
-        "gate_sigma": "innovation gate, in standard deviations",
-        "reacquire_after": "consecutive gated samples before the force uncertainty reopens",
+        "force_bandwidth_hz": "bandwidth of the observer's hold model (held loads), Hz",
+        "process_noise_n2_per_s": "hold model's random-walk intensity, N^2/s; overrides the above",
+        "gate_sigma": "innovation that makes a sample suspect, in standard deviations",
+        "rate_scale": "factor on the intensities of the observer's rate models (smooth loads)",
     },
     "limits": {
         "force_min_n": "lower end of the calibrated force range, N",
@@ -388,8 +388,10 @@ class AcquisitionSection:
 class ObserverSection:
     """Observer tuning.
 
-    ``process_noise_n2_per_s``, when given, sets the force random-walk intensity
-    directly and overrides ``force_bandwidth_hz``.
+    ``force_bandwidth_hz`` sets the intensity of the observer's hold model (a random
+    walk); ``process_noise_n2_per_s``, when given, sets it directly and overrides the
+    bandwidth. ``rate_scale`` multiplies the intensities of its rate models (1: the
+    bank derived from the cell's natural frequency and range; `forcelens tune` fits it).
     """
 
     TABLE: ClassVar[str] = "observer"
@@ -397,7 +399,7 @@ class ObserverSection:
     force_bandwidth_hz: float = 20.0
     process_noise_n2_per_s: float | None = None
     gate_sigma: float = 5.0
-    reacquire_after: int = 3
+    rate_scale: float = 1.0
 
     def __post_init__(self) -> None:
         t = self.TABLE
@@ -413,11 +415,7 @@ class ObserverSection:
                 _real(t, "process_noise_n2_per_s", self.process_noise_n2_per_s, above=0.0),
             )
         _set(self, "gate_sigma", _real(t, "gate_sigma", self.gate_sigma, above=1.0))
-        _set(
-            self,
-            "reacquire_after",
-            _integer(t, "reacquire_after", self.reacquire_after, at_least=1),
-        )
+        _set(self, "rate_scale", _real(t, "rate_scale", self.rate_scale, above=0.0))
 
 
 @dataclass(frozen=True)

@@ -26,12 +26,12 @@ pass; force, its uncertainty, displacement, velocity and the model probabilities
 from __future__ import annotations
 
 import dataclasses
-import math
 from dataclasses import dataclass
 
 import numpy as np
 
 from estimator.force_models import FAMILY_HOLD, FAMILY_RATE, model_tables, scaling
+from estimator.loggrid import ascend
 from estimator.mm_kernel import imm_block
 from estimator.mm_smooth_kernel import kim_backward
 from estimator.observer import FLAG_OUTLIER_BEFORE, ForceObserver
@@ -100,26 +100,13 @@ def fit_prior(obs: ForceObserver, time_s: np.ndarray, displacement_m: np.ndarray
     best: SmootherFit | None = None
     starts = {FAMILY_HOLD: obs.models.q_hold_n2_per_s, FAMILY_RATE: obs.models.q_rate_n2_per_s3[0]}
     for family, q0 in starts.items():
-        cache: dict[tuple[float, float], float] = {}
 
-        def ll(q: float, noise: float, family: int = family, cache: dict = cache) -> float:
-            key = (round(math.log(q), 9), round(math.log(noise), 9))
-            if key not in cache:
-                cache[key] = _filter(obs, family, q, noise, z, dts, rows, False)[0]
-            return cache[key]
+        def ll(p: tuple[float, ...], family: int = family) -> float:
+            return _filter(obs, family, p[0], p[1], z, dts, rows, False)[0]
 
-        q, noise = q0, 1.0
-        for step, axis in ((_STEP**2, 0), (_STEP, 0), (1.1, 1)):
-            for _ in range(_WIDEN):
-                pts = [(q, noise)]
-                pts += [(q * step, noise), (q / step, noise)] if axis == 0 else [
-                    (q, noise * step), (q, noise / step)]  # fmt: skip
-                vals = [ll(*p) for p in pts]
-                i = int(np.argmax(vals))
-                if i == 0:
-                    break
-                q, noise = pts[i]
-        fit = SmootherFit(family, q, noise, ll(q, noise))
+        # the intensity in coarse steps first (its optimum may be decades away)
+        found = ascend(ll, (q0, 1.0), (_STEP**2, 1.1), widen=_WIDEN)
+        fit = SmootherFit(family, found.point[0], found.point[1], found.value)
         if best is None or fit.log_likelihood > best.log_likelihood:
             best = fit
     assert best is not None

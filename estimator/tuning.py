@@ -3,13 +3,12 @@
 * `noise_from_quiet`: the transducer's white noise from a stretch with the cell unloaded
   and at rest: the residual standard deviation about a straight line (slow drift
   removed), less the quantisation variance LSB²/12 that the observer adds itself.
-* `tune_bandwidth`: for each candidate bandwidth of the observer's hold model (the
-  random-walk prior of held loads), run the observer over a record
-  and sum the Gaussian log-likelihood of its innovations,
-  ``ℓ = −½ Σ [ln(2π·S_i) + y_i²/S_i]`` (the prediction-error decomposition of the
-  likelihood of a state-space model; e.g. Harvey, "Forecasting, structural time series
-  models and the Kalman filter", 1989, from memory); the bandwidth with the largest ℓ
-  describes the record best.
+* `fit_observer`: the noise, the hold model's intensity and the scale of the rate
+  models' intensities that maximise the record's innovation log-likelihood
+  ``ℓ = Σ ln p(z_k | z_1..k−1)`` of the multiple-model observer (the prediction-error
+  decomposition of the likelihood of a state-space model; e.g. Harvey, "Forecasting,
+  structural time series models and the Kalman filter", 1989, from memory), on any
+  record: steps, ramps, sines or a free-running load.
 * `compare_on_steps`: the noise of the held levels and the settling time after each
   step, for several observers (the multiple-model observer's jump model keeps even a
   quiet hold model quick at a step).
@@ -24,26 +23,19 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import ArrayLike
 
-from estimator.errors import EstimatorError, ParameterError
-from estimator.observer import (
-    FLAG_GAP,
-    FLAG_JUMP,
-    FLAG_MISSING,
-    FLAG_REJECTED,
-    ForceObserver,
-    ObserverTuning,
-)
+from estimator.errors import EstimatorError
+from estimator.loggrid import ascend
+from estimator.observer import ForceObserver, ObserverTuning
 from estimator.plant import Plant
 from estimator.settling import time_to_settle
 
 __all__ = [
     "NoiseEstimate",
+    "ObserverFit",
     "StepComparison",
-    "TuneResult",
     "compare_on_steps",
-    "innovation_log_likelihood",
+    "fit_observer",
     "noise_from_quiet",
-    "tune_bandwidth",
 ]
 
 
@@ -81,36 +73,30 @@ def noise_from_quiet(
     return NoiseEstimate(math.sqrt(white), std, int(t.size))
 
 
-def innovation_log_likelihood(estimates: np.ndarray) -> tuple[float, int]:
-    """ℓ of the innovations of an estimate block, and how many samples entered it.
-
-    Samples that were rejected, missing, after a gap or re-acquired are left out (their
-    innovation does not follow the model's law).
-    """
-    y = estimates["innovation_m"]
-    nis = estimates["nis"]
-    bad = FLAG_REJECTED | FLAG_MISSING | FLAG_GAP | FLAG_JUMP
-    use = ((estimates["flags"] & bad) == 0) & np.isfinite(y) & np.isfinite(nis) & (nis > 0)
-    use[0] = False  # the start-up sample has no prediction
-    s = y[use] ** 2 / nis[use]
-    return float(-0.5 * np.sum(np.log(2 * np.pi * s) + nis[use])), int(use.sum())
-
-
 @dataclass(frozen=True)
-class TuneResult:
-    """Log-likelihood of each candidate bandwidth, and the best one."""
+class ObserverFit:
+    """The observer's noise and intensities that maximise a record's likelihood.
 
-    bandwidths_hz: np.ndarray
-    log_likelihood: np.ndarray
-    best_hz: float
+    Attributes:
+        noise_m: transducer white noise (quantisation not included), m.
+        q_hold_n2_per_s: the hold model's random-walk intensity, N²/s.
+        rate_scale: factor on the rate models' default intensities.
+        log_likelihood: the record's innovation log-likelihood with them (nats).
+        start_log_likelihood: the same with the values the search started from.
+        at_edge: parameter names whose search stopped at its widest (not pinned down).
+        evaluations: runs of the observer over the record.
+    """
 
-    @property
-    def at_edge(self) -> bool:
-        """True when the best bandwidth is the lowest or highest candidate (widen the grid)."""
-        return self.best_hz in (float(self.bandwidths_hz[0]), float(self.bandwidths_hz[-1]))
+    noise_m: float
+    q_hold_n2_per_s: float
+    rate_scale: float
+    log_likelihood: float
+    start_log_likelihood: float
+    at_edge: tuple[str, ...]
+    evaluations: int
 
 
-def tune_bandwidth(
+def fit_observer(
     plant: Plant,
     sample_period_s: float,
     noise_m: float,
@@ -118,28 +104,47 @@ def tune_bandwidth(
     time_s: ArrayLike,
     displacement_m: ArrayLike,
     *,
-    bandwidths_hz: Sequence[float] | None = None,
-    force_range_n: float | None = None,
-) -> TuneResult:
-    """The force bandwidth whose observer gives the record the largest likelihood."""
+    force_range_n: float,
+    q_hold_n2_per_s: float,
+    rate_scale: float = 1.0,
+    gate_sigma: float = 5.0,
+    fit_noise: bool = True,
+) -> ObserverFit:
+    """Fit the noise, the hold intensity and the rate scale by likelihood on a record.
+
+    Any record will do (steps, ramps, sines, a free-running load): the likelihood of
+    the multiple-model observer weighs every part by the model that explains it.
+    Coordinate ascent on log grids (:func:`estimator.loggrid.ascend`), widened while
+    the best value sits on an edge; ``noise_m`` and the intensities are the start, and
+    with ``fit_noise`` false (noise known from a quiet stretch) the noise stays as given.
+    """
     t = np.asarray(time_s, dtype=float)
     z = np.asarray(displacement_m, dtype=float)
-    nyquist = 0.5 / sample_period_s
-    grid = np.asarray(
-        bandwidths_hz
-        if bandwidths_hz is not None
-        else np.geomspace(1.0, min(0.2 * nyquist, 0.5 * plant.natural_freq_hz), 13)
+
+    def loglik(p: tuple[float, ...]) -> float:
+        noise = noise_m * p[2] if len(p) > 2 else noise_m
+        tuning = ObserverTuning(
+            process_noise_n2_per_s=p[0], rate_scale=p[1], gate_sigma=gate_sigma
+        )
+        obs = ForceObserver(plant, sample_period_s, noise, resolution_m, tuning, force_range_n)
+        obs.process(t, z)
+        return obs.log_likelihood
+
+    start = (q_hold_n2_per_s, rate_scale, 1.0)
+    steps = (10.0, 4.0, 1.1) if fit_noise else (10.0, 4.0)
+    result = ascend(loglik, start[: len(steps)], steps)
+    q_hold, scale = result.point[0], result.point[1]
+    noise_scale = result.point[2] if fit_noise else 1.0
+    names = ("q_hold_n2_per_s", "rate_scale", "noise_m")
+    return ObserverFit(
+        noise_m=noise_m * noise_scale,
+        q_hold_n2_per_s=q_hold,
+        rate_scale=scale,
+        log_likelihood=result.value,
+        start_log_likelihood=loglik(start[: len(steps)]),
+        at_edge=tuple(n for n, e in zip(names, result.at_edge, strict=False) if e),
+        evaluations=result.evaluations + 1,
     )
-    if grid.size < 2 or np.any(~np.isfinite(grid)) or np.any(grid <= 0):
-        raise ParameterError("bandwidths_hz: give at least two positive candidate bandwidths")
-
-    def observer(b: float) -> ForceObserver:
-        tuning = ObserverTuning(force_bandwidth_hz=float(b))
-        return ForceObserver(plant, sample_period_s, noise_m, resolution_m, tuning, force_range_n)
-
-    ll = np.array([innovation_log_likelihood(observer(b).process(t, z))[0] for b in grid])
-    best = float(grid[int(np.argmax(ll))])
-    return TuneResult(grid, ll, best)
 
 
 @dataclass(frozen=True)

@@ -65,7 +65,7 @@ def test_demo_profile_loads_with_the_specified_values() -> None:
     assert profile.acquisition == AcquisitionSection(sample_rate_hz=2000.0)
     assert profile.acquisition.port == ""
     assert profile.observer == ObserverSection(
-        force_bandwidth_hz=20.0, gate_sigma=5.0, reacquire_after=3
+        force_bandwidth_hz=20.0, gate_sigma=5.0, rate_scale=1.0
     )
     assert profile.limits == LimitsSection(force_min_n=-10.0, force_max_n=120.0, travel_m=5.0e-4)
 
@@ -121,7 +121,7 @@ def _awkward_profile(seed: int) -> CellProfile:
             force_bandwidth_hz=r(1, 40),
             process_noise_n2_per_s=r(1e-3, 1e3),
             gate_sigma=r(1.5, 9),
-            reacquire_after=7,
+            rate_scale=r(0.1, 10),
         ),
         limits=LimitsSection(force_min_n=-r(0, 1e3), force_max_n=1e300, travel_m=r(1e-5, 1e-2)),
     )
@@ -254,7 +254,7 @@ INVALID_CASES = [
     ("twice", _set("acquisition", "line_columns", "seq,seq,counts"), "'seq' appears twice"),
     ("two clocks", _set("acquisition", "line_columns", "time_ms,time_us,counts"), "not both"),
     ("gate of one sigma", _set("observer", "gate_sigma", 1.0), "gate_sigma"),
-    ("reacquire zero", _set("observer", "reacquire_after", 0), "reacquire_after"),
+    ("rate scale zero", _set("observer", "rate_scale", 0.0), "rate_scale"),
     ("zero process noise", _set("observer", "process_noise_n2_per_s", 0.0), "process_noise"),
     ("bandwidth past Nyquist", _set("observer", "force_bandwidth_hz", 1000.0), "Nyquist"),
     ("missing key", _delete("plant", "stiffness_n_per_m"), "stiffness_n_per_m is missing"),

@@ -244,7 +244,7 @@ def summary_lines(profile: CellProfile) -> list[str]:
         )
     lines += [
         f"  innovation gate      {obs.gate_sigma:.6g} σ",
-        f"  reacquire after      {obs.reacquire_after} gated samples",
+        f"  rate-model scale     {obs.rate_scale:.6g}",
         "limits",
         f"  force range          {lim.force_min_n:.6g} N to {lim.force_max_n:.6g} N",
     ]

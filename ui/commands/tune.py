@@ -1,10 +1,13 @@
-"""``forcelens tune``: transducer noise and observer bandwidth from a recording.
+"""``forcelens tune``: transducer noise and observer intensities from a recording.
 
-The noise comes from a quiet stretch (cell unloaded and at rest, ``--quiet-from`` /
-``--quiet-to``); the force bandwidth from the innovation log-likelihood of the record (or
-the ``--from``/``--to`` part of it). A staircase of load steps on the simulated cell
-(invented data) then shows what the tuning gives: the noise of the held readings and the
-settling time, for the chosen hold bandwidth and a faster one.
+Any record will do: a staircase, a ramp, a sine or a free-running load. The noise, the
+hold model's intensity and the scale of the rate models' intensities are those that
+maximise the innovation log-likelihood of the record (or of its ``--from``/``--to``
+part); each search widens while its best value sits on an edge. A quiet stretch (cell
+unloaded and at rest, ``--quiet-from``/``--quiet-to``) stays an option: it fixes the
+noise, which is then not fitted. A staircase of load steps on the simulated cell
+(invented data) then shows what the tuning gives: the noise of the held readings and
+the settling time, before and after.
 """
 
 from __future__ import annotations
@@ -12,6 +15,7 @@ from __future__ import annotations
 import argparse
 import dataclasses
 import datetime
+import sys
 from pathlib import Path
 from typing import Any
 
@@ -21,18 +25,21 @@ __all__ = ["register"]
 def register(subparsers: Any) -> None:
     p = subparsers.add_parser(
         "tune",
-        help="noise from a quiet stretch and the observer bandwidth by innovation likelihood",
+        help="noise and observer intensities by innovation likelihood on any record",
         description=(
-            "Estimate the transducer noise from a quiet stretch of a run or CSV (cell "
-            "unloaded, at rest) and choose the observer's force bandwidth by the innovation "
-            "log-likelihood of the record; show the resulting steady noise and settling on "
-            "a simulated staircase, chosen and faster. --out writes the "
-            "tuned profile."
+            "Fit the transducer noise, the observer's hold intensity and the scale of its "
+            "rate models by the innovation log-likelihood of a run or CSV (any load: "
+            "steps, ramps, sines, free running); with --quiet-from/--quiet-to the noise "
+            "comes from that quiet stretch (cell unloaded, at rest) instead. Shows the "
+            "result on a simulated staircase (invented data). --out writes the tuned "
+            "profile."
         ),
     )
     p.add_argument("record", help="run folder, or CSV with time_s and displacement_m/mm/um")
-    p.add_argument("--quiet-from", type=float, required=True, metavar="S", help="quiet start, s")
-    p.add_argument("--quiet-to", type=float, required=True, metavar="S", help="quiet end, s")
+    p.add_argument(
+        "--quiet-from", type=float, metavar="S", help="quiet start, s (with --quiet-to)"
+    )
+    p.add_argument("--quiet-to", type=float, metavar="S", help="quiet end, s (with --quiet-from)")
     p.add_argument("--from", dest="t_from", type=float, metavar="S", help="record start, s")
     p.add_argument("--to", dest="t_to", type=float, metavar="S", help="record end, s")
     p.add_argument("--profile", help="cell profile (default: the run's own, or the demo cell)")
@@ -43,49 +50,80 @@ def register(subparsers: Any) -> None:
 def run(args: argparse.Namespace) -> int:
     import numpy as np
 
+    from estimator.observer import process_noise_for_bandwidth
     from estimator.profile import default_demo_profile, load_profile, save_profile
-    from estimator.tuning import noise_from_quiet, tune_bandwidth
+    from estimator.tuning import fit_observer, noise_from_quiet
     from ui.commands.identify import _record
 
+    if (args.quiet_from is None) != (args.quiet_to is None):
+        raise ValueError("give both --quiet-from and --quiet-to, or neither")
     t, x, digest, run_profile = _record(Path(args.record))
     profile = load_profile(args.profile) if args.profile else run_profile
     profile = profile or default_demo_profile()
-    quiet = (t >= args.quiet_from) & (t <= args.quiet_to)
-    noise = noise_from_quiet(t[quiet], x[quiet], profile.transducer.resolution_m)
-    print(
-        f"noise from {noise.samples} quiet samples: {noise.noise_m:.3g} m (1σ, quantisation "
-        f"removed; was {profile.transducer.noise_m:.3g} m in the profile)"
-    )
+    tr, obs = profile.transducer, profile.observer
+    noise_m = tr.noise_m
+    if args.quiet_from is not None:
+        quiet = (t >= args.quiet_from) & (t <= args.quiet_to)
+        noise = noise_from_quiet(t[quiet], x[quiet], tr.resolution_m)
+        noise_m = noise.noise_m
+        print(
+            f"noise from {noise.samples} quiet samples: {noise_m:.3g} m (1σ, quantisation "
+            f"removed; was {tr.noise_m:.3g} m in the profile); not fitted"
+        )
     keep = np.ones(t.size, dtype=bool)
     if args.t_from is not None:
         keep &= t >= args.t_from
     if args.t_to is not None:
         keep &= t <= args.t_to
     lim = profile.limits
-    result = tune_bandwidth(
-        profile.plant.plant(),
-        profile.acquisition.sample_period_s,
-        noise.noise_m,
-        profile.transducer.resolution_m,
+    dt = profile.acquisition.sample_period_s
+    plant = profile.plant.plant()
+    q_hold = obs.process_noise_n2_per_s or process_noise_for_bandwidth(
+        obs.force_bandwidth_hz,
+        plant.stiffness_n_per_m,
+        tr.noise_m**2 + tr.resolution_m**2 / 12,
+        dt,
+    )
+    print(f"fitting on {int(keep.sum())} samples by innovation likelihood...", file=sys.stderr)
+    fit = fit_observer(
+        plant,
+        dt,
+        noise_m,
+        tr.resolution_m,
         t[keep],
         x[keep],
         force_range_n=lim.force_max_n - lim.force_min_n,
+        q_hold_n2_per_s=q_hold,
+        rate_scale=obs.rate_scale,
+        gate_sigma=obs.gate_sigma,
+        fit_noise=args.quiet_from is None,
     )
-    rel = result.log_likelihood - result.log_likelihood.max()
-    print("force bandwidth, Hz, and log-likelihood relative to the best:")
-    pairs = zip(result.bandwidths_hz, rel, strict=True)
-    print("  " + "  ".join(f"{b:.3g}:{r:.1f}" for b, r in pairs))
-    edge = ""
-    if result.at_edge:
-        edge = " (at the edge of the candidates: the record does not pin it down)"
-    print(f"chosen: {result.best_hz:.3g} Hz{edge} for the hold model of the observer")
+    print(f"                         {'profile':>12} {'fitted':>12}")
+    print(f"  noise, m               {tr.noise_m:12.4g} {fit.noise_m:12.4g}")
+    print(f"  hold intensity, N²/s   {q_hold:12.4g} {fit.q_hold_n2_per_s:12.4g}")
+    print(f"  rate-model scale       {obs.rate_scale:12.4g} {fit.rate_scale:12.4g}")
+    print(
+        f"log-likelihood {fit.log_likelihood:.1f} (profile's values: "
+        f"{fit.start_log_likelihood:.1f}); {fit.evaluations} runs over the record"
+    )
+    if fit.at_edge:
+        print(
+            "not pinned down by this record (the search stopped at its widest), so the "
+            "profile's value is kept: " + ", ".join(fit.at_edge)
+        )
     tuned = profile.with_updates(
-        transducer=dataclasses.replace(profile.transducer, noise_m=noise.noise_m),
+        transducer=dataclasses.replace(
+            tr, noise_m=tr.noise_m if "noise_m" in fit.at_edge else fit.noise_m
+        ),
         observer=dataclasses.replace(
-            profile.observer, force_bandwidth_hz=result.best_hz, process_noise_n2_per_s=None
+            obs,
+            process_noise_n2_per_s=q_hold
+            if "q_hold_n2_per_s" in fit.at_edge
+            else fit.q_hold_n2_per_s,
+            rate_scale=obs.rate_scale if "rate_scale" in fit.at_edge else fit.rate_scale,
         ),
     )
-    _staircase(tuned, result.best_hz)
+    _staircase(profile, tuned)
     if args.out:
         today = datetime.date.today().isoformat()
         cell = dataclasses.replace(
@@ -98,35 +136,26 @@ def run(args: argparse.Namespace) -> int:
     return 0
 
 
-def _staircase(profile: Any, bandwidth_hz: float) -> None:
-    """The tuning on a simulated staircase (invented data): noise and settling."""
+def _staircase(before: Any, after: Any) -> None:
+    """Both profiles on a simulated staircase (invented data): noise and settling."""
     import numpy as np
 
     from daq.programme import parse_programme
-    from estimator.observer import ForceObserver, ObserverTuning
+    from estimator.observer import ForceObserver
     from estimator.tuning import compare_on_steps
     from ui.wiring import scaling_for, simulated_cell_for
 
-    top = 0.8 * profile.limits.force_max_n
+    top = 0.8 * after.limits.force_max_n
     levels = [0.2 * top, 0.6 * top, top, 0.3 * top, 0.0]
     spec = "hold 0.5 0; " + "; ".join(f"hold 0.5 {f:.6g}" for f in levels)
-    run = simulated_cell_for(profile, seed=1).generate(parse_programme(spec))
-    t = run.seq * profile.acquisition.sample_period_s
-    x = scaling_for(profile).to_metres(run.counts)
+    run = simulated_cell_for(after, seed=1).generate(parse_programme(spec))
+    t = run.seq * after.acquisition.sample_period_s
+    x = scaling_for(after).to_metres(run.counts)
     steps = [(0.5 * (i + 1), f) for i, f in enumerate(levels)]
-
-    def observer(b: float) -> ForceObserver:
-        base = ForceObserver.from_profile(profile)
-        tuning = ObserverTuning(force_bandwidth_hz=b, gate_sigma=profile.observer.gate_sigma)
-        span = profile.limits.force_max_n - profile.limits.force_min_n
-        return ForceObserver(base.plant, base.dt_s, profile.transducer.noise_m,
-                             profile.transducer.resolution_m, tuning, span)  # fmt: skip
-
-    fast = min(10.0 * bandwidth_hz, 0.2 / profile.acquisition.sample_period_s)
     rows = compare_on_steps(
         [
-            (f"hold model at {bandwidth_hz:.3g} Hz", observer(bandwidth_hz)),
-            (f"hold model at {fast:.3g} Hz", observer(fast)),
+            ("profile as given", ForceObserver.from_profile(before)),
+            ("tuned", ForceObserver.from_profile(after)),
         ],
         t,
         x,
@@ -140,4 +169,4 @@ def _staircase(profile: Any, bandwidth_hz: float) -> None:
             if not np.isfinite(r.median_settling_s)
             else (f"{r.median_settling_s * 1e3:.3g} ms")
         )
-        print(f"  {r.label:32s} held noise {r.hold_noise_n:.3g} N rms, median settling {settle}")
+        print(f"  {r.label:18s} held noise {r.hold_noise_n:.3g} N rms, median settling {settle}")

@@ -1,0 +1,106 @@
+"""The offline smoother: its backward pass against filterpy's RTS smoother, and what it
+does on whole records. Cells and loads are invented; randomness is seeded."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+import scipy.signal
+from filterpy.kalman import KalmanFilter
+
+from estimator.force_models import FAMILY_HOLD, FAMILY_RATE, ForceModels, model_tables
+from estimator.mm_kernel import imm_block
+from estimator.mm_smooth_kernel import kim_backward
+from estimator.observer import ForceObserver, ObserverTuning
+from estimator.plant import Plant
+from estimator.smoother import fit_prior, smooth_record
+
+# Invented cell: 0.4 kg, 4e5 N/m, ζ = 0.12 (fn ≈ 159 Hz), 2 kHz, 50 nm noise.
+CELL = Plant.from_modal(1000.0, 0.12, 4.0e5)
+DT, NOISE, SPAN = 5e-4, 5e-8, 130.0
+
+
+@pytest.mark.parametrize("model", [0, 1])
+def test_backward_pass_with_one_model_is_the_rts_smoother(model: int) -> None:
+    # Reference: filterpy's KalmanFilter.batch_filter + rts_smoother (Rauch, Tung &
+    # Striebel 1965), on the same scaled model (hold: random walk; 1: a rate model).
+    bank = ForceModels.for_cell(CELL, SPAN, 10.0)
+    PHI, Q, _ = model_tables(CELL, bank, np.array([DT]))
+    phi, q = PHI[:, model : model + 1].copy(), Q[:, model : model + 1].copy()
+    k = CELL.stiffness_n_per_m
+    R = (NOISE * k) ** 2
+    rng = np.random.default_rng(3)
+    n = 400
+    z = 10.0 + np.cumsum(rng.normal(0.0, 0.05, n)) + rng.normal(0.0, NOISE * k, n)
+    P0 = np.diag([R, 100.0, 100.0, 100.0 if model else 0.0])
+    x = np.zeros((2, 1, 4))
+    x[:, 0] = (z[0], 0.0, z[0], 0.0)
+    P = np.zeros((2, 1, 4, 4))
+    P[:, 0] = P0
+    outs = [np.empty((n, 4)), np.empty((n, 4)), np.empty(n), np.empty(n)]
+    lx, lP, om = np.empty((n, 1, 4)), np.empty((n, 1, 4, 4)), np.empty((n, 1))
+    rows = np.zeros(n, np.int64)
+    imm_block(z, rows, phi, q, np.ones((1, 1, 1)), R, 1e300, 1e-3, 1.0, np.zeros(1), -1,
+              x, P, np.ones((2, 1)), np.zeros(4), *outs, np.empty(n, np.int64), om,
+              np.empty(n), lx, lP)  # fmt: skip
+    sx, sv, smu = np.empty((n, 4)), np.empty((n, 4)), np.empty((n, 1))
+    kim_backward(rows, phi, q, np.ones((1, 1, 1)), lx, lP, om, sx, sv, smu)
+
+    # The hold model pins Ḟ to 0: filterpy (which inverts the predicted covariance)
+    # gets the three states [x, v, F] it then has.
+    m = 4 if model else 3
+    kf = KalmanFilter(dim_x=m, dim_z=1)
+    kf.x = np.array([z[0], 0.0, z[0], 0.0][:m])
+    kf.P = P0[:m, :m].copy()
+    kf.F, kf.Q = phi[0, 0][:m, :m], q[0, 0][:m, :m]
+    kf.H, kf.R = np.eye(1, m), np.array([[R]])
+    means, covs, _, _ = kf.batch_filter(z)
+    xs, Ps, _, _ = kf.rts_smoother(means, covs)
+    np.testing.assert_allclose(lx[:, 0, 2], means[:, 2], rtol=1e-9, atol=1e-9)
+    np.testing.assert_allclose(sx[:, 2], xs[:, 2], rtol=1e-8, atol=1e-8)
+    # The first samples' covariances are nearly singular (a span-wide prior against a
+    # 0.02 N measurement): inverse against solve differ there by ~1e-5; from the fifth
+    # sample on they agree to 1e-6.
+    np.testing.assert_allclose(np.sqrt(sv[4:, 2]), np.sqrt(Ps[4:, 2, 2]), rtol=1e-6)
+
+
+def _record(force: np.ndarray, t: np.ndarray, seed: int) -> np.ndarray:
+    """Displacement of the cell (scipy.signal.lsim: the reference) plus 50 nm noise."""
+    _, x, _ = scipy.signal.lsim(CELL.state_space(), force, t, interp=False)
+    return x + np.random.default_rng(seed).normal(0.0, NOISE, t.size)
+
+
+def _observer() -> ForceObserver:
+    return ForceObserver(CELL, DT, NOISE, 0.0, ObserverTuning(), SPAN)
+
+
+def test_smoothing_a_ramp_picks_the_rate_prior_and_beats_the_live_filter() -> None:
+    t = np.arange(0.0, 2.0, DT)
+    force = np.clip(60.0 * (t - 0.5), 0.0, 60.0)  # invented ramp: 0.5 s to 1.5 s
+    z = _record(force, t, seed=1)
+    obs = _observer()
+    live = obs.process(t, z)
+    fit = fit_prior(obs, t, z)
+    assert fit.family == FAMILY_RATE  # a ramp is an integrated random walk's case
+    sm = smooth_record(_observer(), t, z)
+    score = t > 0.05
+    rms = lambda e: math.sqrt(np.mean(e[score] ** 2))  # noqa: E731
+    # The smoother uses every later sample too: its error is below the live filter's
+    # (the smoothed covariance never exceeds the filtered one, Rauch, Tung & Striebel 1965).
+    assert rms(sm["force_n"] - force) < rms(live["force_n"] - force)
+    cover = np.mean(np.abs(sm["force_n"] - force)[score] <= 2 * sm["force_u_n"][score])
+    assert 0.9 <= cover <= 1.0
+
+
+def test_smoothing_leaves_out_the_samples_the_live_pass_judged_outliers() -> None:
+    t = np.arange(0.0, 1.0, DT)
+    force = np.full(t.size, 40.0)  # invented held load
+    z = _record(force, t, seed=2)
+    spiky = z.copy()
+    spiky[[500, 900, 1300]] += 50 * NOISE
+    clean, dirty = smooth_record(_observer(), t, z), smooth_record(_observer(), t, spiky)
+    assert fit_prior(_observer(), t, z).family == FAMILY_HOLD  # a held load
+    # Three samples fewer change the smoothed force by far less than its σ.
+    assert np.max(np.abs(dirty["force_n"] - clean["force_n"])) < 0.5 * np.min(clean["force_u_n"])
