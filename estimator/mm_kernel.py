@@ -351,8 +351,11 @@ def imm_block(
             if mua[j] >= prune[j] or j == jbest:
                 smix += mua[j] * (Pa[j, 0, 0] + R + (xa[j, 0] - zhat) ** 2)
         smix /= wsum
-        out_y[k] = zk - zhat
-        out_s[k] = smix
+        # the innovation and its variance under the most probable model: χ²(1) when
+        # that model is right (the mixture's own variance includes the spread of the
+        # improbable models and would make the NIS too small)
+        out_y[k] = zk - xa[jbest, 0]
+        out_s[k] = Pa[jbest, 0, 0] + R
         if math.isnan(zk):
             flag |= FLAG_OUT_UNUSED
             out_ll[k] = 0.0

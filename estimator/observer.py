@@ -73,6 +73,7 @@ __all__ = [
 
 #: One row per input sample. Units: s, N, N (standard uncertainty, k = 1), m, m/s, m,
 #: 1, flags, then the probabilities of the hold, rate (all intensities) and jump models.
+#: ``innovation_m`` and ``nis`` are those of the model most probable before the sample.
 ESTIMATE_DTYPE = np.dtype(
     [
         ("time_s", "<f8"),

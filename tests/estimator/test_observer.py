@@ -351,16 +351,7 @@ def test_two_sigma_coverage_on_truth_from_the_priors(prior_runs, truth: str) -> 
     assert 0.93 <= share <= 0.97
 
 
-_NIS_RATE_OPEN = (
-    "open (issue 11): on truth drawn from a rate prior the mean NIS stays below its band; "
-    "the predicted innovation variance includes the spread between the rate models"
-)
-
-
-@pytest.mark.parametrize(
-    "truth",
-    ["hold", pytest.param("rate", marks=pytest.mark.xfail(strict=True, reason=_NIS_RATE_OPEN))],
-)
+@pytest.mark.parametrize("truth", ["hold", "rate"])
 def test_mean_nis_on_truth_from_the_priors(prior_runs, truth: str) -> None:
     # With the right model each NIS is χ²(1) and the mean of N is χ²(N)/N (Bar-Shalom,
     # Li & Kirubarajan 2001, §5.4); band from scipy.stats.chi2 via nis_band.
