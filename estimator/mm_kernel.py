@@ -130,22 +130,31 @@ def _interact_predict(it, PHI, Q, PI, prune, x, P, mu, cbar, x0, P0, w, d, T):
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
-def _update(z, R, x, P, mu, lj, d, T):
-    """Steps 3 and 4 in place; returns the log predictive density of ``z``."""
+def _weigh(z, R, x, P, mu, w):
+    """Each model's prior probability times its likelihood of ``z``, scaled by
+    ``e^(−lmax)`` into ``w``; returns ``(lmax, Σ w)``."""
     r = mu.shape[0]
     lmax = -np.inf
     for j in range(r):
         s_ = P[j, 0, 0] + R
         y_ = z - x[j, 0]
-        lj[j] = -0.5 * (_LOG_2PI + math.log(s_) + y_ * y_ / s_)
-        if lj[j] > lmax:
-            lmax = lj[j]
+        w[j] = -0.5 * (_LOG_2PI + math.log(s_) + y_ * y_ / s_)
+        if w[j] > lmax:
+            lmax = w[j]
     total = 0.0
     for j in range(r):
-        mu[j] = mu[j] * math.exp(lj[j] - lmax)
-        total += mu[j]
+        w[j] = mu[j] * math.exp(w[j] - lmax)
+        total += w[j]
+    return lmax, total
+
+
+@numba.njit(cache=True, nogil=True, inline="always")
+def _apply(z, R, x, P, mu, w, lmax, total, d, T):
+    """Steps 3 and 4 in place from the weights of `_weigh`; returns the log predictive
+    density of ``z``."""
+    r = mu.shape[0]
     for j in range(r):
-        mu[j] /= total
+        mu[j] = w[j] / total
     for j in range(r):
         s_ = P[j, 0, 0] + R
         y_ = z - x[j, 0]
@@ -166,6 +175,13 @@ def _update(z, R, x, P, mu, lj, d, T):
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
+def _update(z, R, x, P, mu, w, d, T):
+    """Steps 3 and 4 in place; returns the log predictive density of ``z``."""
+    lmax, total = _weigh(z, R, x, P, mu, w)
+    return _apply(z, R, x, P, mu, w, lmax, total, d, T)
+
+
+@numba.njit(cache=True, nogil=True, inline="always")
 def _decided(wa):
     """The weight of branch "used", made hard beyond ``_DECIDED`` of either side.
 
@@ -178,30 +194,6 @@ def _decided(wa):
     if wa > 1.0 - _DECIDED:
         return 1.0
     return wa
-
-
-@numba.njit(cache=True, nogil=True, inline="always")
-def _jump_takes_over(z, R, x, P, mu, jump):
-    """True when ``z`` alone would raise the jump model above ``_JUMP_SUSPECT``."""
-    if jump < 0:
-        return False
-    r = mu.shape[0]
-    lmax = -np.inf
-    lj = 0.0
-    for j in range(r):
-        s_ = P[j, 0, 0] + R
-        y_ = z - x[j, 0]
-        v = -0.5 * (math.log(s_) + y_ * y_ / s_)
-        if j == jump:
-            lj = v
-        if v > lmax:
-            lmax = v
-    total = 0.0
-    for j in range(r):
-        s_ = P[j, 0, 0] + R
-        y_ = z - x[j, 0]
-        total += mu[j] * math.exp(-0.5 * (math.log(s_) + y_ * y_ / s_) - lmax)
-    return mu[jump] * math.exp(lj - lmax) > _JUMP_SUSPECT * total
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
@@ -379,7 +371,12 @@ def imm_block(
             else:
                 y = zk - xa[jbest, 0]
                 s_best = Pa[jbest, 0, 0] + R
-                if y * y > gate2 * s_best or _jump_takes_over(zk, R, xa, Pa, mua, jump):
+                lmax, total = _weigh(zk, R, xa, Pa, mua, lj)
+                # suspect also when this sample alone would raise the jump model above
+                # _JUMP_SUSPECT (at high rates one sample of a jump is barely above the
+                # noise, so a single noisy sample can do that)
+                jumpy = jump >= 0 and lj[jump] > _JUMP_SUSPECT * total
+                if y * y > gate2 * s_best or jumpy:
                     # suspect: keep the prediction as the "outlier" branch, then update
                     for j in range(r):
                         mub[j] = mua[j]
@@ -390,12 +387,12 @@ def imm_block(
                     so2 = outlier_sd * outlier_sd + smix
                     yo = zk - zhat
                     pend[2] = -0.5 * (_LOG_2PI + math.log(so2) + yo * yo / so2)
-                    pend[1] = _update(zk, R, xa, Pa, mua, lj, d, T)
+                    pend[1] = _apply(zk, R, xa, Pa, mua, lj, lmax, total, d, T)
                     pend[0] = 1.0
                     flag |= FLAG_OUT_SUSPECT
                     out_ll[k] = _logaddexp(log_1m_eps + pend[1], log_eps + pend[2])
                 else:
-                    out_ll[k] = _update(zk, R, xa, Pa, mua, lj, d, T)
+                    out_ll[k] = _apply(zk, R, xa, Pa, mua, lj, lmax, total, d, T)
                     pend[3] = 0.0
         if pend[0] != 0.0:
             # a suspect row: both branches, weighed by what is known so far. When the
