@@ -64,6 +64,7 @@ from estimator.observer import (
     FLAG_MISSING,
     FLAG_REJECTED,
 )
+from estimator.window_stats import window_stats
 
 __all__ = [
     "CHANGING",
@@ -369,19 +370,10 @@ class SettlingMonitor:
         # whatever block it arrives in, so the results do not depend on block sizes.
         ext_f = np.concatenate((self._tail_f, np.where(finite, f, 0.0)))
         ext_pos = np.concatenate((self._tail_pos, pos))
-        windows = np.lib.stride_tricks.sliding_window_view(ext_f, h + 1)
-        positions = np.lib.stride_tricks.sliding_window_view(ext_pos, h + 1)
         total = np.empty(n)
         high = np.empty(n)
         low = np.empty(n)
-        rows = max(1, _ROWS_PER_CHUNK // (h + 1))  # bounds the temporary arrays
-        for a in range(0, n, rows):
-            b = min(n, a + rows)
-            inside = positions[a:b] >= anchor[a:b, None]
-            vals = windows[a:b]
-            total[a:b] = np.where(inside, vals, 0.0).sum(axis=1)
-            high[a:b] = np.where(inside, vals, -math.inf).max(axis=1)
-            low[a:b] = np.where(inside, vals, math.inf).min(axis=1)
+        window_stats(ext_f, ext_pos, anchor, h, total, high, low)
         count = np.clip(pos - anchor + 1, 0, h + 1)
         with np.errstate(invalid="ignore", divide="ignore"):
             mean = np.where(count > 0, total / np.maximum(count, 1), np.nan)
@@ -442,9 +434,6 @@ class SettlingMonitor:
         self._last = (float(mean[-1]), float(u[-1]), float(t[-1]), int(pos[-1]))
         self._pos += n
         return changes, MonitorTrace(code, np.where(usable, mean, np.nan), band)
-
-
-_ROWS_PER_CHUNK = 1 << 22  # window values held at once by update (32 MiB of float64)
 
 
 def _latch(set_: np.ndarray, reset: np.ndarray, state0: bool) -> np.ndarray:
