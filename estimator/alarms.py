@@ -129,7 +129,7 @@ class AlarmSettings:
         nis_raise_windows: consecutive windows outside the band that raise the alarm.
         nis_clear_windows: consecutive windows inside the band that clear it.
         nis_min_used_fraction: a window where the observer used fewer samples than this
-            fraction (gated, re-acquired, missing) is not judged.
+            fraction (suspect, load jump, missing) is not judged.
         loss_window_s: length of the sliding window of the loss count, s of samples.
         loss_raise_fraction: raise when more than this fraction of the window is lost.
         loss_clear_fraction: clear when at most this fraction is lost.

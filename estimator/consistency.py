@@ -7,8 +7,8 @@ two-sided band of that law at the chosen level says the cell no longer behaves l
 its identified plant (Bar-Shalom, Li, Kirubarajan, "Estimation with Applications to
 Tracking and Navigation", 2001, §5.4).
 
-Samples the observer did not use (gated, re-acquired, missing) are left out: they are
-counted by the observer itself.
+Samples the observer did not use as its model predicts (suspect, load jump, missing) are
+left out: they are counted by the observer itself.
 """
 
 from __future__ import annotations

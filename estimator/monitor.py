@@ -7,7 +7,8 @@ in stream order and keeps one of five states, each a plain word:
     no estimate has arrived yet.
 ``changing``
     the force is moving: the newest estimate lies outside the band around the mean of
-    the recent estimates, or the observer has just rejected a sample or re-acquired
+    the recent estimates, or the observer has just held a suspect sample, taken a load
+    jump or says the load is moving
     after a load jump (both mean the data disagree with the current estimate).
 ``settling``
     the newest estimate agrees with the recent ones, but they have not yet stayed
