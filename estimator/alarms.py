@@ -732,8 +732,13 @@ class _Drift:
         clear_n: float,
         unloaded_n: float,
         hold: int,
+        *,
+        shared: bool = False,
     ) -> None:
         self.monitor = monitor
+        #: True when the monitor is fed by its owner before the alarms see a block: its
+        #: ``last_trace`` is then read, not computed a second time
+        self.shared = shared
         self.raise_n, self.clear_n, self.unloaded_n = raise_n, clear_n, unloaded_n
         self.hold = hold
         self.beyond_run = 0
@@ -749,7 +754,15 @@ class _Drift:
         )
 
     def process(self, b: _Block) -> list[AlarmChange]:
-        _, trace = self.monitor.update_with_trace(b.est)
+        if self.shared:
+            trace = self.monitor.last_trace
+            if trace.state.size != b.est.size:
+                raise ParameterError(
+                    "zero-drift alarm: the shared settling monitor has not been fed this "
+                    f"block ({trace.state.size} rows for {b.est.size}); feed it first"
+                )
+        else:
+            _, trace = self.monitor.update_with_trace(b.est)
         mean = trace.mean_n
         with np.errstate(invalid="ignore"):
             unloaded = (trace.state == STATES.index(SETTLED)) & (np.abs(mean) <= self.unloaded_n)
@@ -833,6 +846,9 @@ class AlarmSet:
             drift); by default ``SettlingRule.for_range(force_min_n, force_max_n)``.
         tares: stream positions at which a zero (tare) applied (a replay passes the
             recorded ones; a live run calls :meth:`tare_at`).
+        monitor: a settling monitor, with the same rule and rate, that its owner feeds
+            each block before the alarms: the zero-drift alarm then reads its trace
+            instead of computing the same one again (default: a monitor of its own).
     """
 
     def __init__(
@@ -845,6 +861,7 @@ class AlarmSet:
         settings: AlarmSettings | None = None,
         rule: SettlingRule | None = None,
         tares: Iterable[int] = (),
+        monitor: SettlingMonitor | None = None,
     ) -> None:
         _check("sample_rate_hz", sample_rate_hz, 0.0, open_low=True)
         _check("force_min_n", force_min_n, -math.inf)
@@ -861,7 +878,11 @@ class AlarmSet:
         self.sample_rate_hz = fs = float(sample_rate_hz)
         self.rule = rule if rule is not None else SettlingRule.for_range(force_min_n, force_max_n)
         span = force_max_n - force_min_n
-        monitor = SettlingMonitor(self.rule, fs, force_min_n=force_min_n, force_max_n=force_max_n)
+        shared = monitor is not None
+        if monitor is None:
+            monitor = SettlingMonitor(
+                self.rule, fs, force_min_n=force_min_n, force_max_n=force_max_n
+            )
         clear_hold = max(1, round(s.overload_clear_hold_s * fs))
         detectors: list[Any] = [
             _Overload(
@@ -884,6 +905,7 @@ class AlarmSet:
                 s.drift_clear_fraction * span,
                 s.drift_unloaded_fraction * span,
                 max(1, round(s.drift_hold_s * fs)),
+                shared=shared,
             ),
         ]
         self._detectors = detectors
@@ -902,6 +924,7 @@ class AlarmSet:
         *,
         rule: SettlingRule | None = None,
         tares: Iterable[int] = (),
+        monitor: SettlingMonitor | None = None,
     ) -> AlarmSet:
         """The alarms of a cell profile (rate from ``[acquisition]``, range from ``[limits]``)."""
         lim = profile.limits
@@ -913,6 +936,7 @@ class AlarmSet:
             settings=settings,
             rule=rule,
             tares=tares,
+            monitor=monitor,
         )
 
     # ------------------------------------------------------------------ queries

@@ -331,8 +331,13 @@ class SettlingMonitor:
 
     # ------------------------------------------------------------------ feeding
     def update(self, estimates: np.ndarray) -> list[StateChange]:
-        """Feed one block of estimates (``ESTIMATE_DTYPE``, shape (n,)); return its transitions."""
-        return self.update_with_trace(estimates)[0]
+        """Feed one block of estimates (``ESTIMATE_DTYPE``, shape (n,)); return its transitions.
+
+        The block's per-sample trace is kept in ``last_trace`` for a reader that shares
+        this monitor (the zero-drift alarm of `estimator.alarms.AlarmSet`).
+        """
+        changes, self.last_trace = self.update_with_trace(estimates)
+        return changes
 
     def update_with_trace(self, estimates: np.ndarray) -> tuple[list[StateChange], MonitorTrace]:
         """As :meth:`update`, also returning the per-sample :class:`MonitorTrace`."""

@@ -165,7 +165,8 @@ class EstimationPipeline:
                 force_min_n=lim.force_min_n,
                 force_max_n=lim.force_max_n,
             )
-            self.alarms = AlarmSet.for_profile(profile, rule=rule)
+            # the zero-drift alarm reads the settling monitor's trace (fed first, in _watch)
+            self.alarms = AlarmSet.for_profile(profile, rule=rule, monitor=self.monitor)
         #: State changes and alarm transitions of the last `process` or `tick` call.
         self.last_changes: list[Any] = []
         self._pending = deque(sorted(tares, key=lambda t: t.index))

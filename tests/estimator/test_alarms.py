@@ -27,6 +27,7 @@ from estimator.alarms import (
     AlarmSettings,
 )
 from estimator.errors import ParameterError
+from estimator.monitor import SettlingMonitor, SettlingRule
 from estimator.profile import CellProfile, default_demo_profile
 from ui.pipeline import EstimationPipeline, Tare, estimate_samples
 from ui.wiring import scaling_for
@@ -365,6 +366,31 @@ def test_zero_drift_fires_and_clears_with_hysteresis() -> None:
     # the reading when raised: beyond the limit for drift_hold_s, it has grown by rate × hold
     assert events[0].value == pytest.approx(raise_n + rate * s.drift_hold_s, abs=0.02)
     assert len(changes) == 2  # and nothing else
+
+
+def test_a_shared_settling_monitor_gives_the_same_drift_alarm() -> None:
+    # Reference: the alarm set with a monitor of its own (the test above). Sharing the
+    # pipeline's monitor (fed first) must change nothing but the work done.
+    k = PROFILE.plant.stiffness_n_per_m
+    t = np.arange(round(40 * RATE)) * DT
+    samples = _drifting("hold 40 0", _ramp(t, 20.0, 20.0, 0.8 / k))
+    est = estimate_samples(PROFILE, samples)
+    own, _ = _run(samples, est, block=20000)
+    monitor = SettlingMonitor(
+        SettlingRule.for_range(PROFILE.limits.force_min_n, PROFILE.limits.force_max_n), RATE,
+        force_min_n=PROFILE.limits.force_min_n, force_max_n=PROFILE.limits.force_max_n,
+    )  # fmt: skip
+    alarms = AlarmSet.for_profile(PROFILE, monitor=monitor)
+    shared = []
+    for i in range(0, samples.size, 20000):
+        monitor.update(est[i : i + 20000])
+        shared += alarms.update(est[i : i + 20000], samples[i : i + 20000])
+    assert [(c.alarm_id, c.event, c.index) for c in shared] == [
+        (c.alarm_id, c.event, c.index) for c in own
+    ]
+    unfed = AlarmSet.for_profile(PROFILE, monitor=monitor)
+    with pytest.raises(ParameterError, match="feed it first"):
+        unfed.update(est[:100], samples[:100])
 
 
 def test_a_tare_clears_the_zero_drift_and_loads_are_not_drift() -> None:
