@@ -19,6 +19,10 @@ ESTIMATE_COLUMNS = (
     ("velocity_m_s", "velocity_m_s", "%.9g"),
     ("nis", "nis", "%.6g"),
     ("flags", "flags", "%d"),
+    # the observer's model probabilities: held load, smooth load (all rate models), jump
+    ("p_hold", "p_hold", "%.4g"),
+    ("p_rate", "p_rate", "%.4g"),
+    ("p_jump", "p_jump", "%.4g"),
 )
 
 _ROWS_PER_WRITE = 100_000

@@ -51,12 +51,17 @@ def test_replay_csv_matches_the_observer_and_names_bad_rows(tmp_path: Path, caps
     with open(out) as fh:
         rows = list(csv.DictReader(fh))
     assert list(rows[0]) == [
-        "time_s", "force_N", "force_u_N", "displacement_m", "velocity_m_s", "nis", "flags"
+        "time_s", "force_N", "force_u_N", "displacement_m", "velocity_m_s", "nis", "flags",
+        "p_hold", "p_rate", "p_jump",
     ]  # fmt: skip
     force = np.array([float(r["force_N"]) for r in rows])
     direct = ForceObserver.from_profile(profile).process(run.time_s, x_m * 1e3 * 1e-3)
     np.testing.assert_allclose(force, direct["force_n"], rtol=1e-8, atol=1e-8)  # 9 digits
     assert abs(force[-1] - 30.0) < 0.1  # applied 30 N (invented programme)
+    # the model probabilities sum to 1 (to the file's 4 digits) and a held load ends on hold
+    p = np.array([[float(r[c]) for c in ("p_hold", "p_rate", "p_jump")] for r in rows])
+    np.testing.assert_allclose(p.sum(axis=1), 1.0, atol=2e-3)
+    assert p[-1, 0] > 0.5
 
     bad = tmp_path / "bad.csv"
     bad.write_text("time_s,displacement_m\n0.0,1e-6\n0.0005,oops\n")
