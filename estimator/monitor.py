@@ -7,8 +7,8 @@ in stream order and keeps one of five states, each a plain word:
     no estimate has arrived yet.
 ``changing``
     the force is moving: the newest estimate lies outside the band around the mean of
-    the recent estimates, or the observer has just held a suspect sample, taken a load
-    jump or says the load is moving
+    the recent estimates, or the observer has just held a suspect sample or taken a
+    load jump
     after a load jump (both mean the data disagree with the current estimate).
 ``settling``
     the newest estimate agrees with the recent ones, but they have not yet stayed
@@ -39,10 +39,9 @@ The rule (:class:`SettlingRule`, shown to the user by :meth:`SettlingRule.descri
 A gap in time (``FLAG_GAP``), a missing sample (``FLAG_MISSING``), a load jump
 (``FLAG_JUMP``), a sample held as a possible outlier (``FLAG_REJECTED``: right after a
 load change the observer's σ is large, and a band widened by it must not let the old
-window pass for settled), a row whose smooth-load (rate) models are the more probable
-(``p_rate > 0.5``: the observer says the load is moving), a non-finite estimate or a
-time that goes back (device restart) starts the hold window again: the monitor never
-claims the force stayed steady over a time it did not observe.
+window pass for settled), a non-finite estimate or a time that goes back (device
+restart) starts the hold window again: the monitor never claims the force stayed steady
+over a time it did not observe.
 
 Determinism: every decision depends only on the estimates given, and the window sums
 are accumulated in a fixed order over a fixed number of columns, so any cutting of the
@@ -362,10 +361,7 @@ class SettlingMonitor:
         finite = np.isfinite(f) & np.isfinite(u)
         t_prev = np.concatenate(([self._t_last], t[:-1]))
         back = ~(t > t_prev)  # time went back (or NaN): device restart
-        # the observer's own word that the load is not held: its smooth-load models are
-        # the more probable (a ramp, or a small step they are following)
-        moving = est["p_rate"] > 0.5
-        restart_here = ((flags & (FLAG_GAP | FLAG_JUMP | FLAG_REJECTED)) != 0) | back | moving
+        restart_here = ((flags & (FLAG_GAP | FLAG_JUMP | FLAG_REJECTED)) != 0) | back
         restart_after = ((flags & FLAG_MISSING) != 0) | ~finite
         candidate = np.where(restart_after, pos + 1, np.where(restart_here, pos, -1))
         anchor = np.maximum.accumulate(np.maximum(candidate, self._anchor))
@@ -391,7 +387,7 @@ class SettlingMonitor:
             full = count == h + 1
             steady = usable & full & (spread <= band)
             holds = usable & full & (spread <= rule.release_factor * band)
-            jumped = ((flags & (FLAG_REJECTED | FLAG_JUMP)) != 0) | moving
+            jumped = (flags & (FLAG_REJECTED | FLAG_JUMP)) != 0
             step = np.abs(f - mean)
             changing = usable & (jumped | (step > band))
             # once settled, only a step beyond the release band unsettles (hysteresis)

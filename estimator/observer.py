@@ -131,7 +131,7 @@ class ObserverTuning:
         models: the bank of force priors; default `ForceModels.for_cell`.
     """
 
-    force_bandwidth_hz: float = 20.0
+    force_bandwidth_hz: float = 1.0
     process_noise_n2_per_s: float | None = None
     gate_sigma: float = 5.0
     outlier_probability: float = 1e-3

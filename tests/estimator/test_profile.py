@@ -65,7 +65,7 @@ def test_demo_profile_loads_with_the_specified_values() -> None:
     assert profile.acquisition == AcquisitionSection(sample_rate_hz=2000.0)
     assert profile.acquisition.port == ""
     assert profile.observer == ObserverSection(
-        force_bandwidth_hz=20.0, gate_sigma=5.0, rate_scale=1.0
+        force_bandwidth_hz=1.0, gate_sigma=5.0, rate_scale=1.0
     )
     assert profile.limits == LimitsSection(force_min_n=-10.0, force_max_n=120.0, travel_m=5.0e-4)
 
@@ -378,4 +378,4 @@ def test_with_updates_replaces_and_revalidates() -> None:
     with pytest.raises(ProfileError, match="did you mean 'plant'"):
         demo.with_updates(plants=demo.plant)
     with pytest.raises(ProfileError, match="force_bandwidth_hz"):
-        demo.with_updates(acquisition=AcquisitionSection(sample_rate_hz=30.0))
+        demo.with_updates(acquisition=AcquisitionSection(sample_rate_hz=1.5))  # Nyquist 0.75 Hz
