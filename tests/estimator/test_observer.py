@@ -491,7 +491,13 @@ def test_bad_input_is_named() -> None:
 
 @pytest.mark.parametrize(
     ("field", "value"),
-    [("gate_sigma", -1.0), ("outlier_probability", 0.7), ("prune", 0.5)],
+    [
+        ("gate_sigma", -1.0),
+        ("outlier_probability", 0.7),
+        ("prune", 0.5),
+        ("jump_prune", 0.6),
+        ("rate_scale", 0.0),
+    ],
 )
 def test_bad_tuning_is_named(field: str, value: float) -> None:
     with pytest.raises(ParameterError, match=rf"{field} = {value!r}"):
