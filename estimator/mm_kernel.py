@@ -240,10 +240,37 @@ def _merge(wa, xa, Pa, mua, xb, Pb, mub):
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
-def _combine(k, wa, xa, Pa, mua, xb, Pb, mub, prune, ca, cb, out_x, out_var):
+def _drop_tail(ca, cb, budget):
+    """Zero the smallest weights of ``ca`` and ``cb`` while their sum stays within
+    ``budget``; the largest weight always stays."""
+    r = ca.shape[0]
+    spent = 0.0
+    while True:
+        smallest = np.inf
+        at = -1
+        count = 0
+        for j in range(2 * r):
+            v = ca[j] if j < r else cb[j - r]
+            if v > 0.0:
+                count += 1
+                if v < smallest:
+                    smallest = v
+                    at = j
+        if count <= 1 or spent + smallest > budget:
+            return
+        spent += smallest
+        if at < r:
+            ca[at] = 0.0
+        else:
+            cb[at - r] = 0.0
+
+
+@numba.njit(cache=True, nogil=True, inline="always")
+def _combine(k, wa, xa, Pa, mua, xb, Pb, mub, prune, tail, ca, cb, out_x, out_var):
     """Mean and variance (per component) of the two-branch, r-model mixture.
 
-    Models below their ``prune`` entry are left out (the rest renormalised).
+    Models below their ``prune`` entry are left out, then the least probable of the
+    rest while their total stays within ``tail`` (the rest renormalised).
     """
     r = mua.shape[0]
     wb = 1.0 - wa
@@ -251,6 +278,10 @@ def _combine(k, wa, xa, Pa, mua, xb, Pb, mub, prune, ca, cb, out_x, out_var):
     for j in range(r):
         ca[j] = wa * mua[j] if wa * mua[j] >= prune[j] else 0.0
         cb[j] = wb * mub[j] if wb * mub[j] >= prune[j] else 0.0
+        tot += ca[j] + cb[j]
+    _drop_tail(ca, cb, tail * tot)
+    tot = 0.0
+    for j in range(r):
         tot += ca[j] + cb[j]
     for j in range(r):
         ca[j] /= tot
@@ -282,6 +313,7 @@ def imm_block(
     outlier_sd: float,  # spread of an outlier about the prediction (scaled units)
     prune: np.ndarray,  # (r,) a model less probable than its entry passes nothing on
     #                     and is not shown
+    tail: float,  # the least probable models, up to this total, are not shown either
     jump: int,  # index of the jump model (its taking over makes a sample suspect), or -1
     x: np.ndarray,  # (2, r, 4) posterior states: branch "used", branch "outlier"
     P: np.ndarray,  # (2, r, 4, 4) posterior covariances of both branches
@@ -400,15 +432,15 @@ def imm_block(
             # the estimate without the sample (an isolated outlier must not move it),
             # with a variance that spans both branches about it.
             wa = 1.0 / (1.0 + math.exp(log_eps + pend[2] - log_1m_eps - pend[1]))
-            _combine(k, wa, xa, Pa, mua, xb, Pb, mub, prune, ca, cb, out_x, out_var)
+            _combine(k, wa, xa, Pa, mua, xb, Pb, mub, prune, tail, ca, cb, out_x, out_var)
             if pend[3] == 0.0 and wa < _SHOW_USED:
                 for a in range(4):
                     d[a] = out_x[k, a]
-                _combine(k, 0.0, xa, Pa, mua, xb, Pb, mub, prune, ca, cb, out_x, out_var)
+                _combine(k, 0.0, xa, Pa, mua, xb, Pb, mub, prune, tail, ca, cb, out_x, out_var)
                 for a in range(4):
                     out_var[k, a] += (d[a] - out_x[k, a]) ** 2
         else:
-            _combine(k, 1.0, xa, Pa, mua, xb, Pb, mub, prune, ca, cb, out_x, out_var)
+            _combine(k, 1.0, xa, Pa, mua, xb, Pb, mub, prune, tail, ca, cb, out_x, out_var)
         out_flag[k] = flag
         for j in range(r):
             out_mu[k, j] = mua[j]

@@ -124,6 +124,13 @@ class ObserverTuning:
             probability of 10⁻³–10⁻²; mixed into the other models, its span-sized
             covariance would shake the estimate by newtons. A real load change takes it
             to near 1 within a few samples.
+        shown_tail: the least probable models, up to this total probability, are also
+            left out of the reported mixture (they still interact). A few models that
+            together hold 1–2 % can carry covariances hundreds of times the leading
+            model's and double the stated σ, while the ±2σ interval of the whole mixture
+            barely moves: leaving them out states the coverage interval, not the tail
+            (GUM Supplement 1, JCGM 101:2008, on coverage intervals of non-Gaussian
+            distributions). 0 reports the whole mixture.
         timing_tolerance: a step within this fraction of the nominal period counts
             as uniform and uses the nominal model.
         initial_force_sigma_n: prior standard deviation of the force at start-up (N);
@@ -139,6 +146,7 @@ class ObserverTuning:
     rate_scale: float = 1.0
     prune: float = 1e-3
     jump_prune: float = 0.05
+    shown_tail: float = 0.02
     timing_tolerance: float = 0.01
     initial_force_sigma_n: float | None = None
     models: ForceModels | None = None
@@ -158,6 +166,8 @@ class ObserverTuning:
             raise ParameterError(f"prune = {self.prune!r}: must be in [0, 0.1)")
         if not (0.0 <= self.jump_prune < 0.5):
             raise ParameterError(f"jump_prune = {self.jump_prune!r}: must be in [0, 0.5)")
+        if not (0.0 <= self.shown_tail < 0.05):
+            raise ParameterError(f"shown_tail = {self.shown_tail!r}: must be in [0, 0.05)")
         _positive("timing_tolerance", self.timing_tolerance)
         if self.timing_tolerance >= 0.5:
             raise ParameterError(
@@ -411,6 +421,7 @@ class ForceObserver:
             tun.outlier_probability,
             tun.outlier_spread * k * math.sqrt(self.R),
             self._prune,
+            tun.shown_tail,
             self.models.count - 1,
             st.x,
             st.P,

@@ -96,6 +96,7 @@ def run_kernel(
         1e-3,
         1.0,
         np.zeros(r),  # prune = 0: the textbook IMM
+        0.0,  # the whole mixture shown
         -1,  # no jump model singled out: nothing is suspect
         x,
         P,
@@ -359,6 +360,51 @@ def test_mean_nis_on_truth_from_the_priors(prior_runs, truth: str) -> None:
     nis = est["nis"][est["flags"] == 0]
     lo, hi = nis_band(nis.size)
     assert lo <= np.mean(nis) <= hi, f"mean NIS {np.mean(nis):.3f} outside [{lo:.3f}, {hi:.3f}]"
+
+
+def _shown_mixture(mu: np.ndarray, f: np.ndarray, var: np.ndarray, prune: np.ndarray, tail: float):
+    """Mean and variance of the mixture over the models shown, written from the
+    definition (loop, sort): models below ``prune`` out, then the least probable while
+    their total stays within ``tail`` of the rest."""
+    w = np.where(mu >= prune, mu, 0.0)
+    budget, spent = tail * w.sum(), 0.0
+    for j in np.argsort(w, kind="stable"):
+        if w[j] == 0.0:
+            continue
+        if np.count_nonzero(w) <= 1 or spent + w[j] > budget:
+            break
+        spent += w[j]
+        w[j] = 0.0
+    w = w / w.sum()
+    mean = float(w @ f)
+    return mean, float(w @ (var + (f - mean) ** 2))
+
+
+def test_stated_sigma_is_that_of_the_models_holding_98_percent() -> None:
+    # Definition (GUM Supplement 1, JCGM 101:2008, 5.3: a coverage interval is a
+    # statement about the bulk of the distribution): the shown mixture leaves out the
+    # least probable models up to 2 % in total; checked row by row against a direct
+    # implementation, on a record with a step and a ramp.
+    t, z, _ = step_run([10.0, 35.0], 0.3, seed=41)
+    z = z + np.where(t > 0.45, (t - 0.45) * 40.0 / STIFF, 0.0)  # then a 40 N/s ramp
+    obs = make_observer()
+    obs.keep_log = True
+    est = obs.process(t, z)
+    _, lx, lP, om = obs.log[0]
+    rows = np.flatnonzero(est["flags"] == 0)
+    dropped = 0
+    for i in rows:
+        mean, var = _shown_mixture(om[i], lx[i, :, 2], lP[i, :, 2, 2], obs._prune, 0.02)
+        assert est["force_n"][i] == pytest.approx(mean, rel=1e-6, abs=1e-9)
+        assert est["force_u_n"][i] == pytest.approx(math.sqrt(var), rel=1e-6)
+        full = _shown_mixture(om[i], lx[i, :, 2], lP[i, :, 2, 2], obs._prune, 0.0)[1]
+        dropped += var < full * (1 - 1e-9)
+    assert dropped > rows.size // 10  # the rule acts on this record (not vacuous)
+    # with shown_tail = 0 the whole (pruned) mixture is shown
+    whole = make_observer(shown_tail=0.0).process(t, z)
+    i = rows[-1]
+    _, vfull = _shown_mixture(om[i], lx[i, :, 2], lP[i, :, 2, 2], obs._prune, 0.0)
+    assert whole["force_u_n"][i] == pytest.approx(math.sqrt(vfull), rel=1e-6)
 
 
 # --------------------------------------------------------------- outliers and steps
