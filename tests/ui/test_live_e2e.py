@@ -154,10 +154,12 @@ def test_live_recording_under_faults_keeps_every_intact_sample_and_replays_bit_i
     # A row may be further off only where the observer says so: a sample held as a
     # possible outlier, or a jump the next sample refutes, carries an uncertainty that
     # covers its error (the multiple-model observer's honest σ); at most 1 row in 10⁴.
+    # Within 3σ (99.7 % of a Gaussian, handbook value): with ~17 such rows an honest σ
+    # leaves one beyond 2σ more often than not (measured here: largest 2.02σ).
     u = est["force_u_n"][settled]
     off = np.abs(err) >= 1.0
     assert np.count_nonzero(off) <= 1e-4 * settled.sum()
-    assert np.all(np.abs(err[off]) <= 2.0 * u[off])
+    assert np.all(np.abs(err[off]) <= 3.0 * u[off])
 
     # Replay: same pipeline, same numbers, bit for bit.
     capsys.readouterr()
