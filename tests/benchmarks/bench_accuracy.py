@@ -66,7 +66,7 @@ from accuracy.cells import CELLS
 from accuracy.loads import SHAPES, SMOOTH_SHAPES
 from accuracy.models import integrated_random_walk_model, random_walk_model
 from accuracy.records import START_UP_S, Record, build_records, wanted
-from accuracy.scoring import coverage, rmse, settling_times
+from accuracy.scoring import coverage, median_z, rmse, settling_times
 from accuracy.variants import VARIANTS
 from accuracy.yardsticks import (
     GRID_STEP_DECADES,
@@ -144,6 +144,8 @@ def score_record(record: Record, step_decades: float) -> tuple[Row, dict[str, fl
         "rmse_kx_n": rmse(kx, f, mask),
         "cover_ours_live": coverage(ours_live, ours_live_u, f, mask),
         "cover_ours_smoothed": coverage(ours_sm, ours_sm_u, f, mask),
+        "medz_ours_live": median_z(ours_live, ours_live_u, f, mask),
+        "medz_ours_smoothed": median_z(ours_sm, ours_sm_u, f, mask),
         "cover_rw_live": coverage(rw.live.force_n, rw.live.sigma_n, f, mask),
         "cover_rw_smoothed": coverage(rw.smoothed.force_n, rw.smoothed.sigma_n, f, mask),
         "cover_irw_live": coverage(irw.live.force_n, irw.live.sigma_n, f, mask),
@@ -251,6 +253,18 @@ def summary(rows: list[Row]) -> None:
     )
     for v, w in sorted(outside):
         print(f"         outside: {w:<36} {v:.3f}")
+    # Calibration of σ per load shape (information, not a target): the median of |e|/σ
+    # over the shape's records, 0.674 when σ is the error's standard deviation.
+    parts = []
+    for shape in dict.fromkeys(str(r["shape"]) for r in rows):
+        of = [r for r in rows if r["shape"] == shape]
+        live = statistics.median(float(r["medz_ours_live"]) for r in of)
+        smooth = statistics.median(float(r["medz_ours_smoothed"]) for r in of)
+        parts.append(f"{shape} {live:.2f}/{smooth:.2f}")
+    print(
+        "[info] median |error|/σ by shape, live/smoothed (0.67 when σ is the error's "
+        "standard deviation; lower: σ too large): " + ", ".join(parts)
+    )
     # 5. Spikes and dropped rows against the clean record.
     clean = {(r["cell"], r["shape"]): r for r in rows if r["variant"] == "clean"}
     for variant, limit in (("spikes", SPIKE_FACTOR), ("dropped", DROP_FACTOR)):
