@@ -260,13 +260,16 @@ def write_truth_csv(run: SimulatedRun, path: str | os.PathLike[str]) -> None:
     """Write ``time_s,force_n,displacement_m`` of `run` to `path` with a comment header."""
     p = Path(path)
     table = np.column_stack([run.time_s, run.true_force_n, run.true_displacement_m])
+    tmp = p.with_name(f".{p.name}.part")
     try:
-        with p.open("w", encoding="utf-8", newline="\n") as fh:
+        with tmp.open("w", encoding="utf-8", newline="\n") as fh:
             fh.write(TRUTH_HEADER + "\n")
             fh.write("time_s,force_n,displacement_m\n")
             # repr gives the shortest text that reads back to the same float.
             fh.writelines(f"{t!r},{f!r},{x!r}\n" for t, f, x in table.tolist())
+        os.replace(tmp, p)  # a reader sees the old file or the whole new one
     except OSError as exc:
+        tmp.unlink(missing_ok=True)
         raise SourceError(
             f"{p}: cannot write truth CSV ({exc}); check the folder exists"
         ) from None

@@ -9,6 +9,8 @@ from typing import Any
 
 import numpy as np
 
+from ui.outputs import replacing, write_text_atomic
+
 __all__ = ["write_calibration_report"]
 
 _POINTS = (0, 110, 120)
@@ -48,8 +50,9 @@ def _plots(result: Any, out: Path) -> tuple[Path, Path]:
         win.show()
         app.processEvents()
         path = out / name
-        if not win.grab().save(str(path)):
-            raise OSError(f"{path}: could not write the PNG")
+        with replacing(path) as tmp:
+            if not win.grab().save(str(tmp), "PNG"):
+                raise OSError(f"{path}: could not write the PNG")
         win.close()
         paths.append(path)
     return paths[0], paths[1]
@@ -75,5 +78,4 @@ def write_calibration_report(result: Any, text: str, out: Path) -> Path:
         "use rely on an accredited calibration.</p></body></html>\n"
     )
     path = out / "summary.html"
-    path.write_text(page, encoding="utf-8")
-    return path
+    return write_text_atomic(path, page)

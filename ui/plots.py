@@ -8,6 +8,8 @@ from pathlib import Path
 
 import numpy as np
 
+from ui.outputs import replacing
+
 __all__ = ["RunTraces", "render_run_png"]
 
 # Our own palette: estimate in deep teal, its band pale teal, k·x in slate grey,
@@ -68,8 +70,9 @@ def render_run_png(traces: RunTraces, path: str | os.PathLike[str], size=(1400, 
     win.show()
     app.processEvents()
     out = Path(path)
-    if not win.grab().save(str(out)):
-        raise OSError(f"{out}: could not write the PNG")
+    with replacing(out) as tmp:
+        if not win.grab().save(str(tmp), "PNG"):
+            raise OSError(f"{out}: could not write the PNG")
     win.close()
     return out
 

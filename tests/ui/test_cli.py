@@ -65,7 +65,9 @@ def test_replay_csv_matches_the_observer_and_names_bad_rows(tmp_path: Path, caps
 
     bad = tmp_path / "bad.csv"
     bad.write_text("time_s,displacement_m\n0.0,1e-6\n0.0005,oops\n")
-    assert main(["replay", str(bad), "--profile", str(prof_path), "--out", str(out)]) == 1
+    assert (
+        main(["replay", str(bad), "--profile", str(prof_path), "--out", str(out), "--force"]) == 1
+    )
     err = capsys.readouterr().err
     assert "bad.csv:3" in err and "oops" in err
 

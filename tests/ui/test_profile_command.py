@@ -13,6 +13,7 @@ import ui.cli
 import ui.commands.profile
 from estimator.errors import ProfileError
 from estimator.profile import default_demo_profile, load_profile, save_profile
+from ui.outputs import OutputRefusedError
 
 DEMO_FILE = Path(__file__).resolve().parents[2] / "estimator" / "data" / "demo-cell.toml"
 
@@ -98,7 +99,7 @@ def test_new_with_natural_frequency_derives_the_mass(
 def test_new_refuses_to_overwrite_without_force(tmp_path: Path) -> None:
     out = tmp_path / "cell.toml"
     out.write_text("keep me", encoding="utf-8")
-    with pytest.raises(FileExistsError, match="--force"):
+    with pytest.raises(OutputRefusedError, match="exists; give --force"):
         run(new_args(out, "--mass-kg", "0.3"))
     assert out.read_text(encoding="utf-8") == "keep me"
     assert run(new_args(out, "--mass-kg", "0.3", "--force")) == 0

@@ -14,6 +14,8 @@ import datetime
 from pathlib import Path
 from typing import Any
 
+from ui.outputs import add_force_option, claim_folder, write_text_atomic
+
 __all__ = ["register"]
 
 
@@ -52,6 +54,7 @@ def register(subparsers: Any) -> None:
     )
     p.add_argument("--profile", help="cell profile to update (written to OUT/cell.toml)")
     p.add_argument("--out", help="output folder (default: calibration-<sheet name>)")
+    add_force_option(p)
     p.set_defaults(run=run)
 
 
@@ -61,6 +64,11 @@ def run(args: argparse.Namespace) -> int:
     from estimator.gravity import normal_gravity_m_s2
     from estimator.profile import load_profile
 
+    out = Path(args.out or f"calibration-{Path(args.sheet).stem}")
+    names = ["summary.txt", "summary.html", "fit.png", "residuals.png"]
+    names += ["cell.toml"] if args.profile else []
+    inputs = [args.sheet] + ([args.profile] if args.profile else [])
+    replaced = claim_folder(out, names, inputs=inputs, force=args.force)
     sheet = read_calibration_sheet(args.sheet)
     for warning in sheet.warnings:
         print(f"warning: {warning}")
@@ -103,7 +111,6 @@ def run(args: argparse.Namespace) -> int:
         degree=args.degree,
         intercept=not args.no_intercept,
     )
-    out = Path(args.out or f"calibration-{Path(args.sheet).stem}")
     out.mkdir(parents=True, exist_ok=True)
     header = [
         f"forcelens static calibration of {args.sheet}",
@@ -113,7 +120,7 @@ def run(args: argparse.Namespace) -> int:
         "",
     ]
     text = "\n".join(header) + result.text()
-    (out / "summary.txt").write_text(text + "\n", encoding="utf-8")
+    write_text_atomic(out / "summary.txt", text + "\n")
     from ui.calibration_report import write_calibration_report
 
     html = write_calibration_report(result, text, out)
@@ -122,6 +129,8 @@ def run(args: argparse.Namespace) -> int:
         written.append(_write_profile(profile, result, args.sheet, out / "cell.toml").name)
     print(text)
     print(f"wrote {', '.join(written)} to {out}")
+    for note in replaced:
+        print(note)
     return 0
 
 

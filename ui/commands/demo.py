@@ -15,6 +15,7 @@ import time
 from pathlib import Path
 from typing import Any
 
+from ui.outputs import add_force_option, claim_folder, write_text_atomic
 from ui.safety import CAUTION
 
 __all__ = ["register"]
@@ -44,6 +45,7 @@ def register(subparsers: Any) -> None:
         help="do not open the live dashboard afterwards (it opens only when a display is "
         "available)",
     )
+    add_force_option(p)
     p.set_defaults(run=run)
 
 
@@ -59,8 +61,11 @@ def run(args: argparse.Namespace) -> int:
     from estimator.uncertainty import ForceUncertainty
     from ui.session import LiveSession
 
-    profile = load_profile(args.profile) if args.profile else default_demo_profile()
     out_dir = Path(args.out)
+    names = ["estimates.csv", "truth.csv", "summary.txt"] + ([] if args.no_plot else ["demo.png"])
+    inputs = [args.profile] if args.profile else []
+    replaced = claim_folder(out_dir, names, inputs=inputs, force=args.force)
+    profile = load_profile(args.profile) if args.profile else default_demo_profile()
     out_dir.mkdir(parents=True, exist_ok=True)
     tr, pl, acq = profile.transducer, profile.plant, profile.acquisition
     scaling = Scaling(tr.volts_per_count, tr.metres_per_volt, tr.zero_volts)
@@ -130,7 +135,7 @@ def run(args: argparse.Namespace) -> int:
 
     write_estimates_csv(est, out_dir / "estimates.csv")
     write_truth_csv(truth, out_dir / "truth.csv")
-    (out_dir / "summary.txt").write_text(table + "\n", encoding="utf-8")
+    write_text_atomic(out_dir / "summary.txt", table + "\n")
     written = ["estimates.csv", "truth.csv", "summary.txt"]
     if not args.no_plot:
         from ui.plots import RunTraces, render_run_png
@@ -151,6 +156,8 @@ def run(args: argparse.Namespace) -> int:
         )
         written.append("demo.png")
     print(f"wrote {', '.join(written)} to {out_dir.resolve()}")
+    for note in replaced:
+        print(note)
     if not args.no_window and display_available():
         print("opening the live dashboard on the simulated cell (close the window to end)")
         from ui.commands.dashboard import open_dashboard

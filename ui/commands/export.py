@@ -6,6 +6,8 @@ import argparse
 from pathlib import Path
 from typing import Any
 
+from ui.outputs import add_force_option, claim_file
+
 __all__ = ["register"]
 
 
@@ -26,6 +28,7 @@ def register(subparsers: Any) -> None:
         default="samples",
         help="'samples' (default) or 'estimates' (the force computed live)",
     )
+    add_force_option(p)
     p.set_defaults(run=run)
 
 
@@ -37,7 +40,10 @@ def run(args: argparse.Namespace) -> int:
         known = ", ".join(sorted(data.streams))
         raise ValueError(f"{args.run_folder}: no stream {args.stream!r}; this run has {known}")
     out = Path(args.out or f"{data.description['run_id']}-{args.stream}.csv")
+    replaced = claim_file(out, inputs=[args.run_folder], force=args.force)
     export_run_csv(data, out, stream=args.stream)
+    if replaced:
+        print(replaced)
     n = data.streams[args.stream].size
     print(f"wrote {out}: {n} rows of {args.stream}" + ("" if data.closed else " (run NOT closed)"))
     return 0

@@ -18,6 +18,8 @@ import math
 from pathlib import Path
 from typing import Any
 
+from ui.outputs import add_force_option, claim_file
+
 __all__ = ["register"]
 
 
@@ -48,6 +50,7 @@ def register(subparsers: Any) -> None:
         help="profile to update (default scale: its stiffness); written to --out",
     )
     p.add_argument("--out", help="updated profile (TOML); needs --profile")
+    add_force_option(p)
     p.set_defaults(run=run)
 
 
@@ -80,6 +83,9 @@ def run(args: argparse.Namespace) -> int:
 
     if args.out and not args.profile:
         raise ValueError("--out writes an updated profile: give --profile too")
+    replaced = None
+    if args.out:  # checked before the fit: an output never replaces an input unasked
+        replaced = claim_file(args.out, inputs=[args.record, args.profile], force=args.force)
     t, x, digest, run_profile = _record(Path(args.record))
     keep = np.ones(t.size, dtype=bool)
     if args.t_from is not None:
@@ -123,7 +129,7 @@ def run(args: argparse.Namespace) -> int:
         from estimator.profile import save_profile
 
         save_profile(updated, args.out)
-        print(f"wrote {args.out}")
+        print(f"wrote {args.out}" + (f" ({replaced})" if replaced else ""))
     return 0
 
 

@@ -22,6 +22,7 @@ from estimator.profile import (
     load_profile,
     save_profile,
 )
+from ui.outputs import add_force_option, claim_file
 
 __all__ = ["DEFAULT_VOLTS_PER_COUNT", "register", "run_new", "run_show", "summary_lines"]
 
@@ -123,7 +124,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
         default=AcquisitionSection(sample_rate_hz=1.0).baudrate,
         help="serial line speed, bit/s (default %(default)d)",
     )
-    new.add_argument("--force", action="store_true", help="overwrite OUT.toml if it exists")
+    add_force_option(new)
     new.set_defaults(run=run_new)
 
     show = actions.add_parser(
@@ -147,8 +148,7 @@ def _mass_from_natural_frequency(stiffness_n_per_m: float, natural_freq_hz: floa
 def run_new(args: argparse.Namespace) -> int:
     """Build, validate and write the profile described by the ``new`` options; return 0."""
     out = Path(args.out)
-    if out.exists() and not args.force:
-        raise FileExistsError(f"{out} already exists; pass --force to overwrite it")
+    replaced = claim_file(out, force=args.force)
     k = args.stiffness_n_per_m
     if args.mass_kg is not None:
         mass_kg = args.mass_kg
@@ -179,7 +179,7 @@ def run_new(args: argparse.Namespace) -> int:
     )
     save_profile(profile, out)
     plant = profile.plant
-    print(f"wrote {out}")
+    print(f"wrote {out}" + (f" ({replaced})" if replaced else ""))
     print(f"  mass m                 {plant.mass_kg:.6g} kg")
     print(f"  stiffness k            {plant.stiffness_n_per_m:.6g} N/m")
     print(

@@ -15,6 +15,8 @@ import time
 from pathlib import Path
 from typing import Any
 
+from ui.outputs import add_force_option, claim_file
+
 __all__ = ["register"]
 
 _BLOCK = 200_000  # samples per observer call; any size gives the same numbers
@@ -56,6 +58,7 @@ def register(subparsers: Any) -> None:
         action="store_true",
         help="also use later samples (Rauch-Tung-Striebel smoother); offline only, slower",
     )
+    add_force_option(p)
     p.set_defaults(run=run)
 
 
@@ -74,6 +77,13 @@ def _speed(text: str) -> float:
 def run(args: argparse.Namespace) -> int:
     speed = _speed(args.speed)
     source = Path(args.source)
+    if not source.exists():
+        raise ValueError(f"{source}: no such file or folder")
+    # checked before any work: an output never replaces an input or a file unasked
+    args.replaced = None
+    if args.out:
+        inputs = [source] + ([args.profile] if args.profile else [])
+        args.replaced = claim_file(args.out, inputs=inputs, force=args.force)
     if source.is_dir():
         return _replay_run(args, source, speed)
     return _replay_csv(args, source, speed)
@@ -233,7 +243,7 @@ def _write(args: argparse.Namespace, estimates: Any) -> None:
     show = _Progress(estimates.size)
     write_estimates_csv(estimates, args.out, progress=lambda d, n: show("writing", d))
     show.done()
-    print(f"wrote {args.out}")
+    print(f"wrote {args.out}" + (f" ({args.replaced})" if args.replaced else ""))
 
 
 class _Progress:

@@ -15,6 +15,8 @@ import shlex
 from pathlib import Path
 from typing import Any
 
+from ui.outputs import add_force_option, claim_folder, replacing, write_text_atomic
+
 __all__ = ["default_report_folder", "register"]
 
 
@@ -32,6 +34,7 @@ def register(subparsers: Any) -> None:
     )
     p.add_argument("run_folder", metavar="RUN", help="run folder")
     p.add_argument("--out", help="output folder (default: RUN-report beside the run)")
+    add_force_option(p)
     p.set_defaults(run=run)
 
 
@@ -45,26 +48,29 @@ def run(args: argparse.Namespace) -> int:
     from ui.figures import compute_figures, replay_run
 
     folder = Path(args.run_folder)
+    out = Path(args.out) if args.out else default_report_folder(folder)
+    names = ["report.html", "figures.json", "plot.png", "report.pdf"]
+    replaced = claim_folder(out, names, inputs=[folder], force=args.force)
     replayed = replay_run(folder)
     figures = compute_figures(replayed)
-    out = Path(args.out) if args.out else default_report_folder(folder)
     out.mkdir(parents=True, exist_ok=True)
     command = f"forcelens report {shlex.quote(str(folder))}" + (
         f" --out {shlex.quote(str(args.out))}" if args.out else ""
     )
     figures["command"] = command
-    (out / "figures.json").write_text(
-        json.dumps(figures, indent=2, ensure_ascii=False, allow_nan=False) + "\n", "utf-8"
-    )
+    text = json.dumps(figures, indent=2, ensure_ascii=False, allow_nan=False)
+    write_text_atomic(out / "figures.json", text + "\n")
     plot = _plot(replayed, out / "plot.png")
     body = _body(replayed, figures, command)
     encoded = base64.b64encode(plot.read_bytes()).decode("ascii")
     page = _page(body.replace("{{PLOT}}", f"data:image/png;base64,{encoded}"))
-    (out / "report.html").write_text(page, encoding="utf-8")
+    write_text_atomic(out / "report.html", page)
     written = ["report.html", "figures.json", "plot.png"]
     if _pdf(_page(body.replace("{{PLOT}}", "plot.png")), plot, out / "report.pdf"):
         written.append("report.pdf")
     print(f"wrote {', '.join(written)} to {out}")
+    for note in replaced:
+        print(note)
     return 0
 
 
@@ -213,18 +219,22 @@ def _pdf(page: str, plot: Path, path: Path) -> bool:
         from ui.plots import _qt_app
 
         _qt_app()
-        writer = QtGui.QPdfWriter(str(path))
-        writer.setPageSize(QtGui.QPageSize(QtGui.QPageSize.PageSizeId.A4))
-        writer.setResolution(150)
-        doc = QtGui.QTextDocument()
-        doc.addResource(
-            QtGui.QTextDocument.ResourceType.ImageResource,
-            QtCore.QUrl("plot.png"),
-            QtGui.QImage(str(plot)).scaledToWidth(900),
-        )
-        doc.setHtml(page)
-        doc.print_(writer)
-        return path.exists() and path.stat().st_size > 0
+        with replacing(path) as tmp:
+            writer = QtGui.QPdfWriter(str(tmp))
+            writer.setPageSize(QtGui.QPageSize(QtGui.QPageSize.PageSizeId.A4))
+            writer.setResolution(150)
+            doc = QtGui.QTextDocument()
+            doc.addResource(
+                QtGui.QTextDocument.ResourceType.ImageResource,
+                QtCore.QUrl("plot.png"),
+                QtGui.QImage(str(plot)).scaledToWidth(900),
+            )
+            doc.setHtml(page)
+            doc.print_(writer)
+            del writer  # closes the file
+            if tmp.stat().st_size == 0:
+                raise OSError("Qt wrote an empty file")
+        return True
     except Exception as exc:  # PDF is optional: the HTML report stands on its own
         print(f"note: no PDF ({exc})")
         return False

@@ -15,6 +15,8 @@ import threading
 import time
 from typing import TYPE_CHECKING
 
+from ui.outputs import add_force_option, claim_file
+
 if TYPE_CHECKING:
     from daq.simulator import SimulatedRun
 
@@ -59,6 +61,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
         metavar="FILE",
         help="also write the true force and displacement (first pass) as CSV",
     )
+    add_force_option(parser)
     parser.add_argument(
         "--loop", action="store_true", help="repeat the programme until Ctrl-C (fresh noise)"
     )
@@ -113,6 +116,10 @@ def run_simulate(args: argparse.Namespace) -> int:
     from estimator.profile import default_demo_profile, load_profile
     from ui.wiring import parse_faults
 
+    replaced = None
+    if args.truth:
+        inputs = [x for x in (args.profile, args.programme_csv) if x]
+        replaced = claim_file(args.truth, inputs=inputs, force=args.force)
     profile = load_profile(args.profile) if args.profile else default_demo_profile()
     if args.programme is not None:
         programme = parse_programme(args.programme)
@@ -145,6 +152,8 @@ def run_simulate(args: argparse.Namespace) -> int:
         )
     if args.truth:
         write_truth_csv(run, args.truth)
+        if replaced:
+            print(replaced, file=sys.stderr)
 
     def regenerate(repetition: int) -> SimulatedRun:
         return cell.generate(programme, seed=args.seed + repetition)

@@ -19,6 +19,8 @@ import sys
 from pathlib import Path
 from typing import Any
 
+from ui.outputs import add_force_option, claim_file
+
 __all__ = ["register"]
 
 
@@ -44,6 +46,7 @@ def register(subparsers: Any) -> None:
     p.add_argument("--to", dest="t_to", type=float, metavar="S", help="record end, s")
     p.add_argument("--profile", help="cell profile (default: the run's own, or the demo cell)")
     p.add_argument("--out", help="write the tuned profile here (TOML)")
+    add_force_option(p)
     p.set_defaults(run=run)
 
 
@@ -57,6 +60,10 @@ def run(args: argparse.Namespace) -> int:
 
     if (args.quiet_from is None) != (args.quiet_to is None):
         raise ValueError("give both --quiet-from and --quiet-to, or neither")
+    replaced = None
+    if args.out:  # checked before the fit: an output never replaces an input unasked
+        inputs = [args.record] + ([args.profile] if args.profile else [])
+        replaced = claim_file(args.out, inputs=inputs, force=args.force)
     t, x, digest, run_profile = _record(Path(args.record))
     profile = load_profile(args.profile) if args.profile else run_profile
     profile = profile or default_demo_profile()
@@ -132,7 +139,7 @@ def run(args: argparse.Namespace) -> int:
             f"was: {tuned.cell.source}",
         )
         save_profile(tuned.with_updates(cell=cell), args.out)
-        print(f"wrote {args.out}")
+        print(f"wrote {args.out}" + (f" ({replaced})" if replaced else ""))
     return 0
 
 
