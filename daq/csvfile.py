@@ -3,7 +3,10 @@
 The first non-comment line is a header naming the columns with their units:
 ``time_s`` and one of ``displacement_m`` / ``displacement_mm``. Other columns are
 ignored. Lines starting with ``#`` are comments. An empty displacement field or
-``nan`` marks a missing sample.
+``nan`` marks a missing sample. Every row has as many fields as the header, and time
+strictly increases: a row whose time is equal to or earlier than the one before is an
+error naming its line (a reordered or merged file would otherwise be estimated as a
+record that restarts at every row).
 """
 
 from __future__ import annotations
@@ -70,6 +73,11 @@ def read_displacement_csv(path: str | os.PathLike[str]) -> tuple[np.ndarray, np.
     except (ValueError, IndexError):
         for lineno, line in rows:  # slow path: find and name the first bad line
             fields = line.split(",")
+            if len(fields) != len(names):
+                raise FramingError(
+                    f"{p}:{lineno}: {line.strip()!r} has {len(fields)} fields; the header "
+                    f"(line {header_at + 1}) has {len(names)}"
+                ) from None
             try:
                 float(fields[it])
                 _to_float(np.array([fields[ix]], dtype=object))
@@ -82,6 +90,18 @@ def read_displacement_csv(path: str | os.PathLike[str]) -> tuple[np.ndarray, np.
     if not np.all(np.isfinite(t)):
         bad = rows[int(np.nonzero(~np.isfinite(t))[0][0])]
         raise FramingError(f"{p}:{bad[0]}: time_s must be a finite number, got {bad[1]!r}")
+    back = np.flatnonzero(np.diff(t) <= 0.0)
+    if back.size:
+        i = int(back[0]) + 1
+        prev, here = float(t[i - 1]), float(t[i])
+        if here == prev:
+            what = f"time_s {here!r} repeats that of line {rows[i - 1][0]}"
+        else:
+            what = f"time_s goes back from {prev!r} (line {rows[i - 1][0]}) to {here!r}"
+        raise FramingError(
+            f"{p}:{rows[i][0]}: {what}; time must increase from row to row (sort the "
+            "file, or remove the repeated rows)"
+        )
     return t, x * DISPLACEMENT_UNITS[found[0]]
 
 

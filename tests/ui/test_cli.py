@@ -113,3 +113,24 @@ def test_demo_end_to_end(tmp_path: Path, capsys, monkeypatch) -> None:
         )
         assert abs(observed - applied) < 0.02 * 20.0
         assert math.isfinite(obs_ms) and obs_ms * 3 <= kx_ms
+
+
+def test_replay_refuses_a_missing_or_reordered_csv_in_one_line(tmp_path: Path, capsys) -> None:
+    # Formerly: "a CSV carries no profile" for a missing file, and exit 0 with U ≈ 130 N
+    # on every row of a shuffled one (the observer restarted at every step back in time).
+    from estimator.profile import default_demo_profile, save_profile
+
+    prof = tmp_path / "cell.toml"
+    save_profile(default_demo_profile(), prof)
+    out = tmp_path / "out.csv"
+    assert (
+        main(["replay", str(tmp_path / "none.csv"), "--profile", str(prof), "--out", str(out)])
+        == 1
+    )
+    assert "none.csv: no such file" in capsys.readouterr().err
+    shuffled = tmp_path / "shuffled.csv"
+    shuffled.write_text("time_s,displacement_m\n0.0,1e-6\n0.001,1e-6\n0.0005,1e-6\n")
+    assert main(["replay", str(shuffled), "--profile", str(prof), "--out", str(out)]) == 1
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "shuffled.csv:4: time_s goes back" in err
+    assert not out.exists()
