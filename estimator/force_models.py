@@ -25,7 +25,13 @@ stay well conditioned at any sample rate. ``z̃ = k·z``, ``R̃ = k²·R``.
 **Mode switching** (per step of ``dt``): the regular models (hold and rates) switch to
 each other at a total rate ``1/dwell_s`` and to a jump at the rate ``1/jump_interval_s``;
 a jump stays a jump with probability ``jump_stay`` and otherwise goes to hold (share
-``jump_to_hold``) or to a rate model.
+``jump_to_hold``) or to a rate model. From hold, the rate models are entered in the ratio
+``1 : γ : γ² …`` (slow to fast, ``γ = start_ratio``): a load at rest starts to move
+slowly more often than fast, and the first samples of a step must not be taken for the
+start of a very fast ramp (measured on the stiff benchmark cell: the fastest rate model
+took 58–80 % of the first two samples after each step and overshot by 60 % of the step;
+with ``γ = 0.5`` the staircase's live RMSE fell from 1.24 to 1.12 times the fitted
+random walk's, pulses 0.61 → 0.68, nothing else moved).
 """
 
 from __future__ import annotations
@@ -57,6 +63,8 @@ class ForceModels:
         jump_interval_s: mean time between load jumps, s.
         jump_stay: probability that a jump continues for another step.
         jump_to_hold: share of the jump's exits that go to the hold model.
+        start_ratio: ratio between the probabilities of entering successive rate models
+            (slow to fast) from hold; 1 enters them all alike.
     """
 
     q_hold_n2_per_s: float
@@ -67,6 +75,7 @@ class ForceModels:
     jump_interval_s: float = 2.0
     jump_stay: float = 0.2
     jump_to_hold: float = 0.5
+    start_ratio: float = 0.5
 
     def __post_init__(self) -> None:
         for name in ("q_hold_n2_per_s", "jump_sd_n", "jump_rate_sd_n_per_s", "dwell_s"):
@@ -76,6 +85,8 @@ class ForceModels:
             raise ParameterError("q_rate_n2_per_s3 is empty: give at least one rate intensity")
         for q in self.q_rate_n2_per_s3:
             _positive("q_rate_n2_per_s3", q)
+        if not (isinstance(self.start_ratio, int | float) and 0.0 < self.start_ratio <= 1.0):
+            raise ParameterError(f"start_ratio = {self.start_ratio!r}: must be in (0, 1]")
         for name in ("jump_stay", "jump_to_hold"):
             v = getattr(self, name)
             if not (isinstance(v, int | float) and 0.0 <= v < 1.0):
@@ -129,6 +140,8 @@ class ForceModels:
         PI = np.zeros((r, r))
         if n_reg > 1:
             PI[:n_reg, :n_reg] = p_switch
+            share = self.start_ratio ** np.arange(n_reg - 1)
+            PI[0, 1:n_reg] = p_switch * (n_reg - 1) * share / share.sum()
         PI[:n_reg, -1] = p_jump
         leave = 1.0 - self.jump_stay
         PI[-1, 0] = leave * self.jump_to_hold

@@ -213,6 +213,26 @@ def test_van_loan_refuses_bad_step() -> None:
         van_loan(np.zeros((2, 2)), np.ones(2), 1.0, 0.0)
 
 
+# --------------------------------------------------------------- switching
+
+
+@pytest.mark.parametrize("ratio", [1.0, 0.5])
+def test_transition_matrix_rows_and_the_start_ratio(ratio: float) -> None:
+    # Definition (force_models docstring): rows are probabilities; the regular models
+    # leave at the total rate dt/dwell and jump at dt/jump_interval; from hold the rate
+    # models are entered in the ratio 1 : γ : γ² … and in total as often as with γ = 1.
+    bank = dataclasses.replace(ForceModels.for_cell(CELL, SPAN, Q_HOLD), start_ratio=ratio)
+    PI = bank.transitions(DT)
+    assert np.all(PI >= 0.0)
+    np.testing.assert_allclose(PI.sum(axis=1), 1.0, rtol=0, atol=1e-15)
+    rates = PI[0, 1:-1]
+    np.testing.assert_allclose(rates[1:] / rates[:-1], ratio, rtol=1e-12)
+    np.testing.assert_allclose(rates.sum(), DT / bank.dwell_s, rtol=1e-12)
+    np.testing.assert_allclose(PI[:-1, -1], DT / bank.jump_interval_s, rtol=1e-12)
+    with pytest.raises(ParameterError, match="start_ratio"):
+        dataclasses.replace(bank, start_ratio=0.0)
+
+
 # --------------------------------------------------------------- the kernel vs filterpy
 
 
