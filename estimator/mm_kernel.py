@@ -132,20 +132,24 @@ def _interact_predict(it, PHI, Q, PI, prune, x, P, mu, cbar, x0, P0, w, d, T):
 @numba.njit(cache=True, nogil=True, inline="always")
 def _weigh(z, R, x, P, mu, w):
     """Each model's prior probability times its likelihood of ``z``, scaled by
-    ``e^(−lmax)`` into ``w``; returns ``(lmax, Σ w)``."""
+    ``e^(−lmax)`` into ``w``; returns ``(lmax, Σ w)``.
+
+    ``N(y; 0, S) = e^(−y²/2S) / √(2πS)``: the exponents are scaled by their largest, so
+    one ``exp`` and one square root per model and no logarithm (a third of the cost of
+    the step for seven models when written with ``log S``)."""
     r = mu.shape[0]
-    lmax = -np.inf
+    emax = -np.inf
     for j in range(r):
         s_ = P[j, 0, 0] + R
         y_ = z - x[j, 0]
-        w[j] = -0.5 * (_LOG_2PI + math.log(s_) + y_ * y_ / s_)
-        if w[j] > lmax:
-            lmax = w[j]
+        w[j] = -0.5 * y_ * y_ / s_
+        if w[j] > emax:
+            emax = w[j]
     total = 0.0
     for j in range(r):
-        w[j] = mu[j] * math.exp(w[j] - lmax)
+        w[j] = mu[j] * math.exp(w[j] - emax) / math.sqrt(P[j, 0, 0] + R)
         total += w[j]
-    return lmax, total
+    return emax - 0.5 * _LOG_2PI, total
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
