@@ -64,7 +64,7 @@ from estimator.observer import (
     FLAG_MISSING,
     FLAG_REJECTED,
 )
-from estimator.window_stats import window_stats
+from estimator.window_stats import WindowState, window_stats
 
 __all__ = [
     "CHANGING",
@@ -287,8 +287,7 @@ class SettlingMonitor:
         #: samples before the newest one in a full hold window
         self.hold_samples = max(1, round(rule.hold_s * fs))
         h = self.hold_samples
-        self._tail_f = np.zeros(h)
-        self._tail_pos = np.arange(-h, 0, dtype=np.int64)
+        self._window = WindowState(h)
         self._pos = 0  # stream position of the next sample
         self._anchor = 0  # first usable position of the current stretch
         self._t_last = -math.inf
@@ -367,15 +366,12 @@ class SettlingMonitor:
         anchor = np.maximum.accumulate(np.maximum(candidate, self._anchor))
         usable = anchor <= pos
 
-        # --- hold-window statistics: row i of the sliding view is sample i's window.
-        # Each row is reduced on its own, over the same h + 1 values in the same order,
-        # whatever block it arrives in, so the results do not depend on block sizes.
-        ext_f = np.concatenate((self._tail_f, np.where(finite, f, 0.0)))
-        ext_pos = np.concatenate((self._tail_pos, pos))
+        # --- hold-window statistics, sliding: the window's state is carried from one
+        # block to the next, so the results do not depend on block sizes.
         total = np.empty(n)
         high = np.empty(n)
         low = np.empty(n)
-        window_stats(ext_f, ext_pos, anchor, h, total, high, low)
+        window_stats(self._window, np.where(finite, f, 0.0), pos, anchor, total, high, low)
         count = np.clip(pos - anchor + 1, 0, h + 1)
         with np.errstate(invalid="ignore", divide="ignore"):
             mean = np.where(count > 0, total / np.maximum(count, 1), np.nan)
@@ -426,8 +422,6 @@ class SettlingMonitor:
                 self._valid_since_s = change.time_s
 
         # --- carry
-        self._tail_f = ext_f[-h:].copy()
-        self._tail_pos = ext_pos[-h:].copy()
         self._anchor = int(anchor[-1])
         self._t_last = float(t[-1]) if math.isfinite(t[-1]) else self._t_last
         self._settled = bool(settled[-1])
