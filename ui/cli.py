@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import argparse
 import importlib
+import os
 import sys
 from collections.abc import Sequence
 
@@ -65,14 +66,34 @@ def main(argv: Sequence[str] | None = None) -> int:
         parser.print_help()
         return 2
     try:
-        return int(args.run(args) or 0)
+        status = int(args.run(args) or 0)
+        sys.stdout.flush()  # a closed pipe shows here, not at interpreter exit
+        return status
     except KeyboardInterrupt:
         print("\ninterrupted", file=sys.stderr)
         return 130
+    except BrokenPipeError:
+        # the reader of our output went away (``forcelens runs | head``): stop quietly;
+        # later writes to stdout go nowhere (Python's documented way, "Note on SIGPIPE")
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        return 1
     except (ValueError, OSError) as exc:
         # Our own error families subclass these; their messages name the problem.
         print(f"forcelens {args.command}: error: {exc}", file=sys.stderr)
         return 1
+    except Exception as exc:  # a fault of forcelens: one line, the details in a file
+        from ui.crash import EXIT_CRASH, save_crash_report
+
+        argv_used = list(sys.argv[1:] if argv is None else argv)
+        path = save_crash_report(exc, argv_used, software_version())
+        where = f"details in {path}" if path else "no crash report could be written"
+        print(
+            f"forcelens {args.command}: internal error ({type(exc).__name__}: {exc}); "
+            f"{where}; please report it",
+            file=sys.stderr,
+        )
+        return EXIT_CRASH
 
 
 if __name__ == "__main__":  # pragma: no cover

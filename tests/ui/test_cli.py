@@ -134,3 +134,44 @@ def test_replay_refuses_a_missing_or_reordered_csv_in_one_line(tmp_path: Path, c
     err = capsys.readouterr().err
     assert err.count("\n") == 1 and "shuffled.csv:4: time_s goes back" in err
     assert not out.exists()
+
+
+def test_an_unexpected_failure_is_one_line_and_a_crash_report(
+    tmp_path: Path, capsys, monkeypatch
+) -> None:
+    # Issue 15: no traceback reaches a user; exit 3 and a saved report for a fault.
+    import ui.commands.check as check
+
+    def broken(args) -> int:
+        raise RuntimeError("invented fault")
+
+    monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path))
+    monkeypatch.setattr(check, "run", broken)
+    assert main(["check", "--settling-time-s", "0.1"]) == 3
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "Traceback" not in err
+    assert "internal error (RuntimeError: invented fault)" in err
+    reports = list((tmp_path / "forcelens" / "crash").glob("crash-*.txt"))
+    assert len(reports) == 1 and str(reports[0]) in err
+    text = reports[0].read_text(encoding="utf-8")
+    assert "Traceback" in text and "invented fault" in text and "check --settling-time-s" in text
+
+
+def test_output_into_a_closed_pipe_ends_quietly() -> None:
+    # ``forcelens runs | head -1``: formerly a BrokenPipeError traceback. A command that
+    # prints far more than a pipe holds (64 KiB), whose reader leaves after one line.
+    code = (
+        "import sys\n"
+        "import ui.commands.check as c\n"
+        "c.run = lambda args: [print('x' * 99) for _ in range(100_000)] and 0\n"
+        "from ui.cli import main\n"
+        "sys.exit(main(['check', '--settling-time-s', '0.1']))\n"
+    )
+    proc = subprocess.Popen(
+        [sys.executable, "-c", code], stdout=subprocess.PIPE, stderr=subprocess.PIPE
+    )
+    assert proc.stdout.readline() == b"x" * 99 + b"\n"
+    proc.stdout.close()  # the reader goes away
+    err = proc.stderr.read().decode()
+    assert proc.wait(timeout=60) == 1
+    assert err == "", err
