@@ -40,6 +40,7 @@ from typing import Any
 import numpy as np
 
 from daq.errors import FramingError, RunFormatError, SourceError
+from daq.run_files import MAX_EVENTS_BYTES, MAX_JSON_BYTES, checked_file
 from daq.samples import FLAG_GAP_BEFORE, FLAG_RECONNECT_BEFORE, SAMPLE_DTYPE, SAMPLE_UNITS
 
 __all__ = [
@@ -736,6 +737,7 @@ class RunData:
 
 
 def _load_json(path: Path) -> Any:
+    checked_file(path, path.parent, "run description or closing record", MAX_JSON_BYTES)
     try:
         text = path.read_text(encoding="utf-8")
     except FileNotFoundError:
@@ -750,6 +752,8 @@ def _load_json(path: Path) -> Any:
         raise RunFormatError(
             f"{path}: not valid JSON (line {exc.lineno}, column {exc.colno}: {exc.msg})"
         ) from None
+    except RecursionError:
+        raise RunFormatError(f"{path}: JSON nested too deeply to be a forcelens file") from None
 
 
 def _need(path: Path, data: Mapping[str, Any], key: str, types: Any, what: str) -> Any:
@@ -919,10 +923,7 @@ def read_run_info(folder: str | os.PathLike[str]) -> RunInfo:
     torn: dict[str, int] = {}
     for name, dtype in dtypes.items():
         path = root / description["streams"][name]["file"]
-        try:
-            size = path.stat().st_size
-        except FileNotFoundError:
-            raise RunFormatError(f"{path}: missing (data file of stream {name!r})") from None
+        size = checked_file(path, root, f"data file of stream {name!r}")
         records[name], torn[name] = divmod(size, dtype.itemsize)
     return RunInfo(root, description, closing, dtypes, records, torn)
 
@@ -944,17 +945,18 @@ def _load_stream(info: RunInfo, name: str, use_memmap: bool) -> np.ndarray:
 
 def _read_events(path: Path) -> tuple[list[dict[str, Any]], bool, int]:
     """Parse ``events.jsonl``; return (events, torn last line?, torn byte count)."""
+    checked_file(path, path.parent, "event log", MAX_EVENTS_BYTES)
     try:
         raw = path.read_bytes()
-    except FileNotFoundError:
-        raise RunFormatError(f"{path}: missing (event log)") from None
+    except OSError as exc:
+        raise RunFormatError(f"{path}: cannot read ({exc.strerror or exc})") from None
     lines = raw.split(b"\n")
     tail = lines.pop()  # bytes after the last newline: empty unless the last line is torn
     events: list[dict[str, Any]] = []
     for number, line in enumerate(lines, start=1):
         try:
             event = json.loads(line.decode("utf-8"))
-        except (UnicodeDecodeError, json.JSONDecodeError) as exc:
+        except (UnicodeDecodeError, json.JSONDecodeError, RecursionError) as exc:
             raise RunFormatError(
                 f"{path}: line {number} is not a JSON object ({exc}); the event log is corrupt"
             ) from None

@@ -24,6 +24,7 @@ import importlib.resources
 import math
 import os
 import re
+import stat
 import tempfile
 import tomllib
 from collections.abc import Mapping
@@ -122,6 +123,7 @@ KEY_HELP: dict[str, dict[str, str]] = {
     },
 }
 
+_MAX_PROFILE_BYTES = 2**20  # a profile is a page of TOML; more is not a profile
 _ISO_DATE = re.compile(r"^\d{4}-\d{2}-\d{2}$")
 
 
@@ -594,11 +596,20 @@ def load_profile(path: str | os.PathLike[str]) -> CellProfile:
     content; OSError if the file cannot be read.
     """
     origin = os.fspath(path)
+    st = os.stat(path)  # FileNotFoundError and the like name the path themselves
+    if not stat.S_ISREG(st.st_mode):
+        raise ProfileError(f"{origin}: not a regular file; a profile is a TOML file")
+    if st.st_size > _MAX_PROFILE_BYTES:
+        raise ProfileError(
+            f"{origin}: {st.st_size} bytes; a profile is at most {_MAX_PROFILE_BYTES} bytes"
+        )
     with open(path, "rb") as handle:
         try:
             data = tomllib.load(handle)
         except tomllib.TOMLDecodeError as exc:
             raise ProfileError(f"{origin}: not valid TOML: {exc}") from exc
+        except RecursionError:
+            raise ProfileError(f"{origin}: TOML nested too deeply to be a profile") from None
     return profile_from_mapping(data, origin=origin)
 
 
