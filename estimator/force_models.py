@@ -9,14 +9,20 @@ plant ``m·x'' + b·x' + k·x = F``. They differ in what they assume of the forc
   intensity ``q_rate`` (N²/s³): ramps, sines and other smooth loads. Several
   intensities, a factor apart, cover slow to fast loads; the model probabilities pick
   the ones the record supports;
-* **jump** — within one sample period the force may jump (standard deviation
+* **jump ×3** — within one sample period the force may jump (standard deviation
   ``jump_sd_n``) and so may its rate (``jump_rate_sd_n_per_s``): a step, a release, the
-  corner of a ramp. It lasts one step and then hands over to the others.
+  corner of a ramp. It lasts one step and then hands over to the others. One model per
+  instant of the jump within the step (``jump_timing``, just after the previous sample,
+  half way, just before this one): a cell responds within the step, so the first
+  sample after a jump says ``J·s(instant)``, and one model averaging over the instant
+  misjudged ``J`` (on the demo cell, a step just after a sample: 82 N read for 50 N
+  after one sample, still 2 N off after three).
 
 A jump at an unknown instant within a step of ``dt`` has the same first two moments as
-a random walk of intensity ``σ²/dt`` over that step, so each model's noise is a sum
-``Q = q_F·Q_F + q_Ḟ·Q_Ḟ`` of two unit-intensity Van Loan integrals (Van Loan 1978; see
-:mod:`estimator.discretization`).
+a random walk of intensity ``σ²/dt`` over that step, so the regular models' noise is a
+sum ``Q = q_F·Q_F + q_Ḟ·Q_Ḟ`` of two unit-intensity Van Loan integrals (Van Loan 1978;
+see :mod:`estimator.discretization`); a timed jump model has the rank-one covariance of
+a jump at its instant plus ``jump_spread`` times that averaged one.
 
 **Scaled state.** The kernel works in ``s̃ = D s`` with
 ``D = diag(k, k/ωn, 1, 1/ωn)``: all four components in newtons, so the covariances
@@ -40,6 +46,7 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
+import scipy.linalg
 
 from estimator.discretization import van_loan
 from estimator.errors import ParameterError
@@ -65,6 +72,11 @@ class ForceModels:
         jump_to_hold: share of the jump's exits that go to the hold model.
         start_ratio: ratio between the probabilities of entering successive rate models
             (slow to fast) from hold; 1 enters them all alike.
+        jump_timing: one jump model per entry: the instant of the jump within the step,
+            as a fraction of it (0 just after the previous sample, 1 at this one).
+        jump_spread: share of the timing-averaged jump covariance added to each timed
+            jump model (what a single model would assume), so that an instant between
+            the listed ones is still covered.
     """
 
     q_hold_n2_per_s: float
@@ -76,6 +88,8 @@ class ForceModels:
     jump_stay: float = 0.2
     jump_to_hold: float = 0.5
     start_ratio: float = 0.5
+    jump_timing: tuple[float, ...] = (0.02, 0.5, 0.98)
+    jump_spread: float = 0.2
 
     def __post_init__(self) -> None:
         for name in ("q_hold_n2_per_s", "jump_sd_n", "jump_rate_sd_n_per_s", "dwell_s"):
@@ -85,6 +99,15 @@ class ForceModels:
             raise ParameterError("q_rate_n2_per_s3 is empty: give at least one rate intensity")
         for q in self.q_rate_n2_per_s3:
             _positive("q_rate_n2_per_s3", q)
+        if not self.jump_timing or not all(
+            isinstance(v, int | float) and 0.0 <= v <= 1.0 for v in self.jump_timing
+        ):
+            raise ParameterError(
+                f"jump_timing = {self.jump_timing!r}: give one or more fractions of a step "
+                "in [0, 1]"
+            )
+        if not (isinstance(self.jump_spread, int | float) and 0.0 <= self.jump_spread <= 1.0):
+            raise ParameterError(f"jump_spread = {self.jump_spread!r}: must be in [0, 1]")
         if not (isinstance(self.start_ratio, int | float) and 0.0 < self.start_ratio <= 1.0):
             raise ParameterError(f"start_ratio = {self.start_ratio!r}: must be in (0, 1]")
         for name in ("jump_stay", "jump_to_hold"):
@@ -94,13 +117,19 @@ class ForceModels:
 
     @property
     def count(self) -> int:
-        """Number of models: hold, the rate models, jump."""
-        return len(self.q_rate_n2_per_s3) + 2
+        """Number of models: hold, the rate models, the jump models."""
+        return 1 + len(self.q_rate_n2_per_s3) + len(self.jump_timing)
+
+    @property
+    def regular(self) -> int:
+        """Number of regular models (hold and the rates); the jump models follow them."""
+        return 1 + len(self.q_rate_n2_per_s3)
 
     @property
     def families(self) -> np.ndarray:
         """FAMILY_* of each model, shape (count,)."""
-        return np.array([FAMILY_HOLD] + [FAMILY_RATE] * (self.count - 2) + [FAMILY_JUMP])
+        rates = [FAMILY_RATE] * len(self.q_rate_n2_per_s3)
+        return np.array([FAMILY_HOLD, *rates] + [FAMILY_JUMP] * len(self.jump_timing))
 
     @classmethod
     def for_cell(
@@ -138,7 +167,8 @@ class ForceModels:
     def transitions(self, dt_s: float) -> np.ndarray:
         """Mode transition matrix ``π[i, j]`` for one step of ``dt_s`` (rows sum to 1)."""
         r = self.count
-        n_reg = r - 1
+        n_reg = self.regular
+        n_jump = r - n_reg
         p_switch = min(dt_s / self.dwell_s, 0.5) / max(n_reg - 1, 1)
         p_jump = min(dt_s / self.jump_interval_s, 0.5)
         PI = np.zeros((r, r))
@@ -146,11 +176,15 @@ class ForceModels:
             PI[:n_reg, :n_reg] = p_switch
             share = self.start_ratio ** np.arange(n_reg - 1)
             PI[0, 1:n_reg] = p_switch * (n_reg - 1) * share / share.sum()
-        PI[:n_reg, -1] = p_jump
+        PI[:n_reg, n_reg:] = p_jump / n_jump  # the jump's instant within the step: alike
         leave = 1.0 - self.jump_stay
-        PI[-1, 0] = leave * self.jump_to_hold
-        PI[-1, 1:n_reg] = leave * (1.0 - self.jump_to_hold) / (n_reg - 1)
-        PI[-1, -1] = self.jump_stay
+        for i in range(n_reg, r):  # a jump continues as itself, or ends
+            PI[i, 0] = leave * self.jump_to_hold
+            if n_reg > 1:
+                PI[i, 1:n_reg] = leave * (1.0 - self.jump_to_hold) / (n_reg - 1)
+            else:
+                PI[i, 0] = leave
+            PI[i, i] = self.jump_stay
         for j in range(n_reg):
             PI[j, j] = 0.0
             PI[j, j] = 1.0 - PI[j].sum()
@@ -208,8 +242,14 @@ def model_tables(
         for j, q in enumerate(models.q_rate_n2_per_s3, start=1):
             PHI[t, j] = phi_r * ratio
             Q[t, j] = q * qr_r * outer
-        PHI[t, -1] = phi_r * ratio
+        # a jump at an unknown instant: the random walk with its first two moments ...
         jump = models.jump_sd_n**2 / dt * qf_r + models.jump_rate_sd_n_per_s**2 / dt * qr_r
-        Q[t, -1] = jump * outer
+        for j, tau in enumerate(models.jump_timing, start=models.regular):
+            PHI[t, j] = phi_r * ratio
+            # ... and at a known fraction tau of the step: a force jump J (variance
+            # σ_J²) moves the state at the step's end by J·exp(A·(1 − tau)·dt)·e_F
+            g = scipy.linalg.expm(a_rate * ((1.0 - tau) * dt)) @ e_f[:, 0]
+            timed = models.jump_sd_n**2 * np.outer(g, g)
+            Q[t, j] = (timed + models.jump_spread * jump) * outer
         PI[t] = models.transitions(dt)
     return PHI, Q, PI

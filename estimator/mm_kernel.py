@@ -318,7 +318,8 @@ def imm_block(
     prune: np.ndarray,  # (r,) a model less probable than its entry passes nothing on
     #                     and is not shown
     tail: float,  # the least probable models, up to this total, are not shown either
-    jump: int,  # index of the jump model (its taking over makes a sample suspect), or -1
+    jump: int,  # index of the first jump model (the jump models are the last ones; their
+    #             taking over makes a sample suspect), or -1
     x: np.ndarray,  # (2, r, 4) posterior states: branch "used", branch "outlier"
     P: np.ndarray,  # (2, r, 4, 4) posterior covariances of both branches
     mu: np.ndarray,  # (2, r) mode probabilities of both branches
@@ -411,7 +412,12 @@ def imm_block(
                 # suspect also when this sample alone would raise the jump model above
                 # _JUMP_SUSPECT (at high rates one sample of a jump is barely above the
                 # noise, so a single noisy sample can do that)
-                jumpy = jump >= 0 and lj[jump] > _JUMP_SUSPECT * total
+                jumpy = False
+                if jump >= 0:
+                    lsum = 0.0
+                    for j in range(jump, r):
+                        lsum += lj[j]
+                    jumpy = lsum > _JUMP_SUSPECT * total
                 if y * y > gate2 * s_best or jumpy:
                     # suspect: keep the prediction as the "outlier" branch, then update
                     for j in range(r):

@@ -333,7 +333,8 @@ class ForceObserver:
         st.P[:] = np.diag([k * k * self.R, s * s, s * s, s * s])
         st.mu[:] = 0.0
         st.mu[:, 0] = 0.5
-        st.mu[:, 1 : self.models.count - 1] = 0.5 / max(self.models.count - 2, 1)
+        n_reg = self.models.regular
+        st.mu[:, 1:n_reg] = 0.5 / max(n_reg - 1, 1)
         if self.models.count == 1:
             st.mu[:, 0] = 1.0
         elif self.models.count == 2:
@@ -422,7 +423,7 @@ class ForceObserver:
             tun.outlier_spread * k * math.sqrt(self.R),
             self._prune,
             tun.shown_tail,
-            self.models.count - 1,
+            self.models.regular if self.models.count > self.models.regular else -1,
             st.x,
             st.P,
             st.mu,
@@ -453,7 +454,7 @@ class ForceObserver:
         out["p_hold"] = om[:, fam == FAMILY_HOLD].sum(axis=1)
         out["p_rate"] = om[:, fam == FAMILY_RATE].sum(axis=1)
         out["p_jump"] = p_jump
-        jump = (om.argmax(axis=1) == r - 1) & (fam[-1] == FAMILY_JUMP)
+        jump = fam[om.argmax(axis=1)] == FAMILY_JUMP
         gap = dt > 1.5 * self.dt_s
         if st.t_last is None:
             gap[0] = False

@@ -219,18 +219,44 @@ def test_van_loan_refuses_bad_step() -> None:
 @pytest.mark.parametrize("ratio", [1.0, 0.5])
 def test_transition_matrix_rows_and_the_start_ratio(ratio: float) -> None:
     # Definition (force_models docstring): rows are probabilities; the regular models
-    # leave at the total rate dt/dwell and jump at dt/jump_interval; from hold the rate
-    # models are entered in the ratio 1 : γ : γ² … and in total as often as with γ = 1.
+    # leave at the total rate dt/dwell and jump at dt/jump_interval, the jump's instant
+    # alike over the timed jump models; from hold the rate models are entered in the
+    # ratio 1 : γ : γ² … and in total as often as with γ = 1; a jump stays or ends.
     bank = dataclasses.replace(ForceModels.for_cell(CELL, SPAN, Q_HOLD), start_ratio=ratio)
     PI = bank.transitions(DT)
     assert np.all(PI >= 0.0)
     np.testing.assert_allclose(PI.sum(axis=1), 1.0, rtol=0, atol=1e-15)
-    rates = PI[0, 1:-1]
+    n_reg = bank.regular
+    rates = PI[0, 1:n_reg]
     np.testing.assert_allclose(rates[1:] / rates[:-1], ratio, rtol=1e-12)
     np.testing.assert_allclose(rates.sum(), DT / bank.dwell_s, rtol=1e-12)
-    np.testing.assert_allclose(PI[:-1, -1], DT / bank.jump_interval_s, rtol=1e-12)
+    jumps = PI[:n_reg, n_reg:]
+    np.testing.assert_allclose(jumps, DT / bank.jump_interval_s / jumps.shape[1], rtol=1e-12)
+    for i in range(n_reg, bank.count):  # a jump continues only as itself
+        assert PI[i, i] == bank.jump_stay and np.all(np.delete(PI[i, n_reg:], i - n_reg) == 0)
     with pytest.raises(ParameterError, match="start_ratio"):
         dataclasses.replace(bank, start_ratio=0.0)
+
+
+def test_a_timed_jump_moves_the_state_by_the_cells_step_response() -> None:
+    # Handbook closed form of an underdamped second-order system's unit step response
+    # (x(s) = (1 − e^(−ζωn·s)(cos ωd·s + ζ/√(1−ζ²)·sin ωd·s))/k, v = dx/ds): a force jump J
+    # at the fraction tau of the step moves [x, v, F] by J·[x, v, 1](s), s = (1 − tau)·dt,
+    # so with no spread the timed model's covariance is σ_J² g gᵀ (scaled by D).
+    base = ForceModels.for_cell(CELL, SPAN, Q_HOLD)
+    bank = dataclasses.replace(base, jump_timing=(0.0, 0.3, 1.0), jump_spread=0.0)
+    _, Q, _ = model_tables(CELL, bank, np.array([DT]))
+    wn, z = CELL.natural_freq_rad_s, CELL.damping_ratio
+    wd = wn * math.sqrt(1.0 - z * z)
+    D = scaling(CELL)
+    for j, tau in enumerate(bank.jump_timing, start=bank.regular):
+        s = (1.0 - tau) * DT
+        e = math.exp(-z * wn * s)
+        x = (1.0 - e * (math.cos(wd * s) + z / math.sqrt(1.0 - z * z) * math.sin(wd * s))) / STIFF
+        v = e * wn / math.sqrt(1.0 - z * z) * math.sin(wd * s) / STIFF
+        g = np.array([x, v, 1.0, 0.0]) * D
+        want = bank.jump_sd_n**2 * np.outer(g, g)
+        np.testing.assert_allclose(Q[0, j], want, rtol=1e-9, atol=1e-12 * bank.jump_sd_n**2)
 
 
 # --------------------------------------------------------------- the kernel vs filterpy
@@ -277,7 +303,9 @@ def test_imm_agrees_with_filterpy_imm_estimator() -> None:
     # normal double; the step (20 N) is chosen so that no log-likelihood goes below it,
     # which the loop checks.
     bank = ForceModels.for_cell(CELL, SPAN, Q_HOLD)
-    models = dataclasses.replace(bank, q_rate_n2_per_s3=(bank.q_rate_n2_per_s3[1],))
+    models = dataclasses.replace(
+        bank, q_rate_n2_per_s3=(bank.q_rate_n2_per_s3[1],), jump_timing=(0.5,)
+    )
     assert models.count == 3  # hold, one rate, jump
     PHI, Q, PI = model_tables(CELL, models, np.array([DT]))
     n = 300
