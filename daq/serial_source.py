@@ -51,7 +51,7 @@ __all__ = [
     "SerialSource",
 ]
 
-LIST_PORTS_HINT = "list ports with `python -m serial.tools.list_ports`"
+LIST_PORTS_HINT = "list the ports with `forcelens ports`"
 
 #: Parity names accepted by `PortSettings` and the pyserial constant of each.
 PARITIES = {
@@ -149,6 +149,8 @@ class PortSettings:
             "parity": PARITIES[self.parity],
             "stopbits": STOP_BITS[float(self.stop_bits)],
             "bytesize": DATA_BITS[int(self.data_bits)],
+            # one process per port: a second one would silently split the bytes
+            "exclusive": True,
         }
 
 
@@ -366,6 +368,10 @@ class SerialReader:
         rate_window_s: window of the rate meter, s.
         max_unread_samples: samples kept for `drain` at most; the oldest beyond it are
             dropped, counted and logged ("unread-dropped").
+        first_open_attempts: a port that has never opened is tried this many times
+            (about 1.5 s with the default waits), then the thread ends and `drain`
+            raises `SourceError` naming the port: a mistyped name must not retry
+            forever. Once the port has been open, reopening goes on until `stop`.
     """
 
     def __init__(
@@ -382,6 +388,7 @@ class SerialReader:
         read_timeout_s: float = 0.05,
         rate_window_s: float = 10.0,
         max_unread_samples: int = MAX_UNREAD_SAMPLES,
+        first_open_attempts: int = 6,
     ) -> None:
         if not isinstance(settings, PortSettings):
             raise FramingError(
@@ -419,6 +426,16 @@ class SerialReader:
         self.backoff_max_s = float(backoff_max_s)
         self.read_timeout_s = float(read_timeout_s)
         self.max_unread_samples = max_unread_samples
+        if (
+            isinstance(first_open_attempts, bool)
+            or not isinstance(first_open_attempts, int)
+            or (first_open_attempts < 1)
+        ):
+            raise FramingError(
+                f"SerialReader: first_open_attempts={first_open_attempts!r} must be an "
+                "integer >= 1"
+            )
+        self.first_open_attempts = first_open_attempts
         self._rate = RateMeter(nominal_rate_hz, rate_window_s)
         self._stop_evt = threading.Event()
         self._sleep = sleep if sleep is not None else self._interruptible_sleep
@@ -519,6 +536,8 @@ class SerialReader:
         if blocks:
             return concat_blocks(blocks)
         err = self._error
+        if isinstance(err, SourceError):  # already names the port and what to do
+            raise SourceError(str(err)) from err
         if err is not None:
             raise SourceError(
                 f"SerialReader on {self.settings.port!r} stopped on an unexpected error: "
@@ -602,6 +621,11 @@ class SerialReader:
                 break
             except (serial.SerialException, OSError) as exc:
                 failures += 1
+                if not reconnect and failures >= self.first_open_attempts:
+                    raise SourceError(
+                        f"cannot open {s.port!r} ({exc}), {failures} attempts; is it the "
+                        f"right name, is the device plugged in? {LIST_PORTS_HINT}"
+                    ) from None
                 if failures == 1:
                     self._log(
                         "open-failed",

@@ -118,3 +118,16 @@ def parse_faults(spec: str, *, option: str = "faults") -> list[Any]:
             raise ValueError(f"{option}: {item!r}: time or duration is not a number") from None
         faults.append(Fault(kind.strip(), at_s, duration_s=duration_s, count=count))
     return faults
+
+
+def refuse_demo_model_on_a_real_port(port: str | None, profile_path: str | None) -> None:
+    """A real port needs the profile of the cell on it: the built-in demo cell's model
+    (an invented cell) would turn its displacement into wrong forces, and a recorded run
+    would carry them. Raises ValueError naming the way to make a profile."""
+    if port and not profile_path:
+        raise ValueError(
+            f"--port {port}: give the profile of the cell on that port (--profile FILE); "
+            "the built-in demo cell's model is for the simulated cell only. Make one with "
+            "`forcelens profile new CELL.toml ...` from the cell's known stiffness and mass, "
+            "then refine it with `forcelens identify` and `forcelens calibrate`"
+        )

@@ -5,7 +5,10 @@ from __future__ import annotations
 import datetime
 import itertools
 import math
+import os
 import re
+import subprocess
+import sys
 import threading
 import time
 from collections.abc import Callable
@@ -78,7 +81,7 @@ def test_empty_read_waits_about_the_timeout() -> None:
 
 def test_errors_become_source_errors_naming_port_and_fix() -> None:
     src = SerialSource("/dev/forcelens-no-such-port", 9600, LineDecoder(SCALING))
-    with pytest.raises(SourceError, match=r"forcelens-no-such-port.*list_ports"):
+    with pytest.raises(SourceError, match=r"forcelens-no-such-port.*forcelens ports"):
         src.open()
     with pytest.raises(SourceError, match="not open"):
         src.read_block()
@@ -188,6 +191,7 @@ def test_port_settings_map_to_pyserial_constants() -> None:
                 "parity": serial.PARITY_EVEN,
                 "stopbits": serial.STOPBITS_ONE_POINT_FIVE,
                 "bytesize": serial.SEVENBITS,
+                "exclusive": True,
                 "timeout": 0.01,
             },
         )
@@ -199,6 +203,7 @@ def test_port_settings_map_to_pyserial_constants() -> None:
         "parity": serial.PARITY_NONE,
         "stopbits": serial.STOPBITS_ONE,
         "bytesize": serial.EIGHTBITS,
+        "exclusive": True,  # pyserial: the port locked against a second process (POSIX)
     }
     assert PortSettings("x", stop_bits=2, parity="space").serial_kwargs()["stopbits"] == (
         serial.STOPBITS_TWO
@@ -340,6 +345,7 @@ def test_backoff_doubles_is_capped_and_logs_one_failure_per_series() -> None:
         sleep=sleeps.append,
         backoff_initial_s=0.01,
         backoff_max_s=0.08,
+        first_open_attempts=10,
     )
     with reader:
         got = drain_until(reader, 6)
@@ -356,6 +362,45 @@ def test_backoff_doubles_is_capped_and_logs_one_failure_per_series() -> None:
         + ["disconnected", "open-failed", "reconnected"]
     )
     assert reader.stats().reconnects == 4
+
+
+def test_a_port_that_never_opens_stops_with_the_command_that_lists_ports() -> None:
+    # Issue 12: a mistyped port retried forever. Six attempts (five waits), then drain
+    # raises one error naming the port and `forcelens ports`.
+    sleeps: list[float] = []
+    reader = SerialReader(
+        PortSettings("/dev/ttyTYPO"),
+        LineDecoder(SCALING),
+        open_fn=opener([serial.SerialException(f"no such port {i}") for i in range(20)]),
+        sleep=sleeps.append,
+    )
+    with reader:
+        wait_for(lambda: reader.state == "stopped")
+        with pytest.raises(SourceError, match=r"cannot open '/dev/ttyTYPO'.*forcelens ports"):
+            reader.drain()
+    assert len(sleeps) == 5
+
+
+def test_a_second_process_cannot_open_the_same_port() -> None:
+    # pyserial's exclusive open (flock on POSIX), on a real pseudo-terminal.
+    master, slave = os.openpty()
+    name = os.ttyname(slave)
+    first = serial.Serial(name, **PortSettings(name).serial_kwargs())
+    try:
+        code = (
+            "import serial, sys\n"
+            "from daq.serial_source import PortSettings\n"
+            f"try:\n    serial.Serial({name!r}, **PortSettings({name!r}).serial_kwargs())\n"
+            "except serial.SerialException as exc:\n    print(exc); sys.exit(3)\n"
+        )
+        proc = subprocess.run(
+            [sys.executable, "-c", code], capture_output=True, text=True, timeout=60
+        )
+        assert proc.returncode == 3, proc.stdout + proc.stderr
+    finally:
+        first.close()
+        os.close(master)
+        os.close(slave)
 
 
 def test_drain_never_waits_for_a_blocked_read_or_a_slow_decoder() -> None:

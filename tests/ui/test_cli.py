@@ -175,3 +175,13 @@ def test_output_into_a_closed_pipe_ends_quietly() -> None:
     err = proc.stderr.read().decode()
     assert proc.wait(timeout=60) == 1
     assert err == "", err
+
+
+def test_a_real_port_without_a_profile_is_refused(capsys) -> None:
+    # Issue 12: `live --port X` without --profile ran the invented demo cell's model on
+    # real hardware. Refused before anything opens, with the commands that make a profile.
+    for command in ("live", "dashboard"):
+        assert main([command, "--port", "/dev/ttyUSB7"]) == 1
+        err = capsys.readouterr().err
+        assert err.count("\n") == 1
+        assert "--port /dev/ttyUSB7: give the profile" in err and "forcelens profile new" in err

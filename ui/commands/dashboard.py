@@ -57,7 +57,9 @@ def open_dashboard(profile: Any, *, profile_path: str = "") -> None:
 
 def run(args: argparse.Namespace) -> int:
     from estimator.profile import default_demo_profile, load_profile
+    from ui.wiring import refuse_demo_model_on_a_real_port
 
+    refuse_demo_model_on_a_real_port(args.port, args.profile)
     profile = load_profile(args.profile) if args.profile else default_demo_profile()
     if args.screenshot and not os.environ.get("DISPLAY") and "QT_QPA_PLATFORM" not in os.environ:
         os.environ["QT_QPA_PLATFORM"] = "offscreen"

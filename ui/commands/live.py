@@ -106,7 +106,9 @@ class _Stop:
 def run_live(args: argparse.Namespace) -> int:
     """Run the ``live`` sub-command; returns the exit status."""
     from estimator.profile import default_demo_profile, load_profile
+    from ui.wiring import refuse_demo_model_on_a_real_port
 
+    refuse_demo_model_on_a_real_port(args.port, args.profile)
     profile = load_profile(args.profile) if args.profile else default_demo_profile()
     if args.duration is not None and not args.duration > 0:
         raise ValueError(f"--duration = {args.duration}: must be > 0 seconds")
