@@ -884,9 +884,34 @@ def _check_closing(path: Path, data: object, dtypes: Mapping[str, np.dtype]) -> 
         if name not in dtypes:
             raise RunFormatError(f"{path}: streams.{name} is not a stream of run.json")
         _check_count_entry(path, f"streams.{name}", entry, "records")
-    if "events" in data:
-        _check_count_entry(path, "events", data["events"], "lines")
+    # Every key is required and no other is allowed: a closing record with a hash
+    # removed (or one added) no longer vouches for the files, and verify must say so
+    # instead of skipping the check.
+    unknown = sorted(set(data) - _CLOSING_KEYS)
+    if unknown:
+        raise RunFormatError(
+            f"{path}: unknown key(s) {', '.join(map(repr, unknown))}; a closing record holds "
+            f"exactly {', '.join(sorted(_CLOSING_KEYS))}"
+        )
+    if "events" not in data:
+        raise RunFormatError(
+            f"{path}: key 'events' is missing (line count and SHA-256 of {EVENTS_FILE}); "
+            "without it the closing record cannot vouch for the event log (removed?)"
+        )
+    _check_count_entry(path, "events", data["events"], "lines")
+    digest = data.get("description_sha256")
+    if not isinstance(digest, str) or not _SHA256_RE.match(digest):
+        raise RunFormatError(
+            f"{path}: description_sha256 = {digest!r}: must be 64 lower-case hex digits (the "
+            f"SHA-256 of {DESCRIPTION_FILE}); without it the closing record cannot vouch for "
+            "the run description and its profile copy (removed?)"
+        )
     return data
+
+
+_CLOSING_KEYS = frozenset(
+    {"status", "ended_utc", "summary", "streams", "events", "description_sha256"}
+)
 
 
 def _check_count_entry(path: Path, where: str, entry: object, count_key: str) -> None:

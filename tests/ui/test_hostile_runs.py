@@ -86,3 +86,43 @@ def test_hostile_profiles_are_refused(tmp_path: Path) -> None:
         fh.truncate(2 * 2**20)
     with pytest.raises(ProfileError, match="a profile is at most"):
         load_profile(big)
+
+
+def _edit_json(path: Path, change) -> None:
+    import json
+
+    data = json.loads(path.read_text(encoding="utf-8"))
+    change(data)
+    path.write_text(json.dumps(data), encoding="utf-8")
+
+
+def test_a_peeled_seal_fails_verify(run_folder: Path, capsys) -> None:
+    # Issue 15: edit the profile copy in run.json and delete the matching hash from
+    # closing.json: verify said OK and report used the altered profile.
+    assert main(["verify", str(run_folder)]) == 0
+    capsys.readouterr()
+
+    def stiffer(d: dict) -> None:
+        d["profile_toml"] = d["profile_toml"].replace(
+            "stiffness_n_per_m = ", "stiffness_n_per_m = 1"
+        )
+
+    _edit_json(run_folder / "run.json", stiffer)
+    _edit_json(run_folder / "closing.json", lambda d: d.pop("description_sha256"))
+    assert main(["verify", str(run_folder)]) == 1
+    said = capsys.readouterr()
+    assert "description_sha256" in said.out + said.err
+    assert main(["report", str(run_folder), "--out", str(run_folder.parent / "rep")]) == 1
+    assert "description_sha256" in capsys.readouterr().err
+
+
+def test_an_injected_event_with_its_hash_removed_fails(run_folder: Path, capsys) -> None:
+    # The same with a zero event added to events.jsonl and the events key deleted.
+    with (run_folder / "events.jsonl").open("a", encoding="utf-8") as fh:
+        fh.write('{"kind": "tare", "seq": 5, "note": "injected"}\n')
+    _edit_json(run_folder / "closing.json", lambda d: d.pop("events"))
+    with pytest.raises(RunFormatError, match="key 'events' is missing"):
+        read_run(run_folder)
+    _edit_json(run_folder / "closing.json", lambda d: d.update(note="x"))
+    with pytest.raises(RunFormatError, match="unknown key"):
+        read_run(run_folder)
