@@ -210,8 +210,9 @@ class Catalogue:
         """Runs matching every given filter, ordered by start time.
 
         ``since <= started_utc < until`` (aware datetimes or ISO text with a zone);
-        ``cell`` is the exact cell name; ``tag`` one tag the run must carry; ``status``
-        one of ``open``, ``complete``, ``aborted``, ``failed``.
+        ``cell``: text the cell name contains, ``tag``: text one of the run's tags
+        contains (both ignoring case); ``status`` one of ``open``, ``complete``,
+        ``aborted``, ``failed``.
         """
         where: list[str] = []
         args: list[object] = []
@@ -222,14 +223,6 @@ class Catalogue:
         if high is not None:
             where.append("started_utc < ?")
             args.append(high)
-        if cell is not None:
-            where.append("cell_name = ?")
-            args.append(cell)
-        if tag is not None:
-            where.append(
-                "EXISTS (SELECT 1 FROM run_tags t WHERE t.folder = runs.folder AND t.tag = ?)"
-            )
-            args.append(tag)
         if status is not None:
             if status not in CATALOGUE_STATUSES:
                 raise RunFormatError(
@@ -249,7 +242,7 @@ class Catalogue:
             tags: dict[str, list[str]] = {}
             for folder, tag_text in con.execute("SELECT folder, tag FROM run_tags ORDER BY rowid"):
                 tags.setdefault(folder, []).append(tag_text)
-        return [
+        found = [
             CatalogueEntry(
                 run_id=run_id,
                 folder=folder,
@@ -264,6 +257,12 @@ class Catalogue:
             )
             for folder, run_id, started, ended, cell_name, state, samples, digest, note in rows
         ]
+        # text filters in Python: casefold() ignores case beyond ASCII, SQLite's LIKE does not
+        if cell is not None:
+            found = [e for e in found if cell.casefold() in e.cell_name.casefold()]
+        if tag is not None:
+            found = [e for e in found if any(tag.casefold() in t.casefold() for t in e.tags)]
+        return found
 
     # ----------------------------------------------------------------------- internals
 

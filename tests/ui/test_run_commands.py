@@ -148,6 +148,38 @@ def test_runs_lists_and_filters(tmp_path: Path, capsys: pytest.CaptureFixture[st
     assert "no such folder" in capsys.readouterr().err
 
 
+def test_runs_takes_plain_dates_text_filters_and_lists_unreadable_runs(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    # Issue 12: `--since 2026-12-01` was refused (wanted a zone), `--cell demo` found
+    # nothing (whole-name match), unreadable runs vanished from the list without a word.
+    import datetime as dt
+    import json
+
+    root = tmp_path / "runs"
+    a = _record(root, note="first", tags=("Static-Load",))
+    broken = root / "broken-run"
+    broken.mkdir()
+    (broken / "run.json").write_text("{not json", encoding="utf-8")
+    today = dt.datetime.now(dt.UTC).date()
+    for since, until, n in ((today, today, 1), (today + dt.timedelta(days=1), None, 0)):
+        argv = ["runs", "--root", str(root), "--since", since.isoformat()]
+        argv += ["--until", until.isoformat()] if until else []
+        assert main(argv) == 0
+        out = capsys.readouterr().out
+        assert "dates in UTC" in out and (f"{n} run(s)" in out if n else "no run" in out)
+    assert main(["runs", "--root", str(root), "--cell", "DEMO", "--tag", "static"]) == 0
+    out = capsys.readouterr().out
+    assert "1 run(s)" in out and a.name in out
+    assert f"unreadable: {broken.resolve()}" in out and "not valid JSON" in out
+    assert main(["runs", "--root", str(root), "--json"]) == 0
+    listed = json.loads(capsys.readouterr().out)
+    assert [r["run_id"] for r in listed["runs"]] == [a.name]
+    assert listed["unreadable"][0]["folder"] == str(broken.resolve())
+    assert main(["runs", "--root", str(root), "--since", "yesterday"]) == 1
+    assert "give a date YYYY-MM-DD" in capsys.readouterr().err
+
+
 def test_export_writes_units_and_exact_numbers(
     tmp_path: Path, capsys: pytest.CaptureFixture[str]
 ) -> None:
