@@ -1,9 +1,12 @@
 """Plain CSV files of displacement against time.
 
 The first non-comment line is a header naming the columns with their units:
-``time_s`` and one of ``displacement_m`` / ``displacement_mm``. Other columns are
-ignored. Lines starting with ``#`` are comments. An empty displacement field or
-``nan`` marks a missing sample. Every row has as many fields as the header, and time
+``time_s`` (or ``device_time_s``, as ``forcelens export`` writes it) and one of
+``displacement_m`` / ``displacement_mm`` / ``displacement_um``; a name may carry its unit
+in brackets (``displacement_m [m]``), and case does not matter. Other columns are
+ignored. Fields are separated by commas, or by semicolons when the header has no comma.
+Lines starting with ``#`` are comments. An empty displacement field or ``nan`` marks a
+missing sample. Every row has as many fields as the header, and time
 strictly increases: a row whose time is equal to or earlier than the one before is an
 error naming its line (a reordered or merged file would otherwise be estimated as a
 record that restarts at every row).
@@ -44,7 +47,10 @@ def read_displacement_csv(path: str | os.PathLike[str]) -> tuple[np.ndarray, np.
     )
     if header_at is None:
         raise FramingError(f"{p}: no header line; expected e.g. 'time_s,displacement_m'")
-    names = [c.strip().lower() for c in lines[header_at].split(",")]
+    sep = "," if "," in lines[header_at] or ";" not in lines[header_at] else ";"
+    names = [_column_name(c) for c in lines[header_at].split(sep)]
+    if "time_s" not in names and "device_time_s" in names:
+        names[names.index("device_time_s")] = "time_s"
     if "time_s" not in names:
         raise FramingError(
             f"{p}:{header_at + 1}: header {lines[header_at]!r} has no 'time_s' column "
@@ -65,14 +71,14 @@ def read_displacement_csv(path: str | os.PathLike[str]) -> tuple[np.ndarray, np.
     t = np.empty(len(rows))
     x = np.empty(len(rows))
     try:
-        body = np.array([line.split(",") for _, line in rows], dtype=object)
+        body = np.array([line.split(sep) for _, line in rows], dtype=object)
         if body.ndim != 2:
             raise ValueError("rows have different numbers of fields")
         t[:] = _to_float(body[:, it])
         x[:] = _to_float(body[:, ix])
     except (ValueError, IndexError):
         for lineno, line in rows:  # slow path: find and name the first bad line
-            fields = line.split(",")
+            fields = line.split(sep)
             if len(fields) != len(names):
                 raise FramingError(
                     f"{p}:{lineno}: {line.strip()!r} has {len(fields)} fields; the header "
@@ -103,6 +109,14 @@ def read_displacement_csv(path: str | os.PathLike[str]) -> tuple[np.ndarray, np.
             "file, or remove the repeated rows)"
         )
     return t, x * DISPLACEMENT_UNITS[found[0]]
+
+
+def _column_name(text: str) -> str:
+    """``'Displacement_m [m]'`` → ``'displacement_m'``: case and a bracketed unit dropped."""
+    name = text.strip()
+    if name.endswith("]") and "[" in name:
+        name = name[: name.rindex("[")]
+    return name.strip().lower()
 
 
 def _to_float(column: np.ndarray) -> np.ndarray:

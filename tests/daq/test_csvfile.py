@@ -63,3 +63,10 @@ def test_a_ragged_row_is_refused_at_its_line(tmp_path: Path) -> None:
 def test_a_missing_file_is_named(tmp_path: Path) -> None:
     with pytest.raises(SourceError, match=r"nope\.csv: cannot read"):
         read_displacement_csv(tmp_path / "nope.csv")
+
+
+def test_semicolons_bracketed_units_and_case_are_read(tmp_path: Path) -> None:
+    text = "# invented\r\nTime_s [s];Displacement_um [um]\r\n0.0;1.5\r\n0.001;1.25\r\n"
+    t, x = read_displacement_csv(_file(tmp_path, "\ufeff" + text))
+    np.testing.assert_array_equal(t, [0.0, 0.001])
+    np.testing.assert_allclose(x, [1.5e-6, 1.25e-6], rtol=1e-15)

@@ -210,3 +210,25 @@ def test_ports_lists_what_pyserial_finds(
     monkeypatch.setattr(daq.ports, "list_ports", lambda: [])
     assert main(["ports"]) == 0
     assert "no serial port found" in capsys.readouterr().out
+
+
+def test_an_exported_run_reads_back_in_replay_and_identify(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    # Issue 12: `export` wrote `device_time_s [s]`, which replay, identify and tune
+    # refused: the tool could not read its own files. The round trip, number for number.
+    from daq.csvfile import read_displacement_csv
+
+    folder = _record(tmp_path / "runs", tare=False)
+    out = tmp_path / "s.csv"
+    assert main(["export", str(folder), "--out", str(out)]) == 0
+    t, x = read_displacement_csv(out)
+    samples = read_run(folder).samples
+    assert np.array_equal(t, samples["device_time_s"])
+    assert np.array_equal(x, samples["displacement_m"])
+    prof = tmp_path / "cell.toml"
+    save_profile(PROFILE, prof)
+    est = tmp_path / "est.csv"
+    assert main(["replay", str(out), "--profile", str(prof), "--out", str(est)]) == 0
+    assert main(["identify", str(out), "--test", "step", "--step-force-n", "30"]) == 0
+    capsys.readouterr()
