@@ -16,7 +16,7 @@ from pathlib import Path
 
 from daq.errors import RunFormatError
 
-__all__ = ["MAX_EVENTS_BYTES", "MAX_JSON_BYTES", "checked_file"]
+__all__ = ["MAX_EVENTS_BYTES", "MAX_JSON_BYTES", "checked_file", "file_kind"]
 
 MAX_JSON_BYTES = 16 * 2**20  #: run.json, closing.json: a profile copy and a few hashes
 MAX_EVENTS_BYTES = 256 * 2**20  #: events.jsonl: about a million events
@@ -49,7 +49,7 @@ def checked_file(path: Path, folder: Path, what: str, max_bytes: int | None = No
             raise RunFormatError(f"{path}: broken link ({exc.strerror or exc})") from None
     if not stat.S_ISREG(st.st_mode):
         raise RunFormatError(
-            f"{path}: not a regular file ({_kind(st.st_mode)}) in place of the {what}"
+            f"{path}: not a regular file ({file_kind(st.st_mode)}) in place of the {what}"
         )
     if max_bytes is not None and st.st_size > max_bytes:
         raise RunFormatError(
@@ -59,13 +59,16 @@ def checked_file(path: Path, folder: Path, what: str, max_bytes: int | None = No
     return st.st_size
 
 
-def _kind(mode: int) -> str:
+def file_kind(mode: int) -> str:
+    """What a file that is not a regular one is, in words (from its ``st_mode``)."""
+    if stat.S_ISDIR(mode):
+        return "a folder"
     if stat.S_ISFIFO(mode):
         return "a FIFO"
     if stat.S_ISCHR(mode) or stat.S_ISBLK(mode):
         return "a device"
     if stat.S_ISSOCK(mode):
         return "a socket"
-    if stat.S_ISDIR(mode):
-        return "a folder"
+    if stat.S_ISLNK(mode):
+        return "a symbolic link"
     return "a special file"

@@ -25,6 +25,8 @@ import tempfile
 from collections.abc import Iterable, Iterator
 from pathlib import Path
 
+from daq.run_files import file_kind
+
 __all__ = [
     "OutputRefusedError",
     "add_force_option",
@@ -66,18 +68,6 @@ def _same(a: Path, b: Path) -> bool:
         return False
 
 
-def _kind(mode: int) -> str:
-    if stat.S_ISDIR(mode):
-        return "a folder"
-    if stat.S_ISFIFO(mode):
-        return "a FIFO"
-    if stat.S_ISCHR(mode) or stat.S_ISBLK(mode):
-        return "a device"
-    if stat.S_ISSOCK(mode):
-        return "a socket"
-    return "not a regular file"
-
-
 def claim_file(
     path: str | os.PathLike[str],
     *,
@@ -110,7 +100,7 @@ def claim_file(
     if stat.S_ISLNK(st.st_mode):
         raise OutputRefusedError(f"{out}: is a symbolic link; give the real path of the output")
     if not stat.S_ISREG(st.st_mode):
-        raise OutputRefusedError(f"{out}: is {_kind(st.st_mode)}; an output must be a file")
+        raise OutputRefusedError(f"{out}: is {file_kind(st.st_mode)}; an output must be a file")
     if not force:
         raise OutputRefusedError(f"{out}: exists; give --force to replace it")
     return f"replaced {out} ({st.st_size} bytes)"
