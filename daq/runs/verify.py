@@ -1,0 +1,135 @@
+"""Checking a run and reporting instead of raising: `verify_run`."""
+
+from __future__ import annotations
+
+import os
+from dataclasses import dataclass
+
+import numpy as np
+
+from daq.errors import RunFormatError
+from daq.runs.layout import CLOSING_FILE, EVENTS_FILE
+from daq.runs.reader import (
+    _closing_problems,
+    _load_stream,
+    _read_events,
+    _stream_path,
+    read_run_info,
+)
+from daq.samples import FLAG_GAP_BEFORE, FLAG_RECONNECT_BEFORE
+
+
+@dataclass(frozen=True)
+class VerifyReport:
+    """Result of :func:`verify_run`.
+
+    ``ok`` is True when the run is closed, every file matches ``closing.json`` (counts and
+    SHA-256) and the sample sequence numbers are consistent. ``records`` gives whole records
+    per stream. ``problems`` make ``ok`` False; ``notes`` are facts worth knowing (flagged
+    gaps, reconnections, an aborted or failed status) that do not.
+    """
+
+    ok: bool
+    closed: bool
+    status: str | None
+    records: dict[str, int]
+    problems: list[str]
+    notes: list[str]
+    folder: str = ""
+
+    def text(self) -> str:
+        """Plain-text report, one fact per line, for the command line."""
+        lines = [f"run folder: {self.folder}", f"verdict: {'OK' if self.ok else 'NOT OK'}"]
+        lines.append(f"closed: yes, status {self.status}" if self.closed else "closed: no")
+        for name, count in self.records.items():
+            lines.append(f"records in {name}: {count}")
+        lines += [f"problem: {p}" for p in self.problems]
+        lines += [f"note: {n}" for n in self.notes]
+        return "\n".join(lines)
+
+
+def _sequence_findings(seq: np.ndarray, flags: np.ndarray) -> tuple[list[str], list[str]]:
+    """Problems and notes about sample sequence numbers; arrays of shape (n,)."""
+    problems: list[str] = []
+    notes: list[str] = []
+    if seq.size < 2:
+        return problems, notes
+    step = np.diff(seq)
+    flagged = (flags[1:] & FLAG_GAP_BEFORE) != 0
+    odd = step != 1
+    unflagged = np.flatnonzero(odd & ~flagged)
+    if unflagged.size:
+        i = int(unflagged[0]) + 1
+        problems.append(
+            f"samples: {unflagged.size} unflagged break(s) in seq, first at record {i} "
+            f"(seq {int(seq[i - 1])} -> {int(seq[i])}) without FLAG_GAP_BEFORE"
+        )
+    gaps = odd & flagged & (step > 1)
+    if gaps.any():
+        lost = int(np.sum(step[gaps] - 1))
+        notes.append(f"samples: {int(gaps.sum())} flagged gap(s), {lost} sample(s) lost in them")
+    restarts = odd & flagged & (step <= 0)
+    if restarts.any():
+        notes.append(f"samples: seq restarted {int(restarts.sum())} time(s) (flagged)")
+    return problems, notes
+
+
+def verify_run(folder: str | os.PathLike[str]) -> VerifyReport:
+    """Check a run folder and report; never raises RunFormatError.
+
+    Checks: the description and closing are valid; the run was closed; record counts and
+    SHA-256 of every file match ``closing.json``; no torn record or event line; sample
+    ``seq`` increases by 1 except where ``FLAG_GAP_BEFORE`` marks a gap (counted in notes).
+    """
+    where = str(folder)
+    try:
+        info = read_run_info(folder)
+    except RunFormatError as exc:
+        return VerifyReport(False, False, None, {}, [str(exc)], [], where)
+    problems: list[str] = []
+    notes: list[str] = []
+    event_lines: int | None = None
+    try:
+        events, torn_line, torn_line_bytes = _read_events(info.folder / EVENTS_FILE)
+        event_lines = len(events)
+        if torn_line:
+            problems.append(
+                f"{info.folder / EVENTS_FILE}: torn last line ({torn_line_bytes} bytes)"
+            )
+        kinds: dict[str, int] = {}
+        for event in events:
+            kinds[str(event["kind"])] = kinds.get(str(event["kind"]), 0) + 1
+        if kinds:
+            notes.append("events: " + ", ".join(f"{k} {n}" for k, n in sorted(kinds.items())))
+    except RunFormatError as exc:
+        problems.append(str(exc))
+    if info.closing is None:
+        problems.append(f"{info.folder}: not closed (no {CLOSING_FILE}); the recording stopped")
+    else:
+        problems += _closing_problems(info, event_lines, check_hash=True)
+        if info.status != "complete":
+            notes.append(f"closed with status {info.status!r}")
+    for name, extra in info.torn_bytes.items():
+        if extra:
+            problems.append(f"{_stream_path(info, name)}: {extra} bytes of a torn last record")
+    samples = _load_stream(info, "samples", use_memmap=True)
+    seq_problems, seq_notes = _sequence_findings(
+        np.asarray(samples["seq"]), np.asarray(samples["flags"])
+    )
+    problems += seq_problems
+    notes += seq_notes
+    reconnects = int(np.count_nonzero(np.asarray(samples["flags"]) & FLAG_RECONNECT_BEFORE))
+    if reconnects:
+        notes.append(f"samples: {reconnects} reconnection(s) flagged")
+    return VerifyReport(
+        ok=not problems,
+        closed=info.closed,
+        status=info.status,
+        records=dict(info.records),
+        problems=problems,
+        notes=notes,
+        folder=where,
+    )
+
+
+# --------------------------------------------------------------------------- CSV export
