@@ -123,6 +123,10 @@ KEY_HELP: dict[str, dict[str, str]] = {
     },
 }
 
+#: Physical plausibility of the acquisition: far above any displacement transducer's
+#: rate and any UART's speed, low enough that a typo (1e300) is caught.
+MAX_SAMPLE_RATE_HZ = 10e6
+MAX_BAUDRATE = 20_000_000
 _MAX_PROFILE_BYTES = 2**20  # a profile is a page of TOML; more is not a profile
 _ISO_DATE = re.compile(r"^\d{4}-\d{2}-\d{2}$")
 
@@ -328,9 +332,15 @@ class AcquisitionSection:
 
     def __post_init__(self) -> None:
         t = self.TABLE
-        _set(self, "sample_rate_hz", _real(t, "sample_rate_hz", self.sample_rate_hz, above=0.0))
+        rate = _real(t, "sample_rate_hz", self.sample_rate_hz, above=0.0)
+        if rate > MAX_SAMPLE_RATE_HZ:
+            raise _fail(t, "sample_rate_hz", rate, f"must be at most {MAX_SAMPLE_RATE_HZ:g} Hz")
+        _set(self, "sample_rate_hz", rate)
         _text(t, "port", self.port)
-        _set(self, "baudrate", _integer(t, "baudrate", self.baudrate, at_least=1))
+        baud = _integer(t, "baudrate", self.baudrate, at_least=1)
+        if baud > MAX_BAUDRATE:
+            raise _fail(t, "baudrate", baud, f"must be at most {MAX_BAUDRATE} bit/s")
+        _set(self, "baudrate", baud)
         framing = _text(t, "framing", self.framing)
         if framing not in ALLOWED_FRAMINGS:
             allowed = ", ".join(_toml_string(f) for f in ALLOWED_FRAMINGS)
@@ -346,6 +356,8 @@ class AcquisitionSection:
         bits = _integer(t, "data_bits", self.data_bits, at_least=5)
         if bits > 8:
             raise _fail(t, "data_bits", bits, "must be 5, 6, 7 or 8")
+        if bits != 8 and framing != "ascii-lines":
+            raise _fail(t, "data_bits", bits, f"must be 8 with the binary framing {framing!r}")
         _set(self, "data_bits", bits)
         delim = _text(t, "line_delimiter", self.line_delimiter)
         if len(delim) != 1 or not delim.isascii() or delim in "0123456789-\r\n":

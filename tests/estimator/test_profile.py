@@ -6,6 +6,7 @@ import dataclasses
 import math
 import os
 import random
+import re
 import tomllib
 from pathlib import Path
 from typing import Any
@@ -379,3 +380,23 @@ def test_with_updates_replaces_and_revalidates() -> None:
         demo.with_updates(plants=demo.plant)
     with pytest.raises(ProfileError, match="force_bandwidth_hz"):
         demo.with_updates(acquisition=AcquisitionSection(sample_rate_hz=1.5))  # Nyquist 0.75 Hz
+
+
+@pytest.mark.parametrize(
+    ("key", "value", "words"),
+    [
+        # Issue 15: each was accepted. Ranges are common practice for the trade (no
+        # displacement transducer near 10 MHz, no UART near 20 Mbit/s).
+        ("sample_rate_hz", 1e300, "at most 1e+07 Hz"),
+        ("baudrate", 10**26, "at most 20000000 bit/s"),
+        ("data_bits", 7, "must be 8 with the binary framing 'binary-24'"),
+    ],
+)
+def test_implausible_acquisition_values_are_refused_with_the_key(
+    key: str, value: object, words: str
+) -> None:
+    base = default_demo_profile()
+    fields = {"framing": "binary-24"} if key == "data_bits" else {}
+    with pytest.raises(ProfileError, match=re.escape(words)) as err:
+        dataclasses.replace(base.acquisition, **fields, **{key: value})
+    assert key in str(err.value)

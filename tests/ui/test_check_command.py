@@ -27,3 +27,13 @@ def test_check_reports_the_miss_and_the_damping_that_meets_the_overshoot(
 def test_check_passes_a_lax_target(capsys: pytest.CaptureFixture[str]) -> None:
     assert main(["check", "--settling-time-s", "0.05", "--max-overshoot", "0.7"]) == 0
     assert "settling met, overshoot met" in capsys.readouterr().out
+
+
+@pytest.mark.parametrize(
+    ("option", "value"), [("--max-overshoot", "-1"), ("--max-overshoot", "5"), ("--band", "2")]
+)
+def test_fractions_out_of_range_are_refused(option: str, value: str, capsys) -> None:
+    # Issue 15: `--max-overshoot -1` was accepted; a user typing 2 meaning 2 % is told.
+    assert main(["check", "--settling-time-s", "0.1", option, value]) == 1
+    err = capsys.readouterr().err
+    assert f"{option} = {float(value)!r}: a fraction" in err and "means" in err

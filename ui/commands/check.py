@@ -48,6 +48,15 @@ def run(args: argparse.Namespace) -> int:
     )
     from estimator.profile import default_demo_profile, load_profile
 
+    # fractions, not percent: 0.02 is 2 %
+    if not (math.isfinite(args.band) and 0.0 < args.band < 0.5):
+        raise ValueError(f"--band = {args.band!r}: a fraction in (0, 0.5), 0.02 means 2 %")
+    if not (math.isfinite(args.max_overshoot) and 0.0 <= args.max_overshoot < 1.0):
+        raise ValueError(
+            f"--max-overshoot = {args.max_overshoot!r}: a fraction in [0, 1), 0.05 means 5 %"
+        )
+    if not (math.isfinite(args.settling_time_s) and args.settling_time_s > 0):
+        raise ValueError(f"--settling-time-s = {args.settling_time_s!r}: must be > 0 seconds")
     profile = load_profile(args.profile) if args.profile else default_demo_profile()
     plant = profile.plant.plant()
     ts = plant.settling_time_s(args.band)
