@@ -64,6 +64,10 @@ __all__ = [
     "write_truth_csv",
 ]
 
+#: Integration steps one `SimulatedCell.generate` may make (about 2 GB of arrays): beyond,
+#: a mistyped rate or duration (1e12 Hz, 3·10⁵ s) is refused instead of exhausting memory.
+MAX_SIMULATED_STEPS = 50_000_000
+
 TRUTH_HEADER = "# forcelens simulated cell truth (invented data); units: s, N, m"
 
 
@@ -206,6 +210,13 @@ class SimulatedCell:
         if not isinstance(programme, LoadProgramme):
             raise FramingError(f"generate: programme={programme!r} is not a LoadProgramme")
         n = self.n_samples(programme)
+        if n * self.oversample > MAX_SIMULATED_STEPS:
+            raise FramingError(
+                f"generate: {programme.duration_s:g} s at {self.sample_rate_hz:g} Hz is "
+                f"{n} samples ({n * self.oversample} integration steps); the simulated cell "
+                f"makes at most {MAX_SIMULATED_STEPS} steps in one go (shorten the "
+                "programme or lower the rate; --loop repeats a programme)"
+            )
         per_s = self.sample_rate_hz * self.oversample  # sub-steps per second
         h = 1.0 / per_s
         n_sub = (n - 1) * self.oversample

@@ -14,7 +14,7 @@ import scipy.signal
 from daq.binary import BinaryDecoder
 from daq.errors import FramingError, SourceError
 from daq.lines import LineDecoder
-from daq.programme import HalfSine, Hold, LoadProgramme, Ramp, Sine, Table
+from daq.programme import HalfSine, Hold, LoadProgramme, Ramp, Sine, Table, parse_programme
 from daq.samples import concat_blocks, device_status
 from daq.scaling import Scaling
 from daq.serial_source import SerialSource
@@ -344,3 +344,12 @@ def test_pty_cell_framing_and_settings_validation() -> None:
     pty.stop()
     pty.stop()  # idempotent
     assert not os.path.exists(folder)
+
+
+def test_a_run_too_big_for_memory_is_refused_before_any_allocation() -> None:
+    # Issue 15: `simulate --rate 1e12` and a 3·10⁵ s hold ended in MemoryError.
+    huge = SimulatedCell(M_KG, K_N_PER_M, ZETA, 0.0, SCALING, 1e12)
+    with pytest.raises(FramingError, match="at most 50000000 steps"):
+        huge.generate(parse_programme("hold 5 1"))
+    with pytest.raises(FramingError, match=r"300000 s at .*shorten the programme"):
+        make_cell().generate(parse_programme("hold 3e5 1"))
