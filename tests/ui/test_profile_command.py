@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import argparse
 import math
+import re
 from collections.abc import Sequence
 from pathlib import Path
 
@@ -191,3 +192,22 @@ def test_cli_main_with_every_command_module(
     out.write_text("version = 99\n", encoding="utf-8")
     assert ui.cli.main(["profile", "show", str(out)]) == 1
     assert "format" in capsys.readouterr().err
+
+
+@pytest.mark.parametrize(
+    ("option", "value", "words"),
+    [
+        # Issue 15: a ZeroDivisionError and an OverflowError traceback before.
+        ("--volts-per-count", "0", "--volts-per-count = 0.0: must be a finite number > 0"),
+        ("--natural-frequency-hz", "1e200", "below the Nyquist frequency"),
+    ],
+)
+def test_new_refuses_impossible_values_in_one_line(
+    tmp_path: Path, option: str, value: str, words: str
+) -> None:
+    out = tmp_path / "cell.toml"
+    argv = new_args(out, "--natural-frequency-hz", "100")
+    argv += [option, value]
+    with pytest.raises(ValueError, match=re.escape(words)):
+        run(argv)
+    assert not out.exists()

@@ -136,11 +136,15 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     show.set_defaults(run=run_show)
 
 
-def _mass_from_natural_frequency(stiffness_n_per_m: float, natural_freq_hz: float) -> float:
-    """m = k / ωn², from ωn = sqrt(k/m) with ωn = 2π·f (kg)."""
-    if not (math.isfinite(natural_freq_hz) and natural_freq_hz > 0):
+def _mass_from_natural_frequency(
+    stiffness_n_per_m: float, natural_freq_hz: float, sample_rate_hz: float
+) -> float:
+    """m = k / ωn², from ωn = sqrt(k/m) with ωn = 2π·f (kg); f between 1 mHz and Nyquist."""
+    nyquist = sample_rate_hz / 2.0 if math.isfinite(sample_rate_hz) else math.inf
+    if not (math.isfinite(natural_freq_hz) and 1e-3 <= natural_freq_hz < nyquist):
         raise ValueError(
-            f"--natural-frequency-hz = {natural_freq_hz!r}: must be a finite number > 0 (Hz)"
+            f"--natural-frequency-hz = {natural_freq_hz!r}: must be from 0.001 Hz up to "
+            f"below the Nyquist frequency (--sample-rate-hz / 2 = {nyquist:g} Hz)"
         )
     return stiffness_n_per_m / (2.0 * math.pi * natural_freq_hz) ** 2
 
@@ -153,11 +157,13 @@ def run_new(args: argparse.Namespace) -> int:
     if args.mass_kg is not None:
         mass_kg = args.mass_kg
     else:
-        mass_kg = _mass_from_natural_frequency(k, args.natural_frequency_hz)
-    if not (math.isfinite(args.resolution_m) and args.resolution_m > 0):
-        raise ValueError(
-            f"--resolution-m = {args.resolution_m!r}: must be a finite number > 0 (m)"
-        )
+        mass_kg = _mass_from_natural_frequency(k, args.natural_frequency_hz, args.sample_rate_hz)
+    for option, value, unit in (
+        ("--resolution-m", args.resolution_m, "m"),
+        ("--volts-per-count", args.volts_per_count, "V"),
+    ):
+        if not (math.isfinite(value) and value > 0):
+            raise ValueError(f"{option} = {value!r}: must be a finite number > 0 ({unit})")
     profile = CellProfile(
         cell=CellInfo(
             name=args.name if args.name is not None else out.stem,
