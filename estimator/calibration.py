@@ -1213,6 +1213,13 @@ def calibrate_static(
     up = cal.up
     if not np.any(up):
         raise ParameterError("the set has no increasing-force ('up') points to fit")
+    loaded = up & (cal.force_n != 0.0)
+    if not np.any(cal.deflection_m[loaded] != 0.0):
+        raise ParameterError(
+            "the cell did not deflect: every reading under load equals its zero reading, so "
+            "no stiffness can be fitted; check that the transducer reads the cell and that "
+            "the sheet holds its readings"
+        )
     fit = fit_static(cal.force_n[up], cal.deflection_m[up], degree=degree, intercept=intercept)
     iso = evaluate_iso376(cal, fit, resolution_m=res, step_rtol=step_rtol)
     slope = float(np.min(np.abs(fit.sensitivity_m_per_n(fit.force_n))))

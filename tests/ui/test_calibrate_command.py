@@ -53,3 +53,19 @@ def test_masses_need_the_site(tmp_path: Path, capsys: pytest.CaptureFixture[str]
     args = ["calibrate", str(SHEET), "--resolution-m", "1e-7", "--out", str(tmp_path)]
     assert main(args) == 1
     assert "give the site as --latitude" in capsys.readouterr().err
+
+
+def test_a_sheet_whose_readings_never_change_is_refused(tmp_path: Path, capsys) -> None:
+    # Issue 15: all readings equal ended in a ZeroDivisionError traceback.
+    rows = []
+    for line in SHEET.read_text(encoding="utf-8").splitlines():
+        fields = line.split(",")
+        if len(fields) == 5 and fields[0].isdigit():
+            fields[4] = "0.1"
+        rows.append(",".join(fields))
+    flat = tmp_path / "flat.csv"
+    flat.write_text("\n".join(rows) + "\n", encoding="utf-8")
+    argv = ["calibrate", str(flat), "--latitude", "45", "--height-m", "100"]
+    assert main([*argv, "--resolution-m", "1e-7", "--out", str(tmp_path / "cal")]) == 1
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "the cell did not deflect" in err
