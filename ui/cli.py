@@ -24,6 +24,7 @@ COMMAND_MODULES = (
     "verify",
     "report",
     "audit",
+    "impact",
     "runs",
     "export",
     "ports",
@@ -62,6 +63,8 @@ def main(argv: Sequence[str] | None = None) -> int:
     """Entry point of the ``forcelens`` console script; returns the exit status."""
     parser = build_parser()
     args = parser.parse_args(argv)
+    #: the command line as given, for commands that record how they were run
+    args.argv = list(sys.argv[1:] if argv is None else argv)
     if not getattr(args, "run", None):
         parser.print_help()
         return 2
@@ -83,16 +86,10 @@ def main(argv: Sequence[str] | None = None) -> int:
         print(f"forcelens {args.command}: error: {exc}", file=sys.stderr)
         return 1
     except Exception as exc:  # a fault of forcelens: one line, the details in a file
-        from ui.crash import EXIT_CRASH, save_crash_report
+        from ui.crash import EXIT_CRASH, fault_text
 
-        argv_used = list(sys.argv[1:] if argv is None else argv)
-        path = save_crash_report(exc, argv_used, software_version())
-        where = f"details in {path}" if path else "no crash report could be written"
-        print(
-            f"forcelens {args.command}: internal error ({type(exc).__name__}: {exc}); "
-            f"{where}; please report it",
-            file=sys.stderr,
-        )
+        line = fault_text(exc, args.argv, software_version())
+        print(f"forcelens {args.command}: {line}", file=sys.stderr)
         return EXIT_CRASH
 
 

@@ -19,7 +19,7 @@ import traceback
 from collections.abc import Sequence
 from pathlib import Path
 
-__all__ = ["EXIT_CRASH", "crash_folder", "save_crash_report"]
+__all__ = ["EXIT_CRASH", "crash_folder", "fault_text", "save_crash_report"]
 
 EXIT_CRASH = 3  #: exit status of an unexpected failure
 
@@ -60,3 +60,10 @@ def save_crash_report(exc: BaseException, argv: Sequence[str], version: str) -> 
     except OSError:
         return None
     return path
+
+
+def fault_text(exc: BaseException, argv: Sequence[str], version: str) -> str:
+    """Save the report of ``exc`` and return the one line that names it and its file."""
+    path = save_crash_report(exc, argv, version)
+    where = f"details in {path}" if path else "no crash report could be written"
+    return f"internal error ({type(exc).__name__}: {exc}); {where}; please report it"
