@@ -77,6 +77,11 @@ class ForceModels:
         jump_spread: share of the timing-averaged jump covariance added to each timed
             jump model (what a single model would assume), so that an instant between
             the listed ones is still covered.
+        constant_floor: the hold model assumes a constant force and the slowest rate
+            model a constant rate; their intensities then set only their gains (how
+            fast they follow), and their covariances are those of that gain on a
+            constant force or rate (see `floors`). False: every model's covariance is
+            that of its random-walk prior.
     """
 
     q_hold_n2_per_s: float
@@ -90,6 +95,7 @@ class ForceModels:
     start_ratio: float = 0.5
     jump_timing: tuple[float, ...] = (0.02, 0.5, 0.98)
     jump_spread: float = 0.2
+    constant_floor: bool = True
 
     def __post_init__(self) -> None:
         for name in ("q_hold_n2_per_s", "jump_sd_n", "jump_rate_sd_n_per_s", "dwell_s"):
@@ -126,6 +132,28 @@ class ForceModels:
         return 1 + len(self.q_rate_n2_per_s3)
 
     @property
+    def floors(self) -> np.ndarray:
+        """Which models are floor models, shape (count,) bool: the hold model and the
+        slowest rate model when ``constant_floor``.
+
+        A floor model's prior is the deterministic end of its family (a constant force,
+        a force changing at a constant rate); its intensity designs its gain only. Its
+        covariance is propagated through that gain with no process noise, the exact
+        error covariance of a filter whose gain was designed for another noise (Gelb,
+        "Applied Optimal Estimation", 1974, ch. 7, from memory). On a held load a
+        random-walk filter's own covariance is about twice its actual error variance
+        (``K·R`` against ``K·R/(2−K)``: half of it is motion the prior allows and the
+        load never makes); the floor model states the actual one, and how rough the load
+        really is comes from the likelihood, which hands a moving load to the models
+        that expect motion.
+        """
+        f = np.zeros(self.count, dtype=bool)
+        if self.constant_floor:
+            f[0] = True
+            f[1 + int(np.argmin(self.q_rate_n2_per_s3))] = True
+        return f
+
+    @property
     def families(self) -> np.ndarray:
         """FAMILY_* of each model, shape (count,)."""
         rates = [FAMILY_RATE] * len(self.q_rate_n2_per_s3)
@@ -140,6 +168,7 @@ class ForceModels:
         *,
         rates: int = 7,
         rate_scale: float = 1.0,
+        constant_floor: bool = True,
     ) -> ForceModels:
         """The default bank for a cell of natural frequency fn and rated span.
 
@@ -162,6 +191,7 @@ class ForceModels:
             q_rate_n2_per_s3=q_rate,
             jump_sd_n=0.25 * force_span_n,
             jump_rate_sd_n_per_s=1e-2 * force_span_n * fn,
+            constant_floor=constant_floor,
         )
 
     def transitions(self, dt_s: float) -> np.ndarray:

@@ -65,8 +65,9 @@ _JUMP_SUSPECT = 0.05  # posterior of the jump model from one sample that makes i
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
-def _interact_predict(it, PHI, Q, PI, prune, x, P, mu, cbar, x0, P0, w, d, T):
-    """Steps 1 and 2: mixed priors, then each model's prediction, in place in x, P.
+def _interact_predict(it, PHI, Q, QD, PI, prune, floor, x, P, PD, mu, cbar, x0, P0, PD0, w, d, T):
+    """Steps 1 and 2: mixed priors, then each model's prediction, in place in x, P (and
+    PD of the floor models).
 
     A model whose probability is below its ``prune`` entry passes nothing on.
     """
@@ -92,41 +93,62 @@ def _interact_predict(it, PHI, Q, PI, prune, x, P, mu, cbar, x0, P0, w, d, T):
             for i in range(r):
                 s += w[i] * x[i, a]
             x0[j, a] = s
-        for a in range(4):
-            for b in range(a, 4):
-                P0[j, a, b] = 0.0
-        for i in range(r):
-            if w[i] == 0.0:
-                continue
-            for a in range(4):
-                d[a] = x[i, a] - x0[j, a]
-            for a in range(4):
-                for b in range(a, 4):
-                    P0[j, a, b] += w[i] * (P[i, a, b] + d[a] * d[b])
-        for a in range(4):
-            for b in range(a):
-                P0[j, a, b] = P0[j, b, a]
+        _mix_cov(j, w, x, x0, P, PD, floor, False, P0, d)
+        if floor[j]:
+            # the gain's design covariance: the same mixture of the sources' design
+            # covariances (a regular model's is its own)
+            _mix_cov(j, w, x, x0, P, PD, floor, True, PD0, d)
     for j in range(r):
+        _predict_cov(it, j, PHI, Q, P0, P, T)
+        if floor[j]:
+            _predict_cov(it, j, PHI, QD, PD0, PD, T)
         for a in range(4):
             s = 0.0
             for b in range(4):
                 s += PHI[it, j, a, b] * x0[j, b]
             x[j, a] = s
-        for a in range(4):
-            for b in range(4):
-                s = 0.0
-                for c in range(4):
-                    s += PHI[it, j, a, c] * P0[j, c, b]
-                T[a, b] = s
-        for a in range(4):
-            for b in range(a, 4):
-                s = Q[it, j, a, b]
-                for c in range(4):
-                    s += T[a, c] * PHI[it, j, b, c]
-                P[j, a, b] = s
-                P[j, b, a] = s
     for j in range(r):
         mu[j] = cbar[j]
+
+
+@numba.njit(cache=True, nogil=True, inline="always")
+def _mix_cov(j, w, x, x0, P, PD, floor, design, P0, d):
+    """``P0[j] = Σ_i w_i (P_i + (x_i − x0_j)(x_i − x0_j)ᵀ)``; with ``design``, the floor
+    sources contribute their design covariance ``PD_i`` instead of ``P_i``."""
+    r = w.shape[0]
+    for a in range(4):
+        for b in range(a, 4):
+            P0[j, a, b] = 0.0
+    for i in range(r):
+        if w[i] == 0.0:
+            continue
+        src = PD if (design and floor[i]) else P
+        for a in range(4):
+            d[a] = x[i, a] - x0[j, a]
+        for a in range(4):
+            for b in range(a, 4):
+                P0[j, a, b] += w[i] * (src[i, a, b] + d[a] * d[b])
+    for a in range(4):
+        for b in range(a):
+            P0[j, a, b] = P0[j, b, a]
+
+
+@numba.njit(cache=True, nogil=True, inline="always")
+def _predict_cov(it, j, PHI, Q, P0, out, T):
+    """``out[j] = Φ_j P0_j Φ_jᵀ + Q_j``."""
+    for a in range(4):
+        for b in range(4):
+            s = 0.0
+            for c in range(4):
+                s += PHI[it, j, a, c] * P0[j, c, b]
+            T[a, b] = s
+    for a in range(4):
+        for b in range(a, 4):
+            s = Q[it, j, a, b]
+            for c in range(4):
+                s += T[a, c] * PHI[it, j, b, c]
+            out[j, a, b] = s
+            out[j, b, a] = s
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
@@ -153,36 +175,46 @@ def _weigh(z, R, x, P, mu, w):
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
-def _apply(z, R, x, P, mu, w, lmax, total, d, T):
+def _apply(z, R, floor, x, P, PD, mu, w, lmax, total, d, T):
     """Steps 3 and 4 in place from the weights of `_weigh`; returns the log predictive
-    density of ``z``."""
+    density of ``z``. A floor model takes its gain from its design covariance ``PD``
+    (updated as its own Kalman filter) and carries ``P`` through the same gain."""
     r = mu.shape[0]
     for j in range(r):
         mu[j] = w[j] / total
     for j in range(r):
-        s_ = P[j, 0, 0] + R
+        G = PD if floor[j] else P
+        s_ = G[j, 0, 0] + R
         y_ = z - x[j, 0]
         for a in range(4):
-            d[a] = P[j, a, 0] / s_  # gain K
+            d[a] = G[j, a, 0] / s_  # gain K
         for a in range(4):
             x[j, a] += d[a] * y_
-        # Joseph form with H = e1: (I − K e1ᵀ) P (I − K e1ᵀ)ᵀ + K R Kᵀ
-        for a in range(4):
-            for b in range(4):
-                T[a, b] = P[j, a, b] - d[a] * P[j, 0, b]
-        for a in range(4):
-            for b in range(a, 4):
-                v = T[a, b] - T[a, 0] * d[b] + d[a] * R * d[b]
-                P[j, a, b] = v
-                P[j, b, a] = v
+        _joseph(j, P, R, d, T)
+        if floor[j]:
+            _joseph(j, PD, R, d, T)
     return lmax + math.log(total)
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
-def _update(z, R, x, P, mu, w, d, T):
+def _joseph(j, P, R, K, T):
+    """``P_j ← (I − K e1ᵀ) P_j (I − K e1ᵀ)ᵀ + K R Kᵀ``: right for any gain ``K``,
+    symmetric and positive under rounding."""
+    for a in range(4):
+        for b in range(4):
+            T[a, b] = P[j, a, b] - K[a] * P[j, 0, b]
+    for a in range(4):
+        for b in range(a, 4):
+            v = T[a, b] - T[a, 0] * K[b] + K[a] * R * K[b]
+            P[j, a, b] = v
+            P[j, b, a] = v
+
+
+@numba.njit(cache=True, nogil=True, inline="always")
+def _update(z, R, floor, x, P, PD, mu, w, d, T):
     """Steps 3 and 4 in place; returns the log predictive density of ``z``."""
     lmax, total = _weigh(z, R, x, P, mu, w)
-    return _apply(z, R, x, P, mu, w, lmax, total, d, T)
+    return _apply(z, R, floor, x, P, PD, mu, w, lmax, total, d, T)
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
@@ -208,18 +240,18 @@ def _logaddexp(a, b):
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
-def _resolve(la, lb, pend, x, P, mu):
+def _resolve(la, lb, pend, floor, x, P, PD, mu):
     """Decide the pending suspect from the log weights of its branches ("used", "an
     outlier"); merge them into branch 0; True when it was judged an outlier."""
     wa = _decided(1.0 / (1.0 + math.exp(lb - la)))
-    _merge(wa, x[0], P[0], mu[0], x[1], P[1], mu[1])
+    _merge(wa, floor, x[0], P[0], PD[0], mu[0], x[1], P[1], PD[1], mu[1])
     pend[0] = 0.0
     pend[3] = 1.0 if wa >= 0.5 else 0.0  # a change confirmed under way
     return wa < 0.5
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
-def _merge(wa, xa, Pa, mua, xb, Pb, mub):
+def _merge(wa, floor, xa, Pa, PDa, mua, xb, Pb, PDb, mub):
     """Per-model moment matching of branch a (weight wa) and b (1 − wa), into a."""
     r = mua.shape[0]
     wb = 1.0 - wa
@@ -231,16 +263,24 @@ def _merge(wa, xa, Pa, mua, xb, Pb, mub):
             continue
         fa = pa / m
         fb = pb / m
-        for a in range(4):
-            xm = fa * xa[j, a] + fb * xb[j, a]
-            for b in range(4):
-                xmb = fa * xa[j, b] + fb * xb[j, b]
-                Pa[j, a, b] = fa * (Pa[j, a, b] + (xa[j, a] - xm) * (xa[j, b] - xmb)) + fb * (
-                    Pb[j, a, b] + (xb[j, a] - xm) * (xb[j, b] - xmb)
-                )
+        _merge_cov(j, fa, fb, xa, Pa, xb, Pb)
+        if floor[j]:
+            _merge_cov(j, fa, fb, xa, PDa, xb, PDb)
         for a in range(4):
             xa[j, a] = fa * xa[j, a] + fb * xb[j, a]
         mua[j] = m
+
+
+@numba.njit(cache=True, nogil=True, inline="always")
+def _merge_cov(j, fa, fb, xa, Pa, xb, Pb):
+    """``Pa_j`` ← the covariance of the two-component mixture (weights fa, fb)."""
+    for a in range(4):
+        xm = fa * xa[j, a] + fb * xb[j, a]
+        for b in range(4):
+            xmb = fa * xa[j, b] + fb * xb[j, b]
+            Pa[j, a, b] = fa * (Pa[j, a, b] + (xa[j, a] - xm) * (xa[j, b] - xmb)) + fb * (
+                Pb[j, a, b] + (xb[j, a] - xm) * (xb[j, b] - xmb)
+            )
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
@@ -309,7 +349,8 @@ def imm_block(
     z: np.ndarray,  # (n,) measurements (scaled units), NaN when missing
     table: np.ndarray,  # (n,) int: row of the model tables for each step
     PHI: np.ndarray,  # (nt, r, 4, 4) transition of each model
-    Q: np.ndarray,  # (nt, r, 4, 4) process noise of each model
+    Q: np.ndarray,  # (nt, r, 4, 4) process noise of each model's prior
+    QD: np.ndarray,  # (nt, r, 4, 4) process noise a floor model's gain is designed for
     PI: np.ndarray,  # (nt, r, r) mode transition probabilities, rows sum to 1
     R: float,  # measurement variance (scaled units²)
     gate2: float,  # squared gate for a suspect sample
@@ -320,8 +361,10 @@ def imm_block(
     tail: float,  # the least probable models, up to this total, are not shown either
     jump: int,  # index of the first jump model (the jump models are the last ones; their
     #             taking over makes a sample suspect), or -1
+    floor: np.ndarray,  # (r,) bool: models whose gain comes from QD (see the module notes)
     x: np.ndarray,  # (2, r, 4) posterior states: branch "used", branch "outlier"
     P: np.ndarray,  # (2, r, 4, 4) posterior covariances of both branches
+    PD: np.ndarray,  # (2, r, 4, 4) design covariances of the floor models (others unused)
     mu: np.ndarray,  # (2, r) mode probabilities of both branches
     pend: np.ndarray,  # (4,) suspect pending 0/1, its log density used and as outlier,
     #                    1 while a change is confirmed under way
@@ -342,6 +385,7 @@ def imm_block(
     keep_log = log_x.shape[0] > 0
     x0 = np.empty((r, 4))
     P0 = np.empty((r, 4, 4))
+    PD0 = np.empty((r, 4, 4))
     cbar = np.empty(r)
     w = np.empty(r)
     d = np.empty(4)
@@ -349,8 +393,8 @@ def imm_block(
     lj = np.empty(r)
     ca = np.empty(r)
     cb = np.empty(r)
-    xa, Pa, mua = x[0], P[0], mu[0]
-    xb, Pb, mub = x[1], P[1], mu[1]
+    xa, Pa, PDa, mua = x[0], P[0], PD[0], mu[0]
+    xb, Pb, PDb, mub = x[1], P[1], PD[1], mu[1]
     log_eps = math.log(outlier_prob)
     log_1m_eps = math.log1p(-outlier_prob)
     rejected = 0
@@ -359,9 +403,13 @@ def imm_block(
         zk = z[k]
         flag = 0
         pending = pend[0] != 0.0
-        _interact_predict(it, PHI, Q, PI, prune, xa, Pa, mua, cbar, x0, P0, w, d, T)
+        _interact_predict(
+            it, PHI, Q, QD, PI, prune, floor, xa, Pa, PDa, mua, cbar, x0, P0, PD0, w, d, T
+        )
         if pending:
-            _interact_predict(it, PHI, Q, PI, prune, xb, Pb, mub, cbar, x0, P0, w, d, T)
+            _interact_predict(
+                it, PHI, Q, QD, PI, prune, floor, xb, Pb, PDb, mub, cbar, x0, P0, PD0, w, d, T
+            )
         # prediction of the measurement (branch "used" only: the suspect is undecided)
         # (models below ``prune`` left out, as in the reported mixture)
         zhat = 0.0
@@ -389,7 +437,7 @@ def imm_block(
             flag |= FLAG_OUT_UNUSED
             out_ll[k] = 0.0
             # nothing to decide a pending suspect with: weigh by the suspect alone
-            if pending and _resolve(log_1m_eps + pend[1], log_eps + pend[2], pend, x, P, mu):
+            if pending and _resolve(log_1m_eps + pend[1], log_eps + pend[2], pend, floor, x, P, PD, mu):
                 rejected += 1
                 flag |= FLAG_OUT_REJECTED_BEFORE
         else:
@@ -397,12 +445,12 @@ def imm_block(
                 # weigh "suspect used" against "suspect an outlier" by both samples;
                 # the two samples' joint log density, less the suspect's own (entered
                 # on its row), is this row's share of the likelihood
-                la = log_1m_eps + pend[1] + _update(zk, R, xa, Pa, mua, lj, d, T)
-                lb = log_eps + pend[2] + _update(zk, R, xb, Pb, mub, lj, d, T)
+                la = log_1m_eps + pend[1] + _update(zk, R, floor, xa, Pa, PDa, mua, lj, d, T)
+                lb = log_eps + pend[2] + _update(zk, R, floor, xb, Pb, PDb, mub, lj, d, T)
                 out_ll[k] = _logaddexp(la, lb) - _logaddexp(
                     log_1m_eps + pend[1], log_eps + pend[2]
                 )
-                if _resolve(la, lb, pend, x, P, mu):
+                if _resolve(la, lb, pend, floor, x, P, PD, mu):
                     rejected += 1
                     flag |= FLAG_OUT_REJECTED_BEFORE
             else:
@@ -426,15 +474,16 @@ def imm_block(
                             xb[j, a] = xa[j, a]
                             for b in range(4):
                                 Pb[j, a, b] = Pa[j, a, b]
+                                PDb[j, a, b] = PDa[j, a, b]
                     so2 = outlier_sd * outlier_sd + smix
                     yo = zk - zhat
                     pend[2] = -0.5 * (_LOG_2PI + math.log(so2) + yo * yo / so2)
-                    pend[1] = _apply(zk, R, xa, Pa, mua, lj, lmax, total, d, T)
+                    pend[1] = _apply(zk, R, floor, xa, Pa, PDa, mua, lj, lmax, total, d, T)
                     pend[0] = 1.0
                     flag |= FLAG_OUT_SUSPECT
                     out_ll[k] = _logaddexp(log_1m_eps + pend[1], log_eps + pend[2])
                 else:
-                    out_ll[k] = _apply(zk, R, xa, Pa, mua, lj, lmax, total, d, T)
+                    out_ll[k] = _apply(zk, R, floor, xa, Pa, PDa, mua, lj, lmax, total, d, T)
                     pend[3] = 0.0
         if pend[0] != 0.0:
             # a suspect row: both branches, weighed by what is known so far. When the

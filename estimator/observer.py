@@ -135,20 +135,22 @@ class ObserverTuning:
             as uniform and uses the nominal model.
         initial_force_sigma_n: prior standard deviation of the force at start-up (N);
             default: the rated range given to the observer.
+        constant_floor: see `ForceModels.constant_floor` (default bank only).
         models: the bank of force priors; default `ForceModels.for_cell`.
     """
 
-    force_bandwidth_hz: float = 1.0
+    force_bandwidth_hz: float = 5.0
     process_noise_n2_per_s: float | None = None
     gate_sigma: float = 5.0
     outlier_probability: float = 1e-3
     outlier_spread: float = 100.0
     rate_scale: float = 1.0
-    prune: float = 1e-3
+    prune: float = 1e-2
     jump_prune: float = 0.05
     shown_tail: float = 0.02
     timing_tolerance: float = 0.01
     initial_force_sigma_n: float | None = None
+    constant_floor: bool = True
     models: ForceModels | None = None
 
     def __post_init__(self) -> None:
@@ -213,6 +215,7 @@ class _State:
 
     x: np.ndarray  # (2, r, 4)
     P: np.ndarray  # (2, r, 4, 4)
+    PD: np.ndarray  # (2, r, 4, 4) design covariances of the floor models
     mu: np.ndarray  # (2, r)
     pend: np.ndarray = field(default_factory=lambda: np.zeros(4))
     t_last: float | None = None
@@ -271,7 +274,11 @@ class ForceObserver:
         self.force_span_n = float(span)
         #: the bank of force priors in use
         self.models = self.tuning.models or ForceModels.for_cell(
-            plant, span, q_hold, rate_scale=self.tuning.rate_scale
+            plant,
+            span,
+            q_hold,
+            rate_scale=self.tuning.rate_scale,
+            constant_floor=self.tuning.constant_floor,
         )
         self._families = self.models.families
         # the jump model is broad: below `jump_prune` it passes nothing on (see ObserverTuning)
@@ -281,7 +288,9 @@ class ForceObserver:
         )  # fmt: skip
         self._D = scaling(plant)
         self._tables: dict[float, int] = {}
+        self._floors = self.models.floors
         self._phi, self._q, self._pi = model_tables(plant, self.models, np.array([self.dt_s]))
+        self._q_prior = self._prior(self._q)
         self._tables[self.dt_s] = 0
         self.counters = _Counters()
         #: When True, `process` keeps every sample's per-model posteriors and the
@@ -315,7 +324,9 @@ class ForceObserver:
     def reset(self) -> None:
         """Forget every sample: the next one starts the observer afresh."""
         r = self.models.count
-        self._state = _State(np.zeros((2, r, 4)), np.zeros((2, r, 4, 4)), np.zeros((2, r)))
+        self._state = _State(
+            np.zeros((2, r, 4)), np.zeros((2, r, 4, 4)), np.zeros((2, r, 4, 4)), np.zeros((2, r))
+        )
         self.counters = _Counters()
         self.log = []
         #: Σ log predictive density of the samples used so far (nats): the innovation
@@ -331,6 +342,7 @@ class ForceObserver:
         st.x[:] = np.array([f0, 0.0, f0, 0.0])
         # x̃ known to the noise; ṽ of the energy of a span-sized force; Ḟ/ωn one span
         st.P[:] = np.diag([k * k * self.R, s * s, s * s, s * s])
+        st.PD[:] = st.P
         st.mu[:] = 0.0
         st.mu[:, 0] = 0.5
         n_reg = self.models.regular
@@ -415,6 +427,7 @@ class ForceObserver:
             k * z,
             table,
             self._phi,
+            self._q_prior,
             self._q,
             self._pi,
             k * k * self.R,
@@ -424,8 +437,10 @@ class ForceObserver:
             self._prune,
             tun.shown_tail,
             self.models.regular if self.models.count > self.models.regular else -1,
+            self._floors,
             st.x,
             st.P,
+            st.PD,
             st.mu,
             st.pend,
             ox,
@@ -495,14 +510,20 @@ class ForceObserver:
                 row = self._phi.shape[0]
                 self._phi = np.concatenate([self._phi, phi])
                 self._q = np.concatenate([self._q, q])
+                self._q_prior = np.concatenate([self._q_prior, self._prior(q)])
                 self._pi = np.concatenate([self._pi, pi])
                 self._tables[key] = row
             rows[i] = row
         return rows
 
+    def _prior(self, q: np.ndarray) -> np.ndarray:
+        """The priors' process noise from the gains' (``q``): none for the floor models."""
+        return np.where(self._floors[None, :, None, None], 0.0, q)
+
     def _drop_tables(self) -> None:
         """Keep only the nominal step's tables (bounded memory under jittery clocks)."""
         self._phi, self._q, self._pi = self._phi[:1], self._q[:1], self._pi[:1]
+        self._q_prior = self._q_prior[:1]
         self._tables = {self.dt_s: 0}
 
     def _raise_bad_times(self, t: np.ndarray, dt: np.ndarray, t_before: float) -> None:

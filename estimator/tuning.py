@@ -123,8 +123,14 @@ def fit_observer(
 
     def loglik(p: tuple[float, ...]) -> float:
         noise = noise_m * p[2] if len(p) > 2 else noise_m
+        # the hold model as a random walk: its intensity is then the roughness of the
+        # held load the record shows, which the observer's floor model takes as the
+        # intensity its gain is designed for (ForceModels.floors)
         tuning = ObserverTuning(
-            process_noise_n2_per_s=p[0], rate_scale=p[1], gate_sigma=gate_sigma
+            process_noise_n2_per_s=p[0],
+            rate_scale=p[1],
+            gate_sigma=gate_sigma,
+            constant_floor=False,
         )
         obs = ForceObserver(plant, sample_period_s, noise, resolution_m, tuning, force_range_n)
         obs.process(t, z)

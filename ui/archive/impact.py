@@ -53,36 +53,52 @@ PAIRING_S = 0.25
 
 @dataclass(frozen=True)
 class Tolerance:
-    """The largest difference accepted instead of U: ``value`` N, or a fraction of the
-    old value when ``relative`` (``text`` as the user wrote it)."""
+    """The largest difference accepted instead of U: ``fraction`` of the old value plus
+    ``absolute_n`` N (``text`` as the user wrote it)."""
 
-    value: float
-    relative: bool
+    fraction: float
+    absolute_n: float
     text: str
+
+    @property
+    def relative(self) -> bool:
+        """True when the limit depends on the value."""
+        return self.fraction > 0
 
     def limit_n(self, old_n: float) -> float:
         """The limit for a value ``old_n``, N."""
-        return self.value * abs(old_n) if self.relative else self.value
+        return self.fraction * abs(old_n) + self.absolute_n
 
 
 def parse_tolerance(text: str) -> Tolerance:
-    """``0.05`` or ``0.05N`` (newtons) or ``0.1%`` (of each old value).
+    """``0.05`` or ``0.05N`` (newtons), ``0.1%`` (of each old value), or both added as
+    ``0.1%+0.005N`` (a share of the reading with a floor for readings near zero).
 
-    Raises ValueError naming the option for anything else, or a value not > 0.
+    Raises ValueError naming the option for anything else, or a part not > 0.
     """
-    raw = text.strip()
-    relative = raw.endswith("%")
-    number = raw[:-1] if relative else raw.removesuffix("N").removesuffix("n")
-    try:
-        value = float(number)
-    except ValueError:
-        value = math.nan
-    if not (math.isfinite(value) and value > 0):
+    fraction = absolute = 0.0
+    parts = [p.strip() for p in text.split("+")]
+    ok = 1 <= len(parts) <= 2
+    for part in parts if ok else []:
+        relative = part.endswith("%")
+        number = part[:-1] if relative else part.removesuffix("N").removesuffix("n")
+        try:
+            value = float(number)
+        except ValueError:
+            value = math.nan
+        if not (math.isfinite(value) and value > 0) or (fraction if relative else absolute):
+            ok = False
+            break
+        if relative:
+            fraction = value / 100.0
+        else:
+            absolute = value
+    if not ok:
         raise ValueError(
-            f"--tolerance {text!r}: give a force in N (0.05 or 0.05N) or a share of each "
-            "reading (0.1%), > 0"
+            f"--tolerance {text!r}: give a force in N (0.05 or 0.05N), a share of each "
+            "value (0.1%), or both added (0.1%+0.005N); each > 0"
         )
-    return Tolerance(value / 100.0 if relative else value, relative, raw)
+    return Tolerance(fraction, absolute, text.strip())
 
 
 @dataclass(frozen=True)

@@ -105,9 +105,10 @@ class Assessment:
         """What the differences are compared with."""
         if self.tolerance is None:
             return "U (k = 2) of each old value"
-        return f"the tolerance {self.tolerance.text}" + (
-            " of each old value" if self.tolerance.relative else ""
-        )
+        tol = self.tolerance
+        parts = [f"{100 * tol.fraction:g} % of each old value"] if tol.fraction else []
+        parts += [f"{tol.absolute_n:g} N"] if tol.absolute_n else []
+        return f"the tolerance {' + '.join(parts)} ({tol.text})"
 
     def summary(self) -> str:
         """The terminal summary: runs, readings, changes, how many exceed, the worst."""

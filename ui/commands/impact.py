@@ -53,8 +53,9 @@ def register(subparsers: Any) -> None:
     p.add_argument(
         "--tolerance",
         metavar="T",
-        help="flag differences above T instead of U (k = 2): a force (0.05 or 0.05N) or a "
-        "share of each old value (0.1%%)",
+        help="flag differences above T instead of U (k = 2): a force (0.05 or 0.05N), a "
+        "share of each old value (0.1%%), or both added (0.1%%+0.005N: a share with a floor "
+        "for values near zero)",
     )
     p.add_argument(
         "--out",
