@@ -437,7 +437,9 @@ def imm_block(
             flag |= FLAG_OUT_UNUSED
             out_ll[k] = 0.0
             # nothing to decide a pending suspect with: weigh by the suspect alone
-            if pending and _resolve(log_1m_eps + pend[1], log_eps + pend[2], pend, floor, x, P, PD, mu):
+            if pending and _resolve(
+                log_1m_eps + pend[1], log_eps + pend[2], pend, floor, x, P, PD, mu
+            ):
                 rejected += 1
                 flag |= FLAG_OUT_REJECTED_BEFORE
         else:

@@ -402,10 +402,12 @@ class AcquisitionSection:
 class ObserverSection:
     """Observer tuning.
 
-    ``force_bandwidth_hz`` sets the intensity of the observer's hold model (a random
-    walk); ``process_noise_n2_per_s``, when given, sets it directly and overrides the
-    bandwidth. ``rate_scale`` multiplies the intensities of its rate models (1: the
-    bank derived from the cell's natural frequency and range; `forcelens tune` fits it).
+    ``force_bandwidth_hz`` sets the random-walk intensity the observer's hold model
+    designs its gain for (the model itself assumes a constant force: the bandwidth sets
+    how fast a held reading follows, not what its σ means); ``process_noise_n2_per_s``,
+    when given, sets it directly and overrides the bandwidth. ``rate_scale`` multiplies
+    the intensities of its rate models (1: the bank derived from the cell's natural
+    frequency and range; `forcelens tune` fits it).
     """
 
     TABLE: ClassVar[str] = "observer"

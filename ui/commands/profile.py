@@ -105,7 +105,8 @@ def register(subparsers: argparse._SubParsersAction) -> None:
         type=float,
         default=ObserverSection().force_bandwidth_hz,
         metavar="HZ",
-        help="force bandwidth of the observer, Hz (default %(default)g)",
+        help="bandwidth of the observer's hold model (how fast a held reading follows), Hz "
+        "(default %(default)g)",
     )
     new.add_argument(
         "--volts-per-count",
