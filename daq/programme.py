@@ -28,8 +28,9 @@ keyword and its numbers separated by spaces; ``#`` starts a comment to the end o
 for example ``"hold 0.3 0; hold 0.5 20; ramp 0.4 60; hold 0.5 60; sine 1 30 5 8;
 halfsine 0.3 40 0.005; hold 0.4 0"``.
 
-CSV programmes (`load_programme_csv`): a header line ``time_s,force_n`` then one point a
-line; lines starting with ``#`` and blank lines are ignored; the first time must be 0.
+CSV programmes (`load_programme_csv`): a header naming ``time_s`` and ``force_n`` (units in
+brackets allowed, other columns ignored) then one point a line; lines starting with ``#``
+and blank lines are ignored; the first time must be 0.
 """
 
 from __future__ import annotations
@@ -323,49 +324,64 @@ def parse_programme(spec: str) -> LoadProgramme:
 
 
 def load_programme_csv(path: str | Path) -> LoadProgramme:
-    """Read a ``time_s,force_n`` CSV into a one-`Table` programme; errors name file/line/column."""
+    """Read a CSV with ``time_s`` and ``force_n`` columns into a one-`Table` programme.
+
+    Any file in the dialects of docs/csv-files.md: a byte-order mark, ``\\r\\n``, ``;``
+    separators, names in any case with a bracketed unit (``force_n [N]``), other columns
+    ignored; so a ``truth.csv`` or an estimates CSV forcelens wrote is a programme too.
+    Errors name the file, the line and the column.
+    """
+    from daq.csv_dialect import split_column_header
+
     p = Path(path)
     try:
-        text = p.read_text(encoding="utf-8")
+        text = p.read_text(encoding="utf-8-sig")
     except (OSError, UnicodeDecodeError) as exc:
         raise FramingError(f"{p}: cannot read programme CSV ({exc}); check the path") from None
     times: list[float] = []
     forces: list[float] = []
-    header_seen = False
-    for lineno, row in enumerate(csv.reader(text.splitlines()), start=1):
-        cells = [c.strip() for c in row]
-        if not cells or all(c == "" for c in cells) or cells[0].startswith("#"):
+    where: tuple[int, int] | None = None  # columns of time_s and force_n
+    width = 0
+    sep = ","
+    for lineno, line in enumerate(text.splitlines(), start=1):
+        if not line.strip() or line.lstrip().startswith("#"):
             continue
-        if not header_seen:
-            if cells != ["time_s", "force_n"]:
+        if where is None:
+            sep = "," if "," in line or ";" not in line else ";"
+            names = [split_column_header(c)[0] for c in next(csv.reader([line], delimiter=sep))]
+            if "time_s" not in names or "force_n" not in names:
                 raise FramingError(
-                    f"{p}:{lineno}: header is {','.join(cells)!r}; the first line must be "
-                    "'time_s,force_n'"
+                    f"{p}:{lineno}: header is {line.strip()!r}; it must name the columns "
+                    "time_s and force_n (e.g. 'time_s,force_n')"
                 )
-            header_seen = True
+            where, width = (names.index("time_s"), names.index("force_n")), len(names)
             continue
-        if len(cells) != 2:
+        cells = [c.strip() for c in next(csv.reader([line], delimiter=sep))]
+        if len(cells) != width:
             raise FramingError(
-                f"{p}:{lineno}: {len(cells)} column(s); each row needs time_s,force_n"
+                f"{p}:{lineno}: {len(cells)} column(s); the header has {width} "
+                "(each row needs time_s and force_n)"
             )
-        for col, (name, cell, dest) in enumerate(
-            (("time_s", cells[0], times), ("force_n", cells[1], forces)), start=1
+        for (col, name), dest in zip(
+            ((where[0], "time_s"), (where[1], "force_n")), (times, forces), strict=True
         ):
             try:
-                v = float(cell)
+                v = float(cells[col])
             except ValueError:
                 v = math.nan
             if not math.isfinite(v):
                 raise FramingError(
-                    f"{p}:{lineno}: column {col} ({name}) = {cell!r} is not a finite number"
+                    f"{p}:{lineno}: column {col + 1} ({name}) = {cells[col]!r} is not a "
+                    "finite number"
                 )
             dest.append(v)
         if len(times) >= 2 and times[-1] <= times[-2]:
             raise FramingError(
-                f"{p}:{lineno}: column 1 (time_s) = {times[-1]!r} does not increase on the "
-                f"previous row ({times[-2]!r}); sort the rows and remove duplicates"
+                f"{p}:{lineno}: column {where[0] + 1} (time_s) = {times[-1]!r} does not "
+                f"increase on the previous row ({times[-2]!r}); sort the rows and remove "
+                "duplicates"
             )
-    if not header_seen:
+    if where is None:
         raise FramingError(f"{p}: no header; the first line must be 'time_s,force_n'")
     try:
         return LoadProgramme((Table(np.array(times), np.array(forces)),))

@@ -1,16 +1,18 @@
-"""One stream of a run as CSV with exact numbers: `export_run_csv`."""
+"""One stream of a run as CSV with exact numbers (`export_run_csv`), in the one dialect
+of `daq.csv_dialect`, and the run's facts every export states (`export_metadata`)."""
 
 from __future__ import annotations
 
-import contextlib
 import os
-import tempfile
-from pathlib import Path
+from collections.abc import Callable
 
 import numpy as np
 
-from daq.errors import RunFormatError, SourceError
+from daq.csv_dialect import column_header, write_csv_table
+from daq.errors import RunFormatError
 from daq.runs.reader import RunData
+
+__all__ = ["csv_column_name", "export_metadata", "export_run_csv", "stream_of"]
 
 
 def csv_column_name(field: str, unit: str) -> str:
@@ -18,55 +20,61 @@ def csv_column_name(field: str, unit: str) -> str:
 
     E.g. ``device_time_s [s]``, ``counts [count]``, ``seq [1]`` (``1``: a pure number).
     """
-    return f"{field} [{unit}]"
+    return column_header(field, unit)
 
 
-def _column_text(values: np.ndarray) -> list[str]:
-    """Text of one column; floats with repr (shortest exact), integers and bools as ints."""
-    if values.dtype.kind == "f":
-        return [repr(v) for v in values.astype(np.float64).tolist()]
-    return [str(int(v)) for v in values.tolist()]
+def stream_of(run: RunData, stream: str) -> tuple[np.ndarray, dict[str, str]]:
+    """The records of ``stream`` and the unit of each field.
 
-
-def export_run_csv(run: RunData, path: str | os.PathLike[str], *, stream: str = "samples") -> int:
-    """Write one stream of ``run`` to ``path`` as CSV; return the number of data rows.
-
-    The file starts with ``#`` comment lines (run id, start, cell, software version,
-    closed status, stream), then a header with one column per field named by
-    :func:`csv_column_name`, then one row per record. Floats are written with
-    :func:`repr`, so ``float(text)`` gives back the exact stored value (``nan``,
-    ``inf`` included). The file is written to a temporary name and renamed.
+    Raises:
+        RunFormatError: the run has no such stream.
     """
     if stream not in run.streams:
         raise RunFormatError(
             f"stream {stream!r} is not in run {run.run_id}; streams: {', '.join(run.streams)}"
         )
-    data = run.streams[stream]
-    units = run.description["streams"][stream]["units"]
-    names = list(data.dtype.names or ())
+    return run.streams[stream], dict(run.description["streams"][stream]["units"])
+
+
+def export_metadata(run: RunData, stream: str) -> dict[str, str]:
+    """What every export of ``run`` states about it, as text: run id, start, cell, the
+    software and library versions it was recorded with, whether it was closed, the stream."""
+    d = run.description
     closed = f"yes, status {run.status}" if run.closed else "no (the recording did not finish)"
-    head = [
-        f"# forcelens run {run.run_id}",
-        f"# started_utc: {run.description['started_utc']}",
-        f"# cell: {run.description['cell_name']}",
-        f"# software_version: {run.description['software_version']}",
-        f"# closed: {closed}",
-        f"# stream: {stream}",
-        ",".join(csv_column_name(n, units[n]) for n in names),
-    ]
-    target = Path(path)
-    fd, tmp_name = tempfile.mkstemp(dir=target.parent, prefix=f".{target.name}.", suffix=".tmp")
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as handle:
-            handle.write("\n".join(line.replace("\n", " ") for line in head) + "\n")
-            chunk = 65536
-            for start in range(0, data.shape[0], chunk):
-                part = data[start : start + chunk]
-                columns = [_column_text(np.asarray(part[n])) for n in names]
-                handle.writelines(",".join(row) + "\n" for row in zip(*columns, strict=True))
-        os.replace(tmp_name, target)
-    except OSError as exc:
-        with contextlib.suppress(FileNotFoundError):
-            os.unlink(tmp_name)
-        raise SourceError(f"{target}: cannot write the CSV export ({exc})") from exc
-    return int(data.shape[0])
+    meta = {
+        "run_id": str(d["run_id"]),
+        "started_utc": str(d["started_utc"]),
+        "cell": str(d["cell_name"]),
+        "software_version": str(d["software_version"]),
+    }
+    for name, version in (d.get("libraries") or {}).items():
+        meta[f"{name}_version"] = str(version)
+    meta["closed"] = closed
+    meta["stream"] = stream
+    return meta
+
+
+def export_run_csv(
+    run: RunData,
+    path: str | os.PathLike[str],
+    *,
+    stream: str = "samples",
+    progress: Callable[[int], None] | None = None,
+) -> int:
+    """Write one stream of ``run`` to ``path`` as CSV; return the number of data rows.
+
+    The file is in forcelens's CSV dialect (docs/csv-files.md): ``# forcelens run ID``
+    and ``# key: value`` lines from `export_metadata`, then a header with one column
+    per field named by :func:`csv_column_name`, then one row per record. Floats are
+    written with :func:`repr`, so ``float(text)`` gives back the exact stored value
+    (``nan``, ``inf`` included). The file is written to a temporary name and renamed.
+    """
+    data, units = stream_of(run, stream)
+    names = list(data.dtype.names or ())
+    return write_csv_table(
+        path,
+        title=f"run {run.run_id}",
+        metadata={k: v for k, v in export_metadata(run, stream).items() if k != "run_id"},
+        columns=[(n, units[n], data[n]) for n in names],
+        progress=progress,
+    )

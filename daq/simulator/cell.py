@@ -23,13 +23,13 @@ from __future__ import annotations
 import math
 import os
 from dataclasses import dataclass
-from pathlib import Path
 
 import numpy as np
 import scipy.linalg
 import scipy.signal
 
-from daq.errors import FramingError, SourceError
+from daq.csv_dialect import write_csv_table
+from daq.errors import FramingError
 from daq.lines import encode_lines
 from daq.programme import LoadProgramme
 from daq.scaling import Scaling
@@ -38,7 +38,9 @@ from daq.scaling import Scaling
 #: a mistyped rate or duration (1e12 Hz, 3·10⁵ s) is refused instead of exhausting memory.
 MAX_SIMULATED_STEPS = 50_000_000
 
-TRUTH_HEADER = "# forcelens simulated cell truth (invented data); units: s, N, m"
+TRUTH_TITLE = "simulated cell truth (invented data)"
+#: First line of a truth CSV file.
+TRUTH_HEADER = f"# forcelens {TRUTH_TITLE}"
 
 
 @dataclass(frozen=True, eq=False)
@@ -238,19 +240,14 @@ def lines(run: SimulatedRun, start: int = 0, stop: int | None = None) -> bytes:
 
 
 def write_truth_csv(run: SimulatedRun, path: str | os.PathLike[str]) -> None:
-    """Write ``time_s,force_n,displacement_m`` of `run` to `path` with a comment header."""
-    p = Path(path)
-    table = np.column_stack([run.time_s, run.true_force_n, run.true_displacement_m])
-    tmp = p.with_name(f".{p.name}.part")
-    try:
-        with tmp.open("w", encoding="utf-8", newline="\n") as fh:
-            fh.write(TRUTH_HEADER + "\n")
-            fh.write("time_s,force_n,displacement_m\n")
-            # repr gives the shortest text that reads back to the same float.
-            fh.writelines(f"{t!r},{f!r},{x!r}\n" for t, f, x in table.tolist())
-        os.replace(tmp, p)  # a reader sees the old file or the whole new one
-    except OSError as exc:
-        tmp.unlink(missing_ok=True)
-        raise SourceError(
-            f"{p}: cannot write truth CSV ({exc}); check the folder exists"
-        ) from None
+    """Write ``time_s [s], force_n [N], displacement_m [m]`` of `run` to `path` in
+    forcelens's CSV dialect (`daq.csv_dialect`), below the `TRUTH_HEADER` line."""
+    write_csv_table(
+        path,
+        title=TRUTH_TITLE,
+        columns=[
+            ("time_s", "s", run.time_s),
+            ("force_n", "N", run.true_force_n),
+            ("displacement_m", "m", run.true_displacement_m),
+        ],
+    )

@@ -177,7 +177,7 @@ def test_truth_csv(tmp_path: Path) -> None:
     write_truth_csv(run, path)
     text = path.read_text().splitlines()
     assert text[0] == TRUTH_HEADER
-    assert text[1] == "time_s,force_n,displacement_m"
+    assert text[1] == "time_s [s],force_n [N],displacement_m [m]"
     table = np.loadtxt(path, delimiter=",", skiprows=2)
     np.testing.assert_array_equal(table[:, 0], run.time_s)  # repr round-trips exactly
     np.testing.assert_array_equal(table[:, 1], run.true_force_n)

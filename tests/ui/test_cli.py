@@ -49,17 +49,19 @@ def test_replay_csv_matches_the_observer_and_names_bad_rows(tmp_path: Path, caps
     out = tmp_path / "out.csv"
     assert main(["replay", str(src), "--profile", str(prof_path), "--out", str(out)]) == 0
     with open(out) as fh:
-        rows = list(csv.DictReader(fh))
+        rows = list(csv.DictReader(line for line in fh if not line.startswith("#")))
     assert list(rows[0]) == [
-        "time_s", "force_N", "force_u_N", "displacement_m", "velocity_m_s", "nis", "flags",
-        "p_hold", "p_rate", "p_jump",
+        "time_s [s]", "force_n [N]", "force_u_n [N]", "displacement_m [m]",
+        "velocity_m_s [m/s]", "innovation_m [m]", "nis [1]", "flags [1]",
+        "p_hold [1]", "p_rate [1]", "p_jump [1]",
     ]  # fmt: skip
-    force = np.array([float(r["force_N"]) for r in rows])
+    force = np.array([float(r["force_n [N]"]) for r in rows])
     direct = ForceObserver.from_profile(profile).process(run.time_s, x_m * 1e3 * 1e-3)
-    np.testing.assert_allclose(force, direct["force_n"], rtol=1e-8, atol=1e-8)  # 9 digits
+    # Python's float() on the written text gives the computed doubles exactly (repr)
+    np.testing.assert_array_equal(force, direct["force_n"])
     assert abs(force[-1] - 30.0) < 0.1  # applied 30 N (invented programme)
     # the model probabilities sum to 1 (to the file's 4 digits) and a held load ends on hold
-    p = np.array([[float(r[c]) for c in ("p_hold", "p_rate", "p_jump")] for r in rows])
+    p = np.array([[float(r[f"{c} [1]"]) for c in ("p_hold", "p_rate", "p_jump")] for r in rows])
     np.testing.assert_allclose(p.sum(axis=1), 1.0, atol=2e-3)
     assert p[-1, 0] > 0.5
 
@@ -88,8 +90,8 @@ def test_replay_smooth_runs(tmp_path: Path) -> None:
     assert (
         main(["replay", str(src), "--profile", str(prof_path), "--out", str(out), "--smooth"]) == 0
     )
-    data = np.genfromtxt(out, delimiter=",", names=True)
-    assert abs(np.mean(data["force_N"][500:]) - 20.0) < 0.01  # k·x = 4e5 · 5e-5 N
+    data = np.genfromtxt(out, delimiter=",", names=True, comments="#", skip_header=6)
+    assert abs(np.mean(data["force_n_N"][500:]) - 20.0) < 0.01  # k·x = 4e5 · 5e-5 N
 
 
 def test_demo_end_to_end(tmp_path: Path, capsys, monkeypatch) -> None:

@@ -40,12 +40,13 @@ def test_simulate_serves_every_sample_to_a_serial_client(tmp_path: Path) -> None
     got = concat_blocks(blocks)
     # 0.3 s at the demo profile's 2 kHz: 600 samples, all of them, in order.
     np.testing.assert_array_equal(got["seq"], np.arange(600))
-    ref = np.genfromtxt(truth, delimiter=",", names=True, skip_header=1)  # after the comment
+    # after the comment; NumPy names 'displacement_m [m]' displacement_m_m
+    ref = np.genfromtxt(truth, delimiter=",", names=True, skip_header=1)
     assert ref.size == 600
     # Received displacement = truth + transducer noise (50 nm, 1σ) + quantisation.
-    err = got["displacement_m"] - ref["displacement_m"]
+    err = got["displacement_m"] - ref["displacement_m_m"]
     assert np.std(err) < 2 * tr.noise_m and abs(np.mean(err)) < tr.noise_m
-    assert abs(ref["force_n"][-1] - 30.0) < 1e-12  # the programme's last level
+    assert abs(ref["force_n_N"][-1] - 30.0) < 1e-12  # the programme's last level
 
 
 def test_simulate_sends_binary_frames_with_the_faults_asked_for() -> None:

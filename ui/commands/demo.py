@@ -133,7 +133,11 @@ def run(args: argparse.Namespace) -> int:
     print(table)
     from ui.estimates_csv import write_estimates_csv
 
-    write_estimates_csv(est, out_dir / "estimates.csv")
+    write_estimates_csv(
+        est,
+        out_dir / "estimates.csv",
+        metadata={"source": "built-in simulated cell (invented data)", "cell": profile.cell.name},
+    )
     write_truth_csv(truth, out_dir / "truth.csv")
     write_text_atomic(out_dir / "summary.txt", table + "\n")
     written = ["estimates.csv", "truth.csv", "summary.txt"]

@@ -31,9 +31,9 @@ def register(subparsers: Any) -> None:
             "Replay a recorded run (a run folder) or a plain CSV file (header: time_s and "
             "displacement_m, displacement_mm or displacement_um) through the force observer. "
             "A run is replayed with its own profile and zero events and compared with the "
-            "estimates recorded live. --out writes time_s, force_N, force_u_N, "
-            "displacement_m, velocity_m_s, nis, flags; force_u_N is the standard "
-            "uncertainty (k = 1)."
+            "estimates recorded live. --out writes the estimates as forcelens CSV (the "
+            "columns of export --stream estimates: time_s [s], force_n [N], force_u_n [N], "
+            "...; force_u_n is the standard uncertainty, k = 1); see docs/csv-files.md."
         ),
     )
     p.add_argument("source", metavar="RUN_OR_CSV", help="run folder or CSV file")
@@ -108,7 +108,7 @@ def _replay_csv(args: argparse.Namespace, source: Path, speed: float) -> int:
     samples["host_time_s"] = math.nan
     samples["displacement_m"] = x
     estimates, observer = _estimate(args, profile, samples, [], speed)
-    _write(args, estimates)
+    _write(args, estimates, profile)
     if args.steps:
         _print_steps(profile, samples, estimates)
     c = observer.counters
@@ -140,7 +140,7 @@ def _replay_run(args: argparse.Namespace, folder: Path, speed: float) -> int:
     print(f"run {data.description['run_id']}: {data.samples.size} samples, {state}")
     estimates, observer = _estimate(args, profile, data.samples, tares, speed)
     if args.out:
-        _write(args, estimates)
+        _write(args, estimates, profile)
     if args.steps:
         _print_steps(profile, data.samples, estimates)
     c = observer.counters
@@ -237,11 +237,21 @@ def _print_steps(profile: Any, samples: Any, estimates: Any) -> None:
     print(format_change_table(rows) if rows else "no load change found")
 
 
-def _write(args: argparse.Namespace, estimates: Any) -> None:
+def _write(args: argparse.Namespace, estimates: Any, profile: Any) -> None:
     from ui.estimates_csv import write_estimates_csv
+    from ui.version import software_version
 
+    meta = {
+        "source": Path(args.source).name,
+        "cell": profile.cell.name,
+        "profile": args.profile or "the run's own",
+        "method": "smoother (offline)" if args.smooth else "observer (as live)",
+        "software_version": software_version(),
+    }
     show = _Progress(estimates.size)
-    write_estimates_csv(estimates, args.out, progress=lambda d, n: show("writing", d))
+    write_estimates_csv(
+        estimates, args.out, progress=lambda d, n: show("writing", d), metadata=meta
+    )
     show.done()
     print(f"wrote {args.out}" + (f" ({args.replaced})" if args.replaced else ""))
 
