@@ -13,17 +13,21 @@ SHA-256 of every file). The format is documented field by field in
   ``closing.json``, a torn last record, a torn last event line) and refusing anything
   else that is wrong with a :class:`~daq.errors.RunFormatError` naming the file.
 * :func:`verify_run` checks a run and reports instead of raising.
-* :func:`export_run_csv` writes one stream as CSV with exact numbers.
+* :func:`export_run_csv` writes one stream as CSV with exact numbers;
+  :func:`export_run_mat` as a MATLAB/Octave file, :func:`export_run_hdf5` as HDF5
+  (SciPy and h5py imported only when called).
 
 Times are SI seconds; UTC timestamps are ISO 8601 text ending in ``Z``.
 
 The package splits it by concept: `layout` (names, versions, record layouts), `writer`,
-`reader`, `verify`, `export`.
+`reader`, `verify`, `export` (CSV), `export_mat`, `export_hdf5`.
 """
 
 from __future__ import annotations
 
 from daq.runs.export import csv_column_name, export_run_csv
+from daq.runs.export_hdf5 import export_run_hdf5
+from daq.runs.export_mat import export_run_mat
 from daq.runs.layout import (
     CLOSING_FILE,
     CLOSING_STATUSES,
@@ -55,6 +59,8 @@ __all__ = [
     "VerifyReport",
     "csv_column_name",
     "export_run_csv",
+    "export_run_hdf5",
+    "export_run_mat",
     "new_run_id",
     "read_run",
     "read_run_info",

@@ -1,4 +1,4 @@
-"""``forcelens export``: a recorded run's samples or estimates as CSV with units."""
+"""``forcelens export``: a recorded run's samples or estimates as CSV, MAT or HDF5."""
 
 from __future__ import annotations
 
@@ -10,40 +10,79 @@ from ui.outputs import add_force_option, claim_file
 
 __all__ = ["register"]
 
+#: Formats and the file name ending each one takes by default.
+FORMATS = {"csv": ".csv", "mat": ".mat", "hdf5": ".h5"}
+_SUFFIXES = {".csv": "csv", ".mat": "mat", ".h5": "hdf5", ".hdf5": "hdf5", ".he5": "hdf5"}
+
 
 def register(subparsers: Any) -> None:
     p = subparsers.add_parser(
         "export",
-        help="write a recorded run's samples (or live estimates) as CSV",
+        help="write a recorded run's samples (or live estimates) as CSV, MATLAB or HDF5",
         description=(
-            "Write one stream of a run folder as CSV: every column named with its unit, "
-            "comment lines with the run id, cell, software version and whether the run "
-            "was closed. Numbers are written so they read back exactly."
+            "Write one stream of a run folder as CSV (every column named with its unit, "
+            "comment lines with the run id, cell, software and library versions and "
+            "whether the run was closed; numbers that read back exactly), as a MATLAB/Octave "
+            ".mat file (one variable per column, structs 'units' and 'run'), or as HDF5 "
+            "(one dataset per column with its unit, the run's facts as attributes). "
+            "See docs/csv-files.md and docs/run-format.md."
         ),
     )
     p.add_argument("run_folder", metavar="RUN", help="run folder")
-    p.add_argument("--out", help="output CSV (default: RUN_ID-STREAM.csv here)")
+    p.add_argument("--out", help="output file (default: RUN_ID-STREAM.csv, .mat or .h5 here)")
     p.add_argument(
         "--stream",
         default="samples",
         help="'samples' (default) or 'estimates' (the force computed live)",
     )
+    p.add_argument(
+        "--format",
+        choices=tuple(FORMATS),
+        help="csv, mat (MATLAB/Octave, scipy.io.savemat) or hdf5 (h5py); default: from "
+        "the ending of --out (.mat, .h5/.hdf5), else csv",
+    )
     add_force_option(p)
     p.set_defaults(run=run)
 
 
-def run(args: argparse.Namespace) -> int:
-    from daq.runs import export_run_csv, read_run
+def _format(args: argparse.Namespace) -> str:
+    """The format asked for, or the one the ending of --out names; a clash is refused."""
+    implied = _SUFFIXES.get(Path(args.out).suffix.lower()) if args.out else None
+    if args.format and implied and args.format != implied:
+        raise ValueError(
+            f"--out {args.out}: the ending says {implied} but --format is {args.format}; "
+            f"end the name in {FORMATS[args.format]} or leave --format out"
+        )
+    return args.format or implied or "csv"
 
+
+def run(args: argparse.Namespace) -> int:
+    from daq.runs import read_run
+    from ui.outputs import replacing
+
+    fmt = _format(args)
     data = read_run(args.run_folder)
     if args.stream not in data.streams:
         known = ", ".join(sorted(data.streams))
         raise ValueError(f"{args.run_folder}: no stream {args.stream!r}; this run has {known}")
-    out = Path(args.out or f"{data.description['run_id']}-{args.stream}.csv")
+    out = Path(args.out or f"{data.description['run_id']}-{args.stream}{FORMATS[fmt]}")
     replaced = claim_file(out, inputs=[args.run_folder], force=args.force)
-    export_run_csv(data, out, stream=args.stream)
+    if fmt == "csv":
+        from daq.runs import export_run_csv
+
+        export_run_csv(data, out, stream=args.stream)
+    else:
+        if fmt == "mat":
+            from daq.runs.export_mat import export_run_mat as write
+        else:
+            from daq.runs.export_hdf5 import export_run_hdf5 as write
+        with replacing(out) as tmp:
+            write(data, tmp, stream=args.stream)
     if replaced:
         print(replaced)
     n = data.streams[args.stream].size
-    print(f"wrote {out}: {n} rows of {args.stream}" + ("" if data.closed else " (run NOT closed)"))
+    print(
+        f"wrote {out}: {n} rows of {args.stream} as {fmt}"
+        + ("" if data.closed else " (run NOT closed)")
+    )
     return 0

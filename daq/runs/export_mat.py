@@ -1,0 +1,57 @@
+"""One stream of a run as a MATLAB/Octave file (`export_run_mat`), with scipy.io.savemat.
+
+The file (MAT version 5, read by MATLAB, Octave and ``scipy.io.loadmat``) holds one
+column vector per field of the stream, named as the field (``device_time_s``,
+``displacement_m``, ...), in its recorded type (double, int64, uint32, single); a
+struct ``units`` with the unit of each field (``units.displacement_m`` is ``'m'``); and
+a struct ``run`` with the facts of `daq.runs.export.export_metadata` and the run's cell
+profile (``run.profile_toml``). In MATLAB: ``d = load('x.mat'); plot(d.device_time_s,
+d.displacement_m)``.
+"""
+
+from __future__ import annotations
+
+import os
+
+import numpy as np
+
+from daq.errors import SourceError
+from daq.runs.export import export_metadata, stream_of
+from daq.runs.reader import RunData
+
+__all__ = ["export_run_mat"]
+
+#: Names of the two structs beside the fields; no field of a run stream takes them.
+UNITS_VARIABLE = "units"
+RUN_VARIABLE = "run"
+
+
+def export_run_mat(run: RunData, path: str | os.PathLike[str], *, stream: str = "samples") -> int:
+    """Write one stream of ``run`` to the MAT file ``path``; return the number of records.
+
+    Raises:
+        RunFormatError: the run has no such stream.
+        SourceError: the file cannot be written.
+    """
+    import scipy.io
+
+    data, units = stream_of(run, stream)
+    names = list(data.dtype.names or ())
+    variables: dict[str, object] = {n: np.ascontiguousarray(data[n]) for n in names}
+    variables[UNITS_VARIABLE] = {n: units[n] for n in names}
+    meta: dict[str, object] = dict(export_metadata(run, stream))
+    meta["profile_toml"] = run.description["profile_toml"]
+    variables[RUN_VARIABLE] = meta
+    try:
+        scipy.io.savemat(
+            os.fspath(path),
+            variables,
+            appendmat=False,
+            format="5",
+            long_field_names=True,
+            do_compression=False,
+            oned_as="column",
+        )
+    except OSError as exc:
+        raise SourceError(f"{path}: cannot write the MAT file ({exc.strerror or exc})") from exc
+    return int(data.shape[0])
