@@ -136,6 +136,14 @@ def test_a_failing_task_is_an_outcome_and_order_is_kept() -> None:
     assert len(ticks) == 4
 
 
+def test_an_outcome_computed_by_other_code_is_refused_for_its_run() -> None:
+    here = parallel.TaskOutcome(value=1, code="aaaa")
+    there = parallel.TaskOutcome(value=1, code="bbbb")
+    kept, refused = parallel._same_code([here, there], "aaaa")
+    assert kept == here
+    assert refused.value is None and "other forcelens sources" in (refused.problem or "")
+
+
 def test_plan_follows_the_options() -> None:
     assert plan_execution(1, None, 10).kind == "serial"
     assert plan_execution(None, None, 1).kind == "serial"  # one run: no cluster for it

@@ -13,7 +13,9 @@ plain value. `plan_execution` decides where the tasks run:
 
 `run_tasks` returns one `TaskOutcome` per item, in the order of the items, whatever the
 number of workers or the order in which they finish: each task depends on its run
-alone, so the results equal those of a serial loop. A task that raises ValueError or
+alone, so the results equal those of a serial loop. Each outcome carries the digest of
+the code that computed it (``ui.archive.fingerprint``); one from a worker running other
+forcelens sources or numeric libraries is refused for its run. A task that raises ValueError or
 OSError (a run that cannot be read) gives an outcome with its one-line problem; any
 other exception (a fault of forcelens, a lost worker) gives an outcome with the
 exception, and the job goes on with the other runs.
@@ -35,6 +37,7 @@ __all__ = [
     "TaskOutcome",
     "add_parallel_options",
     "dask_available",
+    "map_on_client",
     "plan_execution",
     "run_tasks",
 ]
@@ -59,8 +62,8 @@ def add_parallel_options(parser: argparse.ArgumentParser) -> None:
     group.add_argument(
         "--scheduler",
         metavar="ADDRESS",
-        help="run on an existing Dask cluster, e.g. tcp://10.0.0.5:8786 (its workers must "
-        "see the run folders at the same paths and have forcelens installed)",
+        help="run on an existing Dask cluster, e.g. tcp://HOST:8786 (its workers must see "
+        "the run folders at the same paths and have forcelens installed)",
     )
 
 
@@ -133,11 +136,13 @@ class TaskOutcome:
         problem: the one-line message of a ValueError or OSError the task raised (a run
             that cannot be read), else None.
         fault: any other exception (a fault of forcelens, a lost worker), else None.
+        code: the digest of the code that ran the task (`code_fingerprint`).
     """
 
     value: Any = None
     problem: str | None = None
     fault: BaseException | None = None
+    code: str = ""
 
     @property
     def ok(self) -> bool:
@@ -147,10 +152,12 @@ class TaskOutcome:
 
 def _guarded(task: Callable[[Any], Any], item: Any) -> TaskOutcome:
     """Run one task; a run that cannot be read becomes an outcome, not an error."""
+    from ui.archive.fingerprint import code_fingerprint
+
     try:
-        return TaskOutcome(value=task(item))
+        return TaskOutcome(value=task(item), code=code_fingerprint())
     except (ValueError, OSError) as exc:
-        return TaskOutcome(problem=str(exc) or type(exc).__name__)
+        return TaskOutcome(problem=str(exc) or type(exc).__name__, code=code_fingerprint())
 
 
 def run_tasks(
@@ -168,6 +175,28 @@ def run_tasks(
 
     Raises OSError when a cluster cannot be reached or never gets a worker.
     """
+    from ui.archive.fingerprint import code_fingerprint
+
+    return _same_code(_placed(task, items, plan, advance), code_fingerprint())
+
+
+def _same_code(outcomes: list[TaskOutcome], code: str) -> list[TaskOutcome]:
+    """Outcomes computed by other code become problems of their runs."""
+    return [
+        o
+        if o.fault is not None or o.code == code
+        else TaskOutcome(
+            problem=f"computed by a worker running other forcelens sources or numeric "
+            f"libraries (code {o.code}, here {code}); install the same on every worker",
+            code=o.code,
+        )
+        for o in outcomes
+    ]
+
+
+def _placed(
+    task: Callable[[Any], Any], items: Sequence[Any], plan: Plan, advance: Callable[[], None]
+) -> list[TaskOutcome]:
     if plan.kind == "serial":
         return [_serial(task, item, advance) for item in items]
     from dask.distributed import Client, LocalCluster
@@ -183,7 +212,7 @@ def run_tasks(
             ) as cluster,
             Client(cluster, set_as_default=False) as client,
         ):
-            return _on_client(client, task, items, advance)
+            return map_on_client(client, task, items, advance)
     try:
         client = Client(plan.address, timeout=CONNECT_TIMEOUT_S, set_as_default=False)
     except (OSError, ValueError, TypeError) as exc:
@@ -200,7 +229,7 @@ def run_tasks(
                 f"--scheduler {plan.address}: no worker joined the cluster within "
                 f"{WORKER_WAIT_S:g} s; start workers with dask worker {plan.address}"
             ) from None
-        return _on_client(client, task, items, advance)
+        return map_on_client(client, task, items, advance)
 
 
 def _serial(task: Callable[[Any], Any], item: Any, advance: Callable[[], None]) -> TaskOutcome:
@@ -212,9 +241,10 @@ def _serial(task: Callable[[Any], Any], item: Any, advance: Callable[[], None]) 
     return outcome
 
 
-def _on_client(
+def map_on_client(
     client: Any, task: Callable[[Any], Any], items: Sequence[Any], advance: Callable[[], None]
 ) -> list[TaskOutcome]:
+    """`run_tasks` on an open ``dask.distributed.Client`` (the benchmark reuses one)."""
     from dask.distributed import as_completed
 
     futures = client.map(functools.partial(_guarded, task), list(items), pure=False)
