@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 from pathlib import Path
 
 import pytest
@@ -62,3 +63,66 @@ def test_tune_fits_the_noise_on_the_whole_record_without_a_quiet_stretch(
     # likelihood fit finds the simulator's 50 nm noise (invented; a 10 % grid step).
     assert load_profile(out).transducer.noise_m == pytest.approx(5e-8, rel=0.12)
     assert "log-likelihood" in capsys.readouterr().out
+
+
+def _whole_run_csv(tmp_path: Path, programme: str, seed: int = 5) -> Path:
+    """A whole record of the simulated demo cell (invented data) as forcelens CSV."""
+    from daq.csv_dialect import write_csv_table
+    from daq.programme import parse_programme
+    from ui.wiring import scaling_for, simulated_cell_for
+
+    profile = default_demo_profile()
+    run = simulated_cell_for(profile, seed=seed).generate(parse_programme(programme))
+    path = tmp_path / "whole.csv"
+    write_csv_table(
+        path,
+        title="invented whole run (simulated cell)",
+        columns=[
+            ("time_s", "s", run.device_time_us * 1e-6),
+            ("displacement_m", "m", scaling_for(profile).to_metres(run.counts)),
+        ],
+    )
+    return path
+
+
+def test_ringdown_on_a_whole_run_finds_the_free_decay_after_the_release(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    # Issue 12: on a whole run (rest, load, release) identify gave fn = 0.66 Hz and
+    # ζ ≈ 5e-29 and exited 0. Reference: the simulated cell integrates the invented demo
+    # plant exactly, fn = √(k/m)/2π (textbook), ζ = 0.12; tolerances as in the step test
+    # above (1e-3 on k and m, 1e-2 on ζ); and the result of a hand-picked window.
+    record = _whole_run_csv(tmp_path, "hold 0.3 0; hold 0.5 50; hold 0.5 0")
+    out = tmp_path / "found.toml"
+    assert main(["identify", str(record), "--test", "ringdown", "--profile", str(DEMO),
+                 "--out", str(out)]) == 0  # fmt: skip
+    text = capsys.readouterr().out
+    assert "window found: 0.79" in text  # the release at 0.8 s, not the load at 0.3 s
+    found = load_profile(out).plant
+    truth = default_demo_profile().plant
+    fn_truth = math.sqrt(truth.stiffness_n_per_m / truth.mass_kg) / (2 * math.pi)
+    assert found.natural_freq_hz == pytest.approx(fn_truth, rel=1e-3)
+    assert found.damping_ratio == pytest.approx(truth.damping_ratio, rel=1e-2)
+    picked = tmp_path / "picked.toml"
+    assert main(["identify", str(record), "--test", "ringdown", "--from", "0.8", "--to", "0.9",
+                 "--profile", str(DEMO), "--out", str(picked)]) == 0  # fmt: skip
+    hand = load_profile(picked).plant
+    assert found.natural_freq_hz == pytest.approx(hand.natural_freq_hz, rel=1e-3)
+    assert found.damping_ratio == pytest.approx(hand.damping_ratio, rel=1e-2)
+
+
+@pytest.mark.parametrize(
+    ("programme", "why"),
+    [
+        ("hold 1 0", "nothing moves"),  # rest only
+        ("hold 0.3 0; hold 0.01 50", "ends while the cell still rings"),  # cut short
+    ],
+)
+def test_ringdown_without_a_usable_decay_is_refused_in_one_line(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str], programme: str, why: str
+) -> None:
+    record = _whole_run_csv(tmp_path, programme)
+    assert main(["identify", str(record), "--test", "ringdown"]) == 1
+    err = capsys.readouterr().err
+    assert why in err and "--from S --to S" in err
+    assert len(err.strip().splitlines()) == 1 and "Traceback" not in err

@@ -37,7 +37,14 @@ def register(subparsers: Any) -> None:
     )
     p.add_argument("record", help="run folder, or CSV with time_s and displacement_m/mm/um")
     p.add_argument("--test", choices=("ringdown", "step"), required=True, help="kind of record")
-    p.add_argument("--from", dest="t_from", type=float, metavar="S", help="start time, s")
+    p.add_argument(
+        "--from",
+        dest="t_from",
+        type=float,
+        metavar="S",
+        help="start time, s (ring-down: without --from/--to the free decay is found in the "
+        "whole record, from the release until the ringing reaches the noise)",
+    )
     p.add_argument("--to", dest="t_to", type=float, metavar="S", help="end time, s")
     p.add_argument("--mass-kg", type=float, help="known moving mass, kg (k = m·ωn²)")
     p.add_argument("--mass-u-kg", type=float, default=0.0, help="its standard uncertainty, kg")
@@ -94,6 +101,8 @@ def run(args: argparse.Namespace) -> int:
         keep &= t <= args.t_to
     t, x = t[keep], x[keep]
     if args.test == "ringdown":
+        if args.t_from is None and args.t_to is None:
+            t, x = _ringdown_window(t, x, args.record)
         result = identify_ringdown(t, x)
     else:
         result = identify_step(t, x, force_n=args.step_force_n)
@@ -131,6 +140,22 @@ def run(args: argparse.Namespace) -> int:
         save_profile(updated, args.out)
         print(f"wrote {args.out}" + (f" ({replaced})" if replaced else ""))
     return 0
+
+
+def _ringdown_window(t: Any, x: Any, record: str) -> tuple[Any, Any]:
+    """The free decay of a whole record (ui.ringdown_window), said in one line; a record
+    where none can be found is refused in one line that says to give --from/--to."""
+    from ui.ringdown_window import RingdownNotFoundError, find_ringdown_window
+
+    try:
+        window = find_ringdown_window(t, x)
+    except RingdownNotFoundError as exc:
+        raise ValueError(
+            f"{record}: {exc}; give the free decay's start and end with --from S --to S"
+        ) from None
+    print(window.text())
+    keep = (t >= window.start_s) & (t <= window.end_s)
+    return t[keep], x[keep]
 
 
 def _describe(result: Any, test: str) -> str:
