@@ -115,7 +115,7 @@ def audit_run(
     from ui.commands.report import default_report_folder
     from ui.figures import compute_figures, replay_run
     from ui.pipeline import ESTIMATE_STREAM
-    from ui.version import software_version
+    from ui.version import library_changes, software_version
 
     folder = Path(folder)
     found = _Findings()
@@ -142,6 +142,11 @@ def audit_run(
             "other profile",
         )
     likely = _likely(newer, version, replayed.own_profile, verified.problems)
+    libraries = library_changes(replayed.data.description.get("libraries"))
+    if libraries and not verified.problems and replayed.own_profile:
+        said = "other library versions (a bit-identical replay depends on them): "
+        said += ", ".join(libraries)
+        likely = (f"{likely[0]}; also {said}", likely[1]) if newer else (said, "other library")
     explained = newer and replayed.own_profile and not verified.problems
     live = replayed.data.streams.get(ESTIMATE_STREAM)
     if live is not None:

@@ -72,6 +72,22 @@ def installed_version() -> str:
         return "0+unknown"
 
 
+#: The libraries whose versions decide a replay's numbers bit for bit (run.json ``libraries``).
+REPLAY_LIBRARIES: tuple[str, ...] = ("numpy", "scipy", "numba", "filterpy")
+
+
+def library_versions() -> dict[str, str]:
+    """The installed version of each of `REPLAY_LIBRARIES` (``"not installed"`` when absent),
+    read from the package metadata without importing the libraries."""
+    versions = {}
+    for name in REPLAY_LIBRARIES:
+        try:
+            versions[name] = metadata.version(name)
+        except metadata.PackageNotFoundError:
+            versions[name] = "not installed"
+    return versions
+
+
 def json_default(value: object) -> object:
     """Let NumPy scalars and arrays through :func:`json.dumps`."""
     if isinstance(value, np.generic):

@@ -211,6 +211,11 @@ def _check_description(path: Path, data: object) -> dict[str, np.dtype]:
     tags = _need(path, data, "tags", list, "a list of strings")
     if not all(isinstance(tag, str) for tag in tags):
         raise RunFormatError(f"{path}: tags = {tags!r}: must be a list of strings")
+    libraries = data.get("libraries", {})  # absent in runs recorded before it was kept
+    if not isinstance(libraries, dict) or not all(isinstance(v, str) for v in libraries.values()):
+        raise RunFormatError(
+            f"{path}: libraries = {libraries!r}: must map library names to version strings"
+        )
     _need(path, data, "acquisition", dict, "a mapping")
     streams = _need(path, data, "streams", dict, "a mapping of stream name -> layout")
     if "samples" not in streams:

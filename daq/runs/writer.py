@@ -34,6 +34,7 @@ from daq.runs.layout import (
     dtype_to_json,
     installed_version,
     layout_text,
+    library_versions,
     new_run_id,
     sha256_of,
     to_json,
@@ -103,6 +104,9 @@ class RunWriter:
             copied into ``run.json`` (see docs/run-format.md). ``profile_toml`` is the
             cell profile text; ``acquisition`` is any JSON-able mapping (framing, port,
             nominal rate...). ``software_version`` defaults to the installed version.
+        libraries: name → version of the libraries a bit-identical replay depends on;
+            defaults to the installed versions of ``REPLAY_LIBRARIES`` (NumPy, SciPy,
+            numba, filterpy).
         extra_streams: more append-only streams, ``{name: (dtype, {field: unit})}``.
             ``"samples"`` (dtype ``SAMPLE_DTYPE``) always exists and cannot be redeclared.
         flush_interval_s: buffered data is written and fsynced once this long has passed
@@ -127,6 +131,7 @@ class RunWriter:
         tags: Sequence[str] = (),
         profile_toml: str = "",
         software_version: str | None = None,
+        libraries: Mapping[str, str] | None = None,
         acquisition: Mapping[str, Any] | None = None,
         extra_streams: Mapping[str, tuple[np.dtype, Mapping[str, str]]] | None = None,
         flush_interval_s: float = 0.25,
@@ -158,6 +163,9 @@ class RunWriter:
         version = installed_version() if software_version is None else software_version
         if not isinstance(version, str) or not version:
             raise RunFormatError(f"software_version = {version!r}: must be a non-empty string")
+        libs = library_versions() if libraries is None else dict(libraries)
+        if not all(isinstance(k, str) and isinstance(v, str) for k, v in libs.items()):
+            raise RunFormatError(f"libraries = {libs!r}: must map names to version strings")
         acq = {} if acquisition is None else acquisition
         if not isinstance(acq, Mapping):
             raise RunFormatError(f"acquisition = {acq!r}: must be a mapping")
@@ -186,6 +194,7 @@ class RunWriter:
             "cell_name": cell_name,
             "profile_toml": profile_toml,
             "software_version": version,
+            "libraries": libs,
             "acquisition": acq_dict,
             "streams": {
                 name: {
