@@ -21,6 +21,7 @@ __all__ = ["FIGURES_FORMAT", "Replayed", "compute_figures", "replay_run"]
 
 FIGURES_FORMAT = "forcelens-figures"
 FIGURES_VERSION = 1
+_BLOCK = 200_000  # samples per observer call; any size gives the same numbers
 
 
 class _Collector:
@@ -61,7 +62,13 @@ def replay_run(folder: str | Path, *, profile: Any = None, check_hash: bool = Tr
     collector = _Collector()
     pipe = EstimationPipeline(used, recorder=collector, tares=tares_from_events(data.events))
     samples = np.asarray(data.samples)
-    parts = [pipe.process(samples[i : i + 200_000]) for i in range(0, samples.size, 200_000)]
+    from ui.progress import bar, progress_wanted
+
+    parts = []
+    with bar(samples.size, "replaying", enabled=None if progress_wanted() else False) as shown:
+        for i in range(0, samples.size, _BLOCK):
+            parts.append(pipe.process(samples[i : i + _BLOCK]))
+            shown.update(parts[-1].size)
     est = concat_estimates(parts)
     final_tick = ((data.closing or {}).get("summary") or {}).get("final_tick_host_s")
     if final_tick is not None:  # the live run's last look for a silence at the end

@@ -84,11 +84,13 @@ def run(args: argparse.Namespace) -> int:
 def _audit_one(args: argparse.Namespace) -> int:
     from estimator.profile import load_profile
     from ui.auditing import audit_run
+    from ui.progress import wanted
 
     profile = load_profile(args.profile) if args.profile else None
-    result = audit_run(
-        args.run_folder, profile=profile, profile_name=args.profile or "", report=args.report
-    )
+    with wanted():  # one run: its replay may show a bar on a terminal
+        result = audit_run(
+            args.run_folder, profile=profile, profile_name=args.profile or "", report=args.report
+        )
     print(result.text())
     return 1 if result.differs else 0
 

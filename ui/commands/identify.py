@@ -87,6 +87,7 @@ def run(args: argparse.Namespace) -> int:
 
     from estimator.identify import identify_ringdown, identify_step, scale_from
     from estimator.profile import load_profile
+    from ui.progress import busy
 
     if args.out and not args.profile:
         raise ValueError("--out writes an updated profile: give --profile too")
@@ -103,9 +104,11 @@ def run(args: argparse.Namespace) -> int:
     if args.test == "ringdown":
         if args.t_from is None and args.t_to is None:
             t, x = _ringdown_window(t, x, args.record)
-        result = identify_ringdown(t, x)
+        with busy(f"identifying on {t.size} samples"):
+            result = identify_ringdown(t, x)
     else:
-        result = identify_step(t, x, force_n=args.step_force_n)
+        with busy(f"fitting the step on {t.size} samples"):
+            result = identify_step(t, x, force_n=args.step_force_n)
     profile = load_profile(args.profile) if args.profile else run_profile
     scale: dict[str, float] = {}
     if args.mass_kg is not None:

@@ -188,16 +188,21 @@ def _estimate(
     if args.smooth:
         if tares:
             raise ValueError("--smooth cannot replay a run with zero events yet; leave it out")
-        print(f"smoothing {samples.size} samples...", file=sys.stderr)
-        est = smooth_record(pipeline.observer, samples["device_time_s"], samples["displacement_m"])
+        from ui.progress import busy
+
+        with busy(f"smoothing {samples.size} samples"):
+            est = smooth_record(
+                pipeline.observer, samples["device_time_s"], samples["displacement_m"]
+            )
         return est, pipeline.observer
     parts = []
     if math.isinf(speed):
-        show = _Progress(samples.size)
-        for start in range(0, samples.size, _BLOCK):
-            parts.append(pipeline.process(samples[start : start + _BLOCK]))
-            show("estimating", start + parts[-1].size)
-        show.done()
+        from ui.progress import bar
+
+        with bar(samples.size, "estimating") as shown:
+            for start in range(0, samples.size, _BLOCK):
+                parts.append(pipeline.process(samples[start : start + _BLOCK]))
+                shown.update(parts[-1].size)
     else:
         status = StatusLine()
         t = samples["device_time_s"]
@@ -248,29 +253,14 @@ def _write(args: argparse.Namespace, estimates: Any, profile: Any) -> None:
         "method": "smoother (offline)" if args.smooth else "observer (as live)",
         "software_version": software_version(),
     }
-    show = _Progress(estimates.size)
-    write_estimates_csv(
-        estimates, args.out, progress=lambda d, n: show("writing", d), metadata=meta
-    )
-    show.done()
+    from ui.progress import bar
+
+    with bar(estimates.size, f"writing {args.out}", unit="rows") as shown:
+        done = [0]
+
+        def advance(rows: int, total: int) -> None:
+            shown.update(rows - done[0])
+            done[0] = rows
+
+        write_estimates_csv(estimates, args.out, progress=advance, metadata=meta)
     print(f"wrote {args.out}" + (f" ({args.replaced})" if args.replaced else ""))
-
-
-class _Progress:
-    """A one-line progress indication on stderr for long inputs."""
-
-    def __init__(self, total: int) -> None:
-        self.total = total
-        self.active = (total >= 2 * _BLOCK and sys.stderr.isatty()) or total >= 5 * _BLOCK
-        self.last = 0.0
-
-    def __call__(self, what: str, done: int) -> None:
-        now = time.monotonic()
-        if self.active and (now - self.last > 0.2 or done >= self.total):
-            self.last = now
-            pct = 100.0 * done / max(self.total, 1)
-            print(f"\r{what}: {pct:5.1f} % of {self.total} samples", end="", file=sys.stderr)
-
-    def done(self) -> None:
-        if self.active:
-            print(file=sys.stderr)

@@ -51,7 +51,10 @@ def run(args: argparse.Namespace) -> int:
     out = Path(args.out) if args.out else default_report_folder(folder)
     names = ["report.html", "figures.json", "plot.png", "report.pdf"]
     replaced = claim_folder(out, names, inputs=[folder], force=args.force)
-    replayed = replay_run(folder)
+    from ui.progress import wanted
+
+    with wanted():
+        replayed = replay_run(folder)
     figures = compute_figures(replayed)
     out.mkdir(parents=True, exist_ok=True)
     command = f"forcelens report {shlex.quote(str(folder))}" + (

@@ -15,7 +15,6 @@ from __future__ import annotations
 import argparse
 import dataclasses
 import datetime
-import sys
 from pathlib import Path
 from typing import Any
 
@@ -91,20 +90,22 @@ def run(args: argparse.Namespace) -> int:
         tr.noise_m**2 + tr.resolution_m**2 / 12,
         dt,
     )
-    print(f"fitting on {int(keep.sum())} samples by innovation likelihood...", file=sys.stderr)
-    fit = fit_observer(
-        plant,
-        dt,
-        noise_m,
-        tr.resolution_m,
-        t[keep],
-        x[keep],
-        force_range_n=lim.force_max_n - lim.force_min_n,
-        q_hold_n2_per_s=q_hold,
-        rate_scale=obs.rate_scale,
-        gate_sigma=obs.gate_sigma,
-        fit_noise=args.quiet_from is None,
-    )
+    from ui.progress import busy
+
+    with busy(f"fitting on {int(keep.sum())} samples by innovation likelihood"):
+        fit = fit_observer(
+            plant,
+            dt,
+            noise_m,
+            tr.resolution_m,
+            t[keep],
+            x[keep],
+            force_range_n=lim.force_max_n - lim.force_min_n,
+            q_hold_n2_per_s=q_hold,
+            rate_scale=obs.rate_scale,
+            gate_sigma=obs.gate_sigma,
+            fit_noise=args.quiet_from is None,
+        )
     print(f"                         {'profile':>12} {'fitted':>12}")
     print(f"  noise, m               {tr.noise_m:12.4g} {fit.noise_m:12.4g}")
     print(f"  hold intensity, N²/s   {q_hold:12.4g} {fit.q_hold_n2_per_s:12.4g}")
