@@ -141,6 +141,8 @@ class Assessment:
 
     def verdict(self) -> str:
         """The last line: whether anything exceeded and whether every run was examined."""
+        if not self.runs:
+            return "nothing to assess: no run of the cell matches the selection"
         if self.exceeded:
             text = f"AFFECTED: {self.exceeded} value(s) moved by more than {self.limit_text()}"
         else:

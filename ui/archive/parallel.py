@@ -123,8 +123,11 @@ def plan_execution(workers: int | None, scheduler: str | None, tasks: int) -> Pl
     if not dask_available():
         return Plan("serial", 1, reason=f"Dask is not installed ({_INSTALL} to use every core)")
     if tasks <= 1:
-        return Plan("serial", 1, reason=f"{tasks} run")
-    return Plan("local", max(1, min(workers or _cores(), tasks)))
+        return Plan("serial", 1, reason=f"{tasks} run(s) to do")
+    n = min(workers or _cores(), tasks)
+    if n <= 1:
+        return Plan("serial", 1, reason="this machine has one core")
+    return Plan("local", n)
 
 
 @dataclass(frozen=True)
