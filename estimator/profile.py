@@ -492,6 +492,15 @@ class CellProfile:
                     f"[{name}]: expected a {cls.__name__}, got {type(value).__name__}"
                 )
         nyquist_hz = self.acquisition.sample_rate_hz / 2.0
+        fn_hz = self.plant.natural_freq_rad_s / (2.0 * math.pi)
+        if not _FN_MIN_HZ <= fn_hz < nyquist_hz:
+            raise ProfileError(
+                f"[plant] mass_kg = {self.plant.mass_kg!r} and stiffness_n_per_m = "
+                f"{self.plant.stiffness_n_per_m!r} give a natural frequency of {fn_hz:.6g} Hz: "
+                f"it must be from {_FN_MIN_HZ:g} Hz to below the Nyquist frequency, "
+                f"[acquisition] sample_rate_hz / 2 = {nyquist_hz:g} Hz (a cell that rings "
+                "faster than the samples cannot be observed)"
+            )
         if not self.observer.force_bandwidth_hz < nyquist_hz:
             raise _fail(
                 "observer",
@@ -510,6 +519,9 @@ class CellProfile:
             if name not in _SECTIONS:
                 raise ProfileError(f"no section named {name!r}{_suggest(name, _SECTIONS)}")
         return dataclasses.replace(self, **sections)
+
+
+_FN_MIN_HZ = 1e-3  # slowest natural frequency accepted (a 17-minute period)
 
 
 # --------------------------------------------------------------------------- reading

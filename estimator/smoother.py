@@ -36,6 +36,7 @@ record (an IMM smoother over the bank) is future work.
 from __future__ import annotations
 
 import dataclasses
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -115,7 +116,13 @@ def fit_prior(obs: ForceObserver, time_s: np.ndarray, displacement_m: np.ndarray
     for family, q0 in starts.items():
 
         def ll(p: tuple[float, ...], family: int = family) -> float:
-            return _filter(obs, family, p[0], p[1], z, dts, rows, False)[0]
+            # far out on the grid (a tiny noise after a long gap) the filter can break
+            # down numerically; such a point has likelihood −∞ and the search turns back
+            try:
+                value = _filter(obs, family, p[0], p[1], z, dts, rows, False)[0]
+            except ZeroDivisionError:
+                return -math.inf
+            return value if math.isfinite(value) else -math.inf
 
         # the intensity in coarse steps first (its optimum may be decades away)
         found = ascend(ll, (q0, 1.0), (_STEP**2, 1.1), widen=_WIDEN)

@@ -258,6 +258,11 @@ INVALID_CASES = [
     ("rate scale zero", _set("observer", "rate_scale", 0.0), "rate_scale"),
     ("zero process noise", _set("observer", "process_noise_n2_per_s", 0.0), "process_noise"),
     ("bandwidth past Nyquist", _set("observer", "force_bandwidth_hz", 1000.0), "Nyquist"),
+    # issue 15's values: ωn overflows to infinity; both were called valid
+    ("stiffness 1.7e308", _set("plant", "stiffness_n_per_m", 1.7e308), "natural frequency of inf"),
+    ("mass 1e-320", _set("plant", "mass_kg", 1e-320), "natural frequency of inf"),
+    ("cell past Nyquist", _set("plant", "stiffness_n_per_m", 4.0e8), "below the Nyquist"),
+    ("cell slower than 1 mHz", _set("plant", "stiffness_n_per_m", 1e-8), "from 0.001 Hz"),
     ("missing key", _delete("plant", "stiffness_n_per_m"), "stiffness_n_per_m is missing"),
     ("missing table", _delete(None, "limits"), "[limits] is missing"),
     ("empty name", _set("cell", "name", "  "), "[cell] name"),
@@ -378,7 +383,7 @@ def test_with_updates_replaces_and_revalidates() -> None:
     assert demo.acquisition.sample_rate_hz == 2000.0  # original untouched
     with pytest.raises(ProfileError, match="did you mean 'plant'"):
         demo.with_updates(plants=demo.plant)
-    with pytest.raises(ProfileError, match="force_bandwidth_hz"):
+    with pytest.raises(ProfileError, match=r"natural frequency of 159\.155 Hz.*Nyquist"):
         demo.with_updates(acquisition=AcquisitionSection(sample_rate_hz=1.5))  # Nyquist 0.75 Hz
 
 

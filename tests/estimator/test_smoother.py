@@ -120,3 +120,15 @@ def test_smoothing_leaves_out_the_samples_the_live_pass_judged_outliers() -> Non
     # each row (on a spike's own row the live estimate states both hypotheses, so the
     # smoother's row is taken there).
     assert np.all(np.abs(dirty["force_n"] - clean["force_n"]) < 0.5 * dirty["force_u_n"])
+
+
+def test_a_search_point_where_the_filter_breaks_down_is_passed_over() -> None:
+    # Found by the fuzzing suite: a noise-free invented record whose first sample is 1 s
+    # before the rest. Its likelihood grows as the noise shrinks, until a tiny noise after
+    # the long gap makes the filter break down numerically; that point must count as
+    # "least likely", not end the smoothing with an internal error.
+    t = np.arange(1000) * DT
+    x = 2.5e-5 + 1e-8 * np.sin(2 * np.pi * 7 * t)  # the fuzzed record, 10 N and a wobble
+    t[0] = -1.0
+    sm = smooth_record(_observer(), t, x)
+    assert np.all(np.isfinite(sm["force_n"])) and np.all(np.isfinite(sm["force_u_n"]))
