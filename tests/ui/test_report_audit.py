@@ -44,7 +44,7 @@ def test_report_is_self_contained_and_an_untouched_run_audits_identical(
     assert main(["report", str(folder)]) == 0
     out = folder.parent / f"{folder.name}-report"
     page = (out / "report.html").read_text()
-    assert "data:image/png;base64," in page and 'src="plot.png"' not in page
+    assert "<svg" in page and "<img" not in page  # figures inline, nothing to fetch
     assert "U = 2u_c (k = 2" in page and "forcelens report" in page and "Caution" not in page
     assert "Force testing can hurt people" in page
     assert "expanded U (k = 2, about 95 %)" in page  # the GUM budget of a settled reading
@@ -53,6 +53,13 @@ def test_report_is_self_contained_and_an_untouched_run_audits_identical(
         30.0, rel=0.01
     )
     assert (out / "report.pdf").read_bytes()[:5] == b"%PDF-"
+    # the summary comes before any long table, the table of every change last
+    assert (
+        page.index("<h2>Summary")
+        < page.index("<h2>Displacement")
+        < page.index("<h2>Every load change")
+    )
+    assert page.count("<h2>") == page[: page.index("<h2>Every load change")].count("<h2>") + 1
     capsys.readouterr()
     assert main(["audit", str(folder)]) == 0
     text = capsys.readouterr().out
@@ -113,3 +120,42 @@ def test_audit_with_another_profile_says_so(
     capsys.readouterr()
     assert main(["audit", str(folder), "--profile", str(other)]) == 1
     assert "profile swapped on purpose (--profile)" in capsys.readouterr().out
+
+
+def test_the_report_s_commands_run_as_printed(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    # Issue 12: the report's "reproduce" command did not run (audit ... --out; the
+    # option is --report). Both commands are taken from the page and run as printed.
+    import html
+    import re
+    import shlex
+
+    folder = _record(tmp_path / "runs")
+    out = tmp_path / "rep"
+    assert main(["report", str(folder), "--out", str(out)]) == 0
+    page = html.unescape((out / "report.html").read_text())
+    reproduce = re.search(r"Reproduce this report: <code>(.*?)</code>", page).group(1)
+    check = re.search(r"Check it: <code>(.*?)</code>", page).group(1)
+    before = json.loads((out / "figures.json").read_text())
+    capsys.readouterr()
+    argv = shlex.split(reproduce)
+    assert argv[0] == "forcelens" and main(argv[1:]) == 0
+    assert json.loads((out / "figures.json").read_text()) == before  # the same figures
+    capsys.readouterr()
+    argv = shlex.split(check)
+    assert argv[0] == "forcelens" and main(argv[1:]) == 0
+    assert "identical" in capsys.readouterr().out
+
+
+def test_report_pdf_is_a_multi_page_document(tmp_path: Path) -> None:
+    # Reference: pypdf is not a dependency; the PDF standard's page objects are counted
+    # in the file itself ("/Type /Page" per page, ISO 32000-1 §7.7.3.3).
+    import re
+
+    folder = _record(tmp_path / "runs")
+    out = tmp_path / "rep"
+    assert main(["report", str(folder), "--out", str(out)]) == 0
+    pdf = (out / "report.pdf").read_bytes()
+    pages = len(re.findall(rb"/Type\s*/Page[^s]", pdf))
+    assert pages >= 4  # summary, overview, close-ups, provenance, every change

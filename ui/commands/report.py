@@ -1,17 +1,15 @@
 """``forcelens report``: a self-contained HTML report of a run, a PDF, and its figures.
 
 The report is written to ``<run>-report/`` beside the run (or ``--out``): ``report.html``
-(plots embedded, readable without forcelens), ``report.pdf`` (Qt's PDF writer),
-``figures.json`` (every number shown, for ``forcelens audit``) and ``plot.png``.
+(summary first, figures inline as SVG, readable without forcelens), ``report.pdf`` (a
+multi-page A4 PDF drawn by matplotlib) and ``figures.json`` (every number shown, for
+``forcelens audit``). The parts are in ``ui/report/``; no Qt is needed.
 """
 
 from __future__ import annotations
 
 import argparse
-import base64
-import html
 import json
-import shlex
 from pathlib import Path
 from typing import Any
 
@@ -45,199 +43,94 @@ def default_report_folder(run_folder: Path) -> Path:
 
 
 def run(args: argparse.Namespace) -> int:
+    import numpy as np
+
+    from daq.runs import verify_run
+    from estimator.uncertainty import ForceUncertainty
     from ui.figures import compute_figures, replay_run
+    from ui.progress import bar, wanted
+    from ui.report import plots
+    from ui.report.html import page
+    from ui.report.pdf import write_pdf
+    from ui.report.summary import summarise
 
     folder = Path(args.run_folder)
     out = Path(args.out) if args.out else default_report_folder(folder)
-    names = ["report.html", "figures.json", "plot.png", "report.pdf"]
+    names = ["report.html", "figures.json", "report.pdf"]
     replaced = claim_folder(out, names, inputs=[folder], force=args.force)
-    from ui.progress import wanted
-
     with wanted():
         replayed = replay_run(folder)
     figures = compute_figures(replayed)
     out.mkdir(parents=True, exist_ok=True)
-    command = f"forcelens report {shlex.quote(str(folder))}" + (
-        f" --out {shlex.quote(str(args.out))}" if args.out else ""
-    )
-    figures["command"] = command
+    summary = summarise(replayed, figures, folder, out, verify_run(folder))
+    figures["command"] = summary.reproduce
     text = json.dumps(figures, indent=2, ensure_ascii=False, allow_nan=False)
     write_text_atomic(out / "figures.json", text + "\n")
-    plot = _plot(replayed, out / "plot.png")
-    body = _body(replayed, figures, command)
-    encoded = base64.b64encode(plot.read_bytes()).decode("ascii")
-    page = _page(body.replace("{{PLOT}}", f"data:image/png;base64,{encoded}"))
-    write_text_atomic(out / "report.html", page)
-    written = ["report.html", "figures.json", "plot.png"]
-    if _pdf(_page(body.replace("{{PLOT}}", "plot.png")), plot, out / "report.pdf"):
+    est = replayed.estimates
+    x = np.asarray(replayed.data.samples["displacement_m"])
+    budget = ForceUncertainty.from_profile(replayed.profile)
+    traces = plots.Traces(
+        time_s=est["time_s"],
+        displacement_m=x,
+        force_n=est["force_n"],
+        expanded_u_n=budget.expanded_n(est["force_n"], est["force_u_n"]),
+        static_force_n=replayed.profile.plant.stiffness_n_per_m * x,
+        title=f"run {summary.run_id}: displacement and force ± U (k = 2)",
+    )
+    changes = figures["changes"]
+    floor = 2.0 * float(np.median(traces.expanded_u_n[np.isfinite(traces.expanded_u_n)]))
+    shown = plots.closeup_changes(changes)
+    note = (
+        ""
+        if len(shown) == len(changes)
+        else f"The {len(shown)} largest of {len(changes)} load changes are shown; every one "
+        "is in the table at the end."
+    )
+    with bar(1 + (len(shown) + 5) // 6, "drawing", unit="figures") as drawn:
+        figs = [plots.overview(traces)]
+        drawn.update(1)
+        for fig in plots.closeups(traces, changes, floor):
+            figs.append(fig)
+            drawn.update(1)
+        svgs = [plots.svg_text(f) for f in figs]
+    write_text_atomic(
+        out / "report.html", page(summary, figures, replayed, svgs[0], svgs[1:], note)
+    )
+    written = ["report.html", "figures.json"]
+    try:
+        with replacing(out / "report.pdf") as tmp:
+            write_pdf(tmp, summary, figures, figs, _provenance(replayed, figures, summary))
         written.append("report.pdf")
+    finally:
+        for fig in figs:
+            plots.close(fig)
     print(f"wrote {', '.join(written)} to {out}")
-    for note in replaced:
-        print(note)
+    for note_line in replaced:
+        print(note_line)
     return 0
 
 
-def _plot(replayed: Any, path: Path) -> Path:
-    import numpy as np
-
-    from estimator.uncertainty import ForceUncertainty
-    from ui.plots import RunTraces, render_run_png
-
-    est = replayed.estimates
-    x = np.asarray(replayed.data.samples["displacement_m"])
-    k = replayed.profile.plant.stiffness_n_per_m
-    return render_run_png(
-        RunTraces(
-            time_s=est["time_s"],
-            displacement_m=x,
-            force_n=est["force_n"],
-            force_expanded_u_n=ForceUncertainty.from_profile(replayed.profile).expanded_n(
-                est["force_n"], est["force_u_n"]
-            ),
-            static_force_n=k * x,
-            title=f"run {replayed.data.description['run_id']}",
-        ),
-        path,
-        size=(1400, 900),
-    )
-
-
-def _cell(value: Any, fmt: str) -> str:
-    return "—" if value is None else format(value, fmt)
-
-
-def _body(replayed: Any, figures: dict[str, Any], command: str) -> str:
+def _provenance(replayed: Any, figures: dict[str, Any], summary: Any) -> list[str]:
+    """The provenance section as text lines, for the PDF."""
     d = replayed.data.description
-    closing = replayed.data.closing
     prof = replayed.profile
-    e = html.escape
-    rows = "".join(
-        "<tr>"
-        + "".join(
-            f"<td>{_cell(c[key], fmt)}</td>"
-            for key, fmt in (
-                ("t_start_s", ".4f"),
-                ("before_n", ".4g"),
-                ("after_n", ".4g"),
-                ("rise_ms", ".2f"),
-                ("overshoot_pct", ".2f"),
-                ("settle_ms", ".2f"),
-                ("settle50_ms", ".2f"),
-                ("static_settle_ms", ".2f"),
-                ("ratio", ".1f"),
-            )
-        )
-        + "</tr>"
-        for c in figures["changes"]
-    )
-    alarms = "".join(
-        f"<li>{e(a['event'])} at {a['time_s']:.4f} s ({e(a['clock'])} clock): "
-        f"{e(a['message'])}</li>"
-        for a in figures["alarms"]
-    )
-    status = "closed, " + closing["status"] if closing else "NOT closed (ended without closing)"
-    hashes = "".join(
-        f"<li><code>{e(name)}</code>: {entry['records']} records, SHA-256 "
-        f"<code>{entry['sha256']}</code></li>"
-        for name, entry in (closing or {}).get("streams", {}).items()
-    )
-    return f"""
-<h1>forcelens run report</h1>
-<p class="caution">Force testing can hurt people: stay within the cell's rated capacity and
-follow your laboratory's procedures and local codes. This report does not replace an
-accredited calibration.</p>
-<table class="facts">
-<tr><th>run</th><td>{e(d["run_id"])} ({e(status)})</td></tr>
-<tr><th>started (UTC)</th><td>{e(d["started_utc"])}</td></tr>
-<tr><th>operator note</th><td>{e(d["operator_note"])}</td></tr>
-<tr><th>tags</th><td>{e(", ".join(d["tags"]))}</td></tr>
-<tr><th>cell</th><td>{e(prof.cell.name)}</td></tr>
-<tr><th>profile source</th><td>{e(prof.cell.source)}; calibrated
- {e(prof.cell.calibration_date or "never")}</td></tr>
-<tr><th>plant</th><td>m = {prof.plant.mass_kg:.6g} kg, k = {prof.plant.stiffness_n_per_m:.6g}
- N/m, ζ = {prof.plant.damping_ratio:.4g}; sample rate
- {prof.acquisition.sample_rate_hz:g} Hz</td></tr>
-<tr><th>software</th><td>recorded with {e(d["software_version"])}; this report made with
- {e(figures["software_version"])}</td></tr>
-<tr><th>samples</th><td>{figures["samples"]}</td></tr>
-</table>
-<h2>Displacement and force</h2>
-<p>Force with its expanded uncertainty band U = 2u_c (k = 2, about 95 %; u_c combines the
-observer, the calibration and the resolution by the GUM law of propagation); the static
-conversion k·x for comparison.</p>
-<img alt="plots" src="{{{{PLOT}}}}">
-<h2>Load changes</h2>
-<p>Settling band ±2 % of each step (common practice), never narrower than 2U; "settle" from
-the start of the change, "settle50" from its 50 % crossing (IEEE Std 181).</p>
-<table class="grid"><tr><th>start s</th><th>from N</th><th>to N</th><th>rise ms</th>
-<th>overshoot %</th><th>settle ms</th><th>settle50 ms</th><th>k·x settle ms</th>
-<th>k·x / estimate</th></tr>{rows}</table>
-<h2>Uncertainty of a settled reading</h2>
-<p>GUM law of propagation (JCGM 100:2008) at the largest settled level, standard
-uncertainties (k = 1) unless stated:</p>
-<pre>{e(_budget_text(figures["uncertainty"]))}</pre>
-<h2>Alarms</h2>
-<ul>{alarms or "<li>none</li>"}</ul>
-<h2>Provenance</h2>
-<ul>{hashes or "<li>no closing record</li>"}</ul>
-<p>Profile used: SHA-256 <code>{figures["profile_sha256"]}</code>. Replayed estimates: SHA-256
-<code>{figures["estimates_sha256"]}</code>.</p>
-<p>Reproduce this report with <code>{e(command)}</code>; check it with
-<code>forcelens audit {e(command.split(" ", 2)[2])}</code>.</p>
-"""
-
-
-def _budget_text(u: dict[str, Any]) -> str:
-    rows = [
-        ("observer (noise, force model)", u["observer_n"]),
-        ("calibration (stiffness)", u["calibration_n"]),
-        ("resolution (one count, rectangular)", u["resolution_n"]),
-        ("model (relative term)", u["model_n"]),
-        ("combined u_c", u["combined_n"]),
-        ("expanded U (k = 2, about 95 %)", u["expanded_n_k2"]),
+    libraries = ", ".join(f"{k} {v}" for k, v in (d.get("libraries") or {}).items())
+    lines = [
+        f"profile: {prof.cell.source}; calibrated {prof.cell.calibration_date or 'never'}",
+        f"profile SHA-256 {figures['profile_sha256']}",
+        f"plant: m = {prof.plant.mass_kg:.6g} kg, k = {prof.plant.stiffness_n_per_m:.6g} N/m, "
+        f"ζ = {prof.plant.damping_ratio:.4g}; {prof.acquisition.sample_rate_hz:g} Hz",
+        f"recorded with forcelens {d['software_version']} "
+        f"({libraries or 'library versions not recorded'}); report made with "
+        f"{figures['software_version']}",
+        f"replayed estimates SHA-256 {figures['estimates_sha256']}",
     ]
-    lines = [f"at F = {u['force_n']:.6g} N"]
-    lines += [f"  {name:38s} {_cell(value, '.3g')} N" for name, value in rows]
-    return "\n".join(lines)
-
-
-def _page(body: str) -> str:
-    return (
-        "<!DOCTYPE html><html lang='en'><head><meta charset='utf-8'>"
-        "<title>forcelens run report</title><style>"
-        "body{font-family:sans-serif;max-width:1000px;margin:2em auto;color:#222}"
-        "img{max-width:100%}table.grid{border-collapse:collapse}"
-        "table.grid td,table.grid th{border:1px solid #bbb;padding:3px 6px;text-align:right}"
-        "table.facts th{text-align:left;padding-right:1em}"
-        ".caution{color:#6d4c00}code{font-size:90%}</style></head>"
-        f"<body>{body}</body></html>\n"
-    )
-
-
-def _pdf(page: str, plot: Path, path: Path) -> bool:
-    """Print the report to PDF with Qt's writer; False (and a note) when Qt cannot."""
-    try:
-        from pyqtgraph.Qt import QtCore, QtGui
-
-        from ui.plots import _qt_app
-
-        _qt_app()
-        with replacing(path) as tmp:
-            writer = QtGui.QPdfWriter(str(tmp))
-            writer.setPageSize(QtGui.QPageSize(QtGui.QPageSize.PageSizeId.A4))
-            writer.setResolution(150)
-            doc = QtGui.QTextDocument()
-            doc.addResource(
-                QtGui.QTextDocument.ResourceType.ImageResource,
-                QtCore.QUrl("plot.png"),
-                QtGui.QImage(str(plot)).scaledToWidth(900),
-            )
-            doc.setHtml(page)
-            doc.print_(writer)
-            del writer  # closes the file
-            if tmp.stat().st_size == 0:
-                raise OSError("Qt wrote an empty file")
-        return True
-    except Exception as exc:  # PDF is optional: the HTML report stands on its own
-        print(f"note: no PDF ({exc})")
-        return False
+    closing = replayed.data.closing or {}
+    for name, entry in closing.get("streams", {}).items():
+        lines.append(f"{name}: {entry['records']} records, SHA-256 {entry['sha256']}")
+    lines += ["", "alarms:"]
+    lines += [
+        f"  {a['event']} at {a['time_s']:.4f} s ({a['clock']} clock): {a['message']}"
+        for a in figures["alarms"]
+    ] or ["  none"]
+    return lines
