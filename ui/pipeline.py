@@ -102,27 +102,39 @@ class Tare:
         }
 
 
+def _whole(value: object) -> bool:
+    """A JSON whole number >= 0 (not a bool, not a float such as 1e999)."""
+    return isinstance(value, int) and not isinstance(value, bool) and value >= 0
+
+
+def _real(value: object) -> bool:
+    return isinstance(value, int | float) and not isinstance(value, bool)
+
+
 def tares_from_events(events: Iterable[Mapping[str, Any]]) -> list[Tare]:
     """The tares stored in a run's event log, in stream order.
 
-    Raises ValueError naming the event if a ``tare`` event lacks ``index`` or ``offset_m``.
+    Raises ValueError naming the event and the field if a ``tare`` event's ``index``,
+    ``offset_m``, ``n_samples`` or ``seq`` is missing or of the wrong kind.
     """
     tares = []
     for i, ev in enumerate(events):
         if ev.get("kind") != TARE_EVENT:
             continue
-        try:
-            index = int(ev["index"])
-            offset = float(ev["offset_m"])
-        except (KeyError, TypeError, ValueError) as exc:
-            raise ValueError(
-                f"event {i} (tare) lacks a valid index or offset_m ({exc}); "
-                "the run's event log is damaged"
-            ) from None
-        if not math.isfinite(offset) or index < 0:
-            raise ValueError(f"event {i} (tare): index {index} or offset_m {offset!r} is invalid")
-        seq = ev.get("seq")
-        tares.append(Tare(index, offset, int(ev.get("n_samples", 0)), seq))
+        index, offset = ev.get("index"), ev.get("offset_m")
+        n_samples, seq = ev.get("n_samples", 0), ev.get("seq")
+        problem = None
+        if not _whole(index):
+            problem = f"index {index!r} is not a sample number (a whole number >= 0)"
+        elif not (_real(offset) and math.isfinite(offset)):
+            problem = f"offset_m {offset!r} is not a finite number of metres"
+        elif not _whole(n_samples):
+            problem = f"n_samples {n_samples!r} is not a whole number >= 0"
+        elif seq is not None and not _whole(seq):
+            problem = f"seq {seq!r} is not a sequence number"
+        if problem:
+            raise ValueError(f"event {i} (tare): {problem}; the run's event log is damaged")
+        tares.append(Tare(index, float(offset), n_samples, seq))
     return sorted(tares, key=lambda t: t.index)
 
 

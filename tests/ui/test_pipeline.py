@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import re
+
 import numpy as np
 import pytest
 
@@ -132,6 +134,28 @@ def test_damaged_tare_event_is_named() -> None:
     assert tares_from_events([{"kind": TARE_EVENT, "index": 9, "offset_m": 1e-6}]) == [
         Tare(9, 1e-6, 0)
     ]
+
+
+@pytest.mark.parametrize(
+    ("field", "value", "words"),
+    [  # issue 15: an index of 1e999 (JSON reads it as infinity) ended in an OverflowError
+        ("index", float("inf"), "index inf is not a sample number"),
+        ("index", 2.5, "index 2.5"),
+        ("index", "a", "index 'a'"),
+        ("index", True, "index True"),
+        ("index", -1, "index -1"),
+        ("offset_m", float("nan"), "offset_m nan"),
+        ("offset_m", [1], "offset_m [1]"),
+        ("n_samples", "x", "n_samples 'x'"),
+        ("seq", 1.5, "seq 1.5"),
+    ],
+)
+def test_tare_event_fields_of_the_wrong_kind_are_named(
+    field: str, value: object, words: str
+) -> None:
+    event = {"kind": TARE_EVENT, "index": 9, "offset_m": 1e-6, field: value}
+    with pytest.raises(ValueError, match=re.escape(f"event 0 (tare): {words}")):
+        tares_from_events([event])
 
 
 def test_device_restart_restarts_the_observer_and_replays_identically() -> None:
