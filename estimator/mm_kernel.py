@@ -61,6 +61,7 @@ FLAG_OUT_REJECTED_BEFORE = 4  #: the previous (suspect) sample was judged an out
 _LOG_2PI = math.log(2.0 * math.pi)
 _SHOW_USED = 0.5  # a suspect row shows the sample used only at these odds or better
 _DECIDED = 0.05  # two-sample odds of a suspect beyond which the decision is hard
+_LOWEST_LOG_DENSITY = -1e300  # of a sample no model gives any density
 _JUMP_SUSPECT = 0.05  # posterior of the jump model from one sample that makes it suspect
 
 
@@ -165,11 +166,17 @@ def _weigh(z, R, x, P, mu, w):
         s_ = P[j, 0, 0] + R
         y_ = z - x[j, 0]
         w[j] = -0.5 * y_ * y_ / s_
-        if w[j] > emax:
+        if mu[j] > 0.0 and w[j] > emax:  # a model ruled out must not set the scale
             emax = w[j]
+    if not emax > -np.inf:
+        # no model gives the sample any density at all (a wild first sample, say):
+        # it says nothing about the modes, and its log density is the lowest finite one
+        for j in range(r):
+            w[j] = mu[j]
+        return _LOWEST_LOG_DENSITY, 1.0
     total = 0.0
     for j in range(r):
-        w[j] = mu[j] * math.exp(w[j] - emax) / math.sqrt(P[j, 0, 0] + R)
+        w[j] = mu[j] * math.exp(w[j] - emax) / math.sqrt(P[j, 0, 0] + R) if mu[j] > 0.0 else 0.0
         total += w[j]
     return emax - 0.5 * _LOG_2PI, total
 

@@ -628,3 +628,17 @@ def test_bad_tuning_is_named(field: str, value: float) -> None:
 def test_zero_measurement_variance_is_refused() -> None:
     with pytest.raises(ParameterError, match="measurement variance"):
         ForceObserver(CELL, DT, 0.0, 0.0)
+
+
+def test_a_wild_first_sample_does_not_stop_the_observer() -> None:
+    # Found by the fuzzing suite: a record whose first displacement is -1 m (the start-up
+    # then sets F = k·z0, thousands of newtons off), then an invented held load of 10 N.
+    # The next samples have no density under any model with a non-zero probability; the
+    # kernel divided by zero. Now: finite output, and the held load within 0.01 N after
+    # 50 ms (the observer restarts its belief, it does not stop).
+    t = np.arange(1000) * DT
+    z = np.full(t.size, 10.0 / STIFF) + np.random.default_rng(5).normal(0.0, NOISE, t.size)
+    z[0] = -1.0
+    est = make_observer().process(t, z)
+    assert np.all(np.isfinite(est["force_n"])) and np.all(np.isfinite(est["force_u_n"]))
+    assert np.max(np.abs(est["force_n"][t > 0.05] - 10.0)) < 0.01
