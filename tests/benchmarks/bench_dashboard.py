@@ -192,7 +192,6 @@ def main(argv: list[str]) -> int:
 
     def draw_all() -> None:
         t, x, f, u, kx = window.buffer.window(SPAN_S)
-        t = t - t[-1]  # the live axis: time before the newest sample (else out of view)
         window.c_x.setData(t, x, connect="all")
         window.c_force.setData(t, f, connect="all")
         window.c_static.setData(t, kx, connect="all")

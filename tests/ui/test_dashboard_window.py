@@ -74,7 +74,9 @@ def test_window_reads_the_simulated_cell_records_and_the_run_replays(
     again.seek(float(live["time_s"][-200]))
     again.redraw()
     i = again.playback.cursor
-    assert again.force_label.text() == f"{live['force_n'][i]:.3f} N"
+    # Digits from U (k = 2) as on screen (JCGM 100:2008 7.2.6; tests/ui/test_display_units.py).
+    expanded = 2.0 * again.playback.force_u_n[i]
+    assert again.force_label.text() == again.units.force_text(live["force_n"][i], expanded)
     assert "identical to live" in again.state_label.text()
     again.close()
 
@@ -108,10 +110,11 @@ def test_replay_mode_shows_the_recorded_numbers(qtbot, tmp_path: Path) -> None:
     window.redraw()
     i = window.playback.cursor
     # The readout is the estimate recorded live at that sample, to the digits shown.
-    assert window.force_label.text() == f"{live['force_n'][i]:.3f} N"
+    expanded = 2.0 * window.playback.force_u_n[i]
+    assert window.force_label.text() == window.units.force_text(live["force_n"][i], expanded)
     assert "identical to live" in window.state_label.text()
     assert window.step_table.rowCount() == 2
-    assert window.step_table.item(0, 2).text() == "50"
+    assert window.step_table.item(0, 2).text() == "50.00"
     # Jumping to an event puts it in the middle of the view.
     assert window.event_combo.count() > 1
     window._jump_to_event(1)

@@ -9,7 +9,7 @@ at that sample, the run's events with their times, and the table of load changes
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
@@ -22,12 +22,20 @@ __all__ = ["PlaybackEvent", "RunPlayback"]
 
 @dataclass(frozen=True)
 class PlaybackEvent:
-    """One event of the run's log placed on the time axis."""
+    """One event of the run's log placed on the time axis.
+
+    Attributes:
+        time_s: device time of the sample it is placed at, s.
+        index: that sample's position in the run.
+        kind, message: as in the run's log.
+        fields: the event's other keys (e.g. ``old``/``new`` of a settling change).
+    """
 
     time_s: float
     index: int
     kind: str
     message: str
+    fields: dict[str, Any] = field(default_factory=dict, compare=False)
 
     def label(self) -> str:
         """Text for the event list: time, kind and message."""
@@ -81,6 +89,9 @@ class RunPlayback:
         _, trace = monitor.update_with_trace(est)
         self.states = np.asarray(STATES, dtype=object)[trace.state]
         self.rule_text = monitor.describe()
+        self.rule, self.hold_samples = rule, monitor.hold_samples
+        # The observer's model probabilities per sample (p_hold, p_rate, p_jump), (3, n).
+        self.model_p = np.vstack([est["p_hold"], est["p_rate"], est["p_jump"]])
         alarms = AlarmSet.for_profile(self.profile, rule=rule, tares=[t.index for t in tares])
         self.alarm_changes = alarms.update(est, samples)
         self.time_s = est["time_s"].astype(float)
@@ -133,7 +144,10 @@ class RunPlayback:
                     continue
                 i = int(np.searchsorted(self.seq, int(seq), side="left"))
             i = min(max(i, 0), n - 1)
-            placed.append(PlaybackEvent(float(self.time_s[i]), i, ev["kind"], ev["message"]))
+            extra = {k: v for k, v in ev.items() if k not in ("kind", "message")}
+            placed.append(
+                PlaybackEvent(float(self.time_s[i]), i, ev["kind"], ev["message"], extra)
+            )
         return sorted(placed, key=lambda e: e.index)
 
     # --------------------------------------------------------------- reading
@@ -162,17 +176,18 @@ class RunPlayback:
             while j > 0 and self.states[j - 1] == "settled":
                 j -= 1
             valid_since = float(self.time_s[j])
-        active: dict[str, tuple[str, str, str, bool]] = {}
+        active: dict[str, tuple[str, str, str, bool, float]] = {}
         for c in self.alarm_changes:
             if c.index > i:
                 break
             if c.event == "raised":
-                active[c.alarm_id] = (c.alarm_id, c.severity, c.message, False)
+                since = self.alarm_time_s(c.index, c.clock)
+                active[c.alarm_id] = (c.alarm_id, c.severity, c.message, False, since)
             else:
                 active.pop(c.alarm_id, None)
         verdict = {True: "identical to live", False: "DIFFERS from live", None: "no live copy"}
         return WorkerStatus(
-            state=f"replay — {verdict[self.identical]}",
+            state=f"estimates {verdict[self.identical]}",
             port=str(self.folder),
             samples=i + 1,
             recording=self.run.description["run_id"],
@@ -182,9 +197,29 @@ class RunPlayback:
             displacement_m=float(self.displacement_m[i]),
             settling=state,
             settling_rule=self.rule_text,
+            rule=self.rule,
+            hold_samples=self.hold_samples,
             valid_since_s=valid_since,
             alarms=tuple(active.values()),
+            model=tuple(float(p) for p in self.model_p[:, i]),
         )
+
+    def alarm_time_s(self, index: int, clock: str) -> float:
+        """When an alarm raised at stream position `index` began, on the device time
+        axis: its sample's time, or for a host-clock alarm (the stalled stream, raised
+        at the first sample after the silence) the last sample before the silence."""
+        i = index - 1 if clock == "host" else index
+        return float(self.time_s[min(max(i, 0), self.time_s.size - 1)])
+
+    def expanded_u_over(self, t0_s: float, t1_s: float) -> float:
+        """Median U (k = 2) of the estimates in [t0_s, t1_s], N: the U of a level held
+        there (a few samples of a change within the span do not move it). NaN if the
+        span holds no finite estimate."""
+        lo = int(np.searchsorted(self.time_s, t0_s, side="left"))
+        hi = int(np.searchsorted(self.time_s, t1_s, side="right"))
+        u = self.force_u_n[lo:hi]
+        u = u[np.isfinite(u)]
+        return 2.0 * float(np.median(u)) if u.size else math.nan
 
     def seek(self, time_s: float) -> None:
         """Put the cursor on the last sample at or before `time_s`."""

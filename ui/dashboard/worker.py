@@ -68,9 +68,14 @@ class WorkerStatus:
     force_u_n: float = float("nan")  # combined standard uncertainty u_c (k = 1)
     displacement_m: float = float("nan")
     settling: str = "waiting"  # the settling monitor's state
-    settling_rule: str = ""  # the rule, in words
-    valid_since_s: float | None = None  # when the current reading became valid
-    alarms: tuple[tuple[str, str, str, bool], ...] = ()  # (id, severity, message, acknowledged)
+    settling_rule: str = ""  # the rule, in words (the estimator's, in N)
+    rule: Any = None  # the rule itself (estimator.monitor.SettlingRule), for our own words
+    hold_samples: int = 0  # the rule's hold window, in sample steps
+    valid_since_s: float | None = None  # when the current reading became valid (plotted time)
+    # (id, severity, message, acknowledged, raised at: plotted time, s)
+    alarms: tuple[tuple[str, str, str, bool, float], ...] = ()
+    # The observer's model probabilities (p_hold, p_rate, p_jump) at the latest estimate.
+    model: tuple[float, float, float] = (float("nan"), float("nan"), float("nan"))
     messages: tuple[str, ...] = field(default_factory=tuple)  # the latest ones, oldest first
     message_total: int = 0  # messages said since the start (the window shows the new ones)
     error: str = ""
@@ -329,11 +334,25 @@ class _Acquisition:
         self._t_last: float | None = None
         self._rule: str | None = None
         self._budget: Any = None
+        self._model = (float("nan"), float("nan"), float("nan"))
+        self._alarm_since: dict[str, float] = {}  # alarm id -> raised at (plotted time, s)
+        self._units: Any = None  # ui.display_units.CellUnits, made when first needed
 
     # ------------------------------------------------------------ process
+    @property
+    def units(self) -> Any:
+        """The cell's display units (`ui.display_units.CellUnits`)."""
+        if self._units is None:
+            from ui.display_units import CellUnits
+
+            self._units = CellUnits.for_profile(self.profile)
+        return self._units
+
     def _say(self, text: str) -> None:
-        stamp = time.strftime("%H:%M:%S")
-        self._messages.append(f"{stamp} {text}")
+        """A message for the window's log, stamped with the plotted device time of the
+        latest sample (the one clock on the screen); "t = —" before the first one."""
+        stamp = self.units.time_text(self._t_last) if self._t_last is not None else "t = —"
+        self._messages.append(f"{stamp}  {text}")
         self._message_total += 1
 
     def run(self) -> None:
@@ -417,7 +436,8 @@ class _Acquisition:
                         self._say(f"alarm {args[0]} acknowledged")
                 elif name == "tare":
                     tare = session.tare(requested_s=args[0])
-                    self._say(f"zero set: {tare.offset_m * 1e3:.6f} mm ({tare.n_samples} samples)")
+                    offset = self.units.displacement_text(tare.offset_m)
+                    self._say(f"zero set: {offset} subtracted ({tare.n_samples} samples)")
             except ValueError as exc:
                 self._say(f"{name} refused: {exc}")
 
@@ -432,6 +452,8 @@ class _Acquisition:
         t = t + self._t_offset + np.cumsum(jump)
         self._t_offset += float(jump.sum())
         self._t_last = float(t[-1])
+        last = est[-1]
+        self._model = (float(last["p_hold"]), float(last["p_rate"]), float(last["p_jump"]))
         k = self.profile.plant.stiffness_n_per_m
         static = k * (samples["displacement_m"] - session.pipeline.offset_m)
         self.buffer.append(
@@ -459,15 +481,17 @@ class _Acquisition:
         last = self.buffer.latest(1)
         rec = session.recording
         monitor, alarms = session.pipeline.monitor, session.pipeline.alarms
+        valid_since = monitor.valid_since_s if monitor is not None else None
         self._publish(
             settling=monitor.state if monitor is not None else "",
             settling_rule=self._rule_text(monitor),
-            valid_since_s=monitor.valid_since_s if monitor is not None else None,
-            alarms=tuple(
-                (a.alarm_id, a.severity, a.message, a.acknowledged) for a in alarms.active()
-            )
-            if alarms is not None
-            else (),
+            rule=monitor.rule if monitor is not None else None,
+            hold_samples=monitor.hold_samples if monitor is not None else 0,
+            # The monitor's device time, on the plotted clock (kept increasing across
+            # device restarts: see _push).
+            valid_since_s=None if valid_since is None else valid_since + self._t_offset,
+            alarms=self._active_alarms(alarms.active() if alarms is not None else []),
+            model=self._model,
             state=state or session.reader.state,
             rate_hz=st.rate_hz,
             drift_ppm=st.drift_ppm,
@@ -481,6 +505,24 @@ class _Acquisition:
             force_u_n=float(last[3, -1]) if last.shape[1] else float("nan"),
             displacement_m=float(last[1, -1]) if last.shape[1] else float("nan"),
         )
+
+    def _active_alarms(self, active: list[Any]) -> tuple[tuple[str, str, str, bool, float], ...]:
+        """The active alarms with when each was raised, on the plotted clock: a device-
+        clock alarm at its sample's time; a host-clock one (the stalled stream) at the
+        last sample before the silence, the newest sample when it was first seen."""
+        ids = {a.alarm_id for a in active}
+        self._alarm_since = {k: v for k, v in self._alarm_since.items() if k in ids}
+        rows = []
+        for a in active:
+            if a.alarm_id not in self._alarm_since:
+                if a.clock == "device":
+                    since = a.raised_time_s + self._t_offset
+                else:
+                    since = self._t_last if self._t_last is not None else float("nan")
+                self._alarm_since[a.alarm_id] = float(since)
+            since_s = self._alarm_since[a.alarm_id]
+            rows.append((a.alarm_id, a.severity, a.message, a.acknowledged, since_s))
+        return tuple(rows)
 
     def _publish(self, **changes: Any) -> None:
         values = {
