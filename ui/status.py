@@ -8,6 +8,10 @@ from typing import Any, TextIO
 
 import numpy as np
 
+from ui.dashboard.wording import rejected_word
+from ui.display_units import CellUnits
+from ui.model_in_force import model_in_force
+
 __all__ = ["StatusLine", "format_status"]
 
 
@@ -22,6 +26,8 @@ def format_status(
     rejected: int = 0,
     recording: str = "",
     budget: Any = None,
+    units: CellUnits | None = None,
+    framing: str = "",
 ) -> str:
     """One status line from the latest estimates (ESTIMATE_DTYPE, (n,), n ≥ 1).
 
@@ -29,28 +35,41 @@ def format_status(
     combined uncertainty; without it, the observer's part only.
 
     Shows device time, force ± U with k = 2, displacement, the settling state (in
-    brackets), the connection state, the
+    brackets), the model in force (`ui.model_in_force`), the connection state, the
     measured sample rate with its drift from the nominal rate, and the counts of lost
-    and rejected samples.
+    and rejected samples. With `units` (`ui.display_units.CellUnits.for_profile`) the
+    numbers are in the cell's units with the digits U supports, as on the dashboard;
+    with `framing` (the profile's) the rejected pieces are called lines or frames.
     """
     e = est[-1]
     u = float(e["force_u_n"])
     if budget is not None:  # the GUM combination of observer, calibration and resolution
         u = float(budget.combined_n(e["force_n"], u))
-    parts = [
-        f"t {e['time_s']:8.3f} s",
-        f"F {e['force_n']:10.4f} N ± {2.0 * u:.4f} N (U, k=2)",
-        f"x {e['displacement_m'] * 1e3:9.6f} mm",
-    ]
+    if units is None:
+        parts = [
+            f"t {e['time_s']:8.3f} s",
+            f"F {e['force_n']:10.4f} N ± {2.0 * u:.4f} N (U, k=2)",
+            f"x {e['displacement_m'] * 1e3:9.6f} mm",
+        ]
+    else:
+        force, expanded = float(e["force_n"]), 2.0 * u
+        parts = [
+            units.time_text(float(e["time_s"])),
+            f"F {units.force_text(force, expanded)} ± {units.u_text(expanded)} (U, k=2)",
+            f"x {units.displacement_text(float(e['displacement_m']))}",
+        ]
     if settling:
         parts.append(f"[{settling.upper()}]")
+    model = model_in_force(e["p_hold"], e["p_rate"], e["p_jump"])
+    if model.known:
+        parts.append(model.headline())
     if state:
         parts.append(state)
     if rate_hz is not None:
         drift = f" ({drift_ppm:+.0f} ppm)" if drift_ppm is not None else ""
         parts.append(f"{rate_hz:8.1f} S/s{drift}")
     parts.append(f"lost {lost}")
-    parts.append(f"bad {rejected}")
+    parts.append(f"{rejected} {rejected_word(framing)}" if framing else f"bad {rejected}")
     if recording:
         parts.append(f"rec {recording}")
     return "  ".join(parts)

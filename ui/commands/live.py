@@ -149,6 +149,8 @@ def _simulated_cell(args: argparse.Namespace, profile: Any) -> Any:
 def _acquire(args: argparse.Namespace, profile: Any, port: str, cell: Any) -> int:
     from estimator.uncertainty import ForceUncertainty
     from ui.console import HELP, Console, start_line_reader
+    from ui.dashboard.wording import rejected_word
+    from ui.display_units import CellUnits
     from ui.recording import open_recording
     from ui.session import LiveSession
     from ui.status import StatusLine, format_status
@@ -168,6 +170,7 @@ def _acquire(args: argparse.Namespace, profile: Any, port: str, cell: Any) -> in
         print(f"reading rule: {session.pipeline.monitor.describe()}", flush=True)
     status = StatusLine(enabled=not args.quiet)
     budget = ForceUncertainty.from_profile(profile)
+    units = CellUnits.for_profile(profile)  # the status line in the cell's units, as on screen
     console = Console(session)
     typed = None
     if sys.stdin.isatty() and not args.quiet:
@@ -211,6 +214,8 @@ def _acquire(args: argparse.Namespace, profile: Any, port: str, cell: Any) -> in
                             rejected=st.decoder.rejected,
                             recording=recording.run_id if recording else "",
                             budget=budget,
+                            units=units,
+                            framing=profile.acquisition.framing,
                         )
                     )
                 while typed is not None and not typed.empty():
@@ -242,9 +247,10 @@ def _acquire(args: argparse.Namespace, profile: Any, port: str, cell: Any) -> in
             raise
         status.finish()
         summary = session.close(outcome, reason=reason)
+    bad = rejected_word(profile.acquisition.framing)  # lines or frames, as on the status line
     print(
         f"{reason}: {summary['samples']} samples, lost {summary['samples_lost']}, "
-        f"bad frames {summary['rejected_frames']}, reconnects {summary['reconnects']}"
+        f"{bad} {summary['rejected_frames']}, reconnects {summary['reconnects']}"
     )
     if recording is not None:
         print(f"run {recording.run_id} closed in {recording.folder}")
