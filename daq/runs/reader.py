@@ -20,6 +20,7 @@ from daq.runs.layout import (
     DESCRIPTION_FILE,
     EVENT_RESERVED,
     EVENTS_FILE,
+    FLUSH_INTERVAL_MAX_S,
     RUN_FORMAT,
     RUN_VERSION,
     SHA256_RE,
@@ -28,6 +29,7 @@ from daq.runs.layout import (
     layout_text,
     sha256_of,
 )
+from daq.runs.loss import lost_data_problems
 from daq.samples import SAMPLE_DTYPE
 
 
@@ -56,6 +58,11 @@ class RunInfo:
     def closed(self) -> bool:
         """True when ``closing.json`` exists."""
         return self.closing is not None
+
+    @property
+    def flush_interval_s(self) -> float:
+        """The writer's flush interval (the longest allowed for runs that predate it)."""
+        return float(self.description.get("flush_interval_s", FLUSH_INTERVAL_MAX_S))
 
     @property
     def status(self) -> str | None:
@@ -215,6 +222,16 @@ def _check_description(path: Path, data: object) -> dict[str, np.dtype]:
     if not isinstance(libraries, dict) or not all(isinstance(v, str) for v in libraries.values()):
         raise RunFormatError(
             f"{path}: libraries = {libraries!r}: must map library names to version strings"
+        )
+    flush = data.get("flush_interval_s", FLUSH_INTERVAL_MAX_S)  # absent in older runs
+    if not (
+        isinstance(flush, int | float)
+        and not isinstance(flush, bool)
+        and 0.0 < flush <= FLUSH_INTERVAL_MAX_S
+    ):
+        raise RunFormatError(
+            f"{path}: flush_interval_s = {flush!r}: must be a number of seconds > 0 and "
+            f"<= {FLUSH_INTERVAL_MAX_S:g}"
         )
     _need(path, data, "acquisition", dict, "a mapping")
     streams = _need(path, data, "streams", dict, "a mapping of stream name -> layout")
@@ -432,11 +449,13 @@ def read_run(
     if problems:
         raise RunFormatError("; ".join(problems))
     warnings: list[str] = []
+    streams = {name: _load_stream(info, name, memmap) for name in info.dtypes}
     if info.closing is None:
-        warnings.append(
+        lost = lost_data_problems(str(info.folder), info.flush_interval_s, streams, events)
+        warnings += lost or [
             f"{info.folder}: no {CLOSING_FILE}: the recording did not finish (crash or "
             "still running); everything flushed before that is read"
-        )
+        ]
     for name, extra in info.torn_bytes.items():
         if extra:
             warnings.append(
@@ -447,7 +466,6 @@ def read_run(
         warnings.append(
             f"{info.folder / EVENTS_FILE}: torn last line ({torn_line_bytes} bytes) ignored"
         )
-    streams = {name: _load_stream(info, name, memmap) for name in info.dtypes}
     return RunData(
         description=info.description,
         samples=streams["samples"],

@@ -9,6 +9,7 @@ import numpy as np
 
 from daq.errors import RunFormatError
 from daq.runs.layout import CLOSING_FILE, EVENTS_FILE
+from daq.runs.loss import lost_data_problems
 from daq.runs.reader import (
     _closing_problems,
     _load_stream,
@@ -113,6 +114,9 @@ def verify_run(folder: str | os.PathLike[str]) -> VerifyReport:
         if extra:
             problems.append(f"{_stream_path(info, name)}: {extra} bytes of a torn last record")
     samples = _load_stream(info, "samples", use_memmap=True)
+    if info.closing is None and event_lines is not None:
+        streams = {name: _load_stream(info, name, use_memmap=True) for name in info.dtypes}
+        problems += lost_data_problems(str(info.folder), info.flush_interval_s, streams, events)
     seq_problems, seq_notes = _sequence_findings(
         np.asarray(samples["seq"]), np.asarray(samples["flags"])
     )

@@ -195,6 +195,7 @@ class RunWriter:
             "profile_toml": profile_toml,
             "software_version": version,
             "libraries": libs,
+            "flush_interval_s": float(flush_interval_s),
             "acquisition": acq_dict,
             "streams": {
                 name: {

@@ -160,11 +160,13 @@ def _replay_run(args: argparse.Namespace, folder: Path, speed: float) -> int:
         print("differs from the live estimates, as expected: --profile replaces the run's own")
         return 0
     if same:
+        lost = any("data lost" in w for w in data.warnings)
+        why = "records were removed after the recording" if lost else "the run ended mid-flush"
         print(
             f"the first {n} estimates are identical to the live ones; the live stream holds "
-            f"{live.size} and the samples {estimates.size} (the run ended mid-flush)"
+            f"{live.size} and the samples {estimates.size} ({why})"
         )
-        return 0
+        return 1 if lost else 0
     live_rows = np.asarray(live[:n]).view(np.uint8).reshape(n, -1)
     replay_rows = estimates[:n].view(np.uint8).reshape(n, -1)
     first = int(np.flatnonzero((live_rows != replay_rows).any(axis=1))[0])
