@@ -20,8 +20,9 @@ from estimator.profile import default_demo_profile
 from ui.dashboard import palette
 from ui.dashboard.buffer import TraceBuffer
 from ui.dashboard.window import SIMULATED_LABEL, DashboardWindow
-from ui.dashboard.wording import LIVE_ONLY_REASON, NO_ALARMS
+from ui.dashboard.wording import LIVE_ONLY_REASON, NO_ALARMS, event_text
 from ui.dashboard.worker import WorkerStatus
+from ui.display_units import CellUnits
 from ui.safety import CAUTION
 
 RATE = 2000.0  # the demo profile's sample rate, Hz
@@ -222,3 +223,17 @@ def test_replay_looks_like_replay(qtbot) -> None:
     assert window.record_button.toolTip() == "Connect to a cell first."
     assert not any(line.isVisible() for line in window.cursors)
     window.close()
+
+
+def test_one_word_for_the_zero_in_the_button_and_the_run_log() -> None:
+    # The run log stores a zero under the kind "tare" (docs/run-format.md); the window
+    # calls it by the button's word everywhere.
+    units = CellUnits.for_profile(default_demo_profile())
+    fields = {"index": 1000, "seq": 1000, "offset_m": 1.234e-6, "n_samples": 200}
+    text = event_text("tare", "zero set to 1.234000e-06 m from 200 samples", fields, 0.5, units)
+    assert text == "t = 0.5000 s  zero: set, 1.23 µm subtracted"
+    assert "tare" not in text
+    settling = {"old": "settled", "new": "changing"}
+    assert event_text("settling", "…", settling, 0.3005, units) == (
+        "t = 0.3005 s  settling: settled → changing"
+    )

@@ -131,9 +131,9 @@ def event_text(
     if kind == "settling" and fields.get("old") and fields.get("new"):
         what = f"{fields['old']} → {fields['new']}"
     elif kind == "tare":
-        what = "zero set"
+        what = "set"
         if isinstance(fields.get("offset_m"), int | float):
-            what += f" ({units.displacement_text(float(fields['offset_m']))} subtracted)"
+            what += f", {units.displacement_text(float(fields['offset_m']))} subtracted"
     elif kind == "alarm" and fields.get("event"):
         what = f"{fields['event']}: {message}"
     else:
