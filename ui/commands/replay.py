@@ -16,6 +16,7 @@ from pathlib import Path
 from typing import Any
 
 from ui.outputs import add_force_option, claim_file
+from ui.unverified import add_unverified_option
 
 __all__ = ["register"]
 
@@ -59,6 +60,7 @@ def register(subparsers: Any) -> None:
         help="also use later samples (Rauch-Tung-Striebel smoother); offline only, slower",
     )
     add_force_option(p)
+    add_unverified_option(p)
     p.set_defaults(run=run)
 
 
@@ -125,11 +127,15 @@ def _replay_run(args: argparse.Namespace, folder: Path, speed: float) -> int:
     from daq.runs import read_run
     from estimator.profile import load_profile
     from ui.pipeline import ESTIMATE_STREAM, tares_from_events
+    from ui.unverified import check_verifiable
     from ui.wiring import profile_from_text
 
+    check_verifiable(folder, args.unverified)
     data = read_run(folder)
     for warning in data.warnings:
         print(f"warning: {warning}", file=sys.stderr)
+    if data.warnings:
+        print("UNVERIFIED run (--unverified): the estimates rest on what is left of it")
     recorded_profile = profile_from_text(
         data.description["profile_toml"], f"{folder / 'run.json'} [profile_toml]"
     )

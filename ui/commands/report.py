@@ -14,6 +14,7 @@ from pathlib import Path
 from typing import Any
 
 from ui.outputs import add_force_option, claim_folder, replacing, write_text_atomic
+from ui.unverified import add_unverified_option
 
 __all__ = ["default_report_folder", "register"]
 
@@ -33,6 +34,7 @@ def register(subparsers: Any) -> None:
     p.add_argument("run_folder", metavar="RUN", help="run folder")
     p.add_argument("--out", help="output folder (default: RUN-report beside the run)")
     add_force_option(p)
+    add_unverified_option(p)
     p.set_defaults(run=run)
 
 
@@ -53,11 +55,15 @@ def run(args: argparse.Namespace) -> int:
     from ui.report.html import page
     from ui.report.pdf import write_pdf
     from ui.report.summary import summarise
+    from ui.unverified import check_verifiable
 
     folder = Path(args.run_folder)
     out = Path(args.out) if args.out else default_report_folder(folder)
     names = ["report.html", "figures.json", "report.pdf"]
     replaced = claim_folder(out, names, inputs=[folder], force=args.force)
+    unverified = check_verifiable(folder, args.unverified)
+    if unverified:
+        print("UNVERIFIED run (--unverified): the report rests on what is left of it")
     with wanted():
         replayed = replay_run(folder)
     figures = compute_figures(replayed)
