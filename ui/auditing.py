@@ -141,20 +141,31 @@ def audit_run(
             "profile swapped on purpose (--profile)",
             "other profile",
         )
-    likely = _likely(newer, version, replayed.own_profile, verified.problems)
+    # a run that only crashed (not closed, maybe a torn last record, nothing lost beyond a
+    # flush) has intact data up to its last flush: differences there are not explained by
+    # the crash, and nothing after it can be checked
+    crashed = bool(verified.problems) and all(_crash_symptom(p) for p in verified.problems)
+    problems = [] if crashed else verified.problems
+    n_samples = int(replayed.data.samples.size)
+    likely = _likely(newer, version, replayed.own_profile, problems)
     libraries = library_changes(replayed.data.description.get("libraries"))
-    if libraries and not verified.problems and replayed.own_profile:
+    if libraries and not problems and replayed.own_profile:
         said = "other library versions (a bit-identical replay depends on them): "
         said += ", ".join(libraries)
         likely = (f"{likely[0]}; also {said}", likely[1]) if newer else (said, "other library")
-    explained = newer and replayed.own_profile and not verified.problems
+    explained = newer and replayed.own_profile and not problems
     live = replayed.data.streams.get(ESTIMATE_STREAM)
     if live is not None:
         n = min(live.size, replayed.estimates.size)
         a = live[:n].view("u1").reshape(n, -1)
         b = replayed.estimates[:n].view("u1").reshape(n, -1)
         bad = (a != b).any(axis=1)
-        if bad.any() or live.size != replayed.estimates.size:
+        if crashed and not bad.any():
+            notes.append(
+                f"note: data intact up to the last flush: {n} samples replay bit for bit "
+                f"({live.size} live estimates on disk)"
+            )
+        elif bad.any() or live.size != replayed.estimates.size:
             first = int(bad.argmax()) if bad.any() else n
             found.add(
                 f"replayed estimates differ from those computed live: {int(bad.sum())} of "
@@ -169,6 +180,15 @@ def audit_run(
             )
     logged = _strip([e for e in replayed.data.events if e["kind"] in ("settling", "alarm")])
     again = _strip([_as_logged(e) for e in replayed.events])
+    if crashed:  # what was logged after the last flushed sample cannot be recomputed
+        after = [e for e in logged if e.get("index", -1) >= n_samples]
+        logged = [e for e in logged if e.get("index", -1) < n_samples]
+        again = [e for e in again if e.get("index", -1) < n_samples]
+        if after:
+            notes.append(
+                f"note: {len(after)} transition(s) logged after the last flushed sample "
+                "cannot be checked"
+            )
     if logged != again:
         found.add(
             f"settling and alarm transitions differ from those logged live "
@@ -182,7 +202,7 @@ def audit_run(
     stored_path = report_folder / "figures.json"
     if stored_path.exists():
         stored = json.loads(stored_path.read_text(encoding="utf-8"))
-        _compare_figures(stored, figures, found, data_changed=bool(verified.problems))
+        _compare_figures(stored, figures, found, data_changed=bool(problems))
         notes.append(f"compared with the report in {report_folder}")
     elif report:
         raise ValueError(f"{stored_path}: no such file; make the report with forcelens report")
@@ -219,6 +239,11 @@ def _first_difference(a: list[Any], b: list[Any]) -> int:
         if x != y:
             return i
     return min(len(a), len(b))
+
+
+def _crash_symptom(problem: str) -> bool:
+    """A `verify_run` problem a crash alone leaves: not closed, a torn last record."""
+    return ("not closed" in problem or "torn" in problem) and "data lost" not in problem
 
 
 def _cause(problem: str) -> tuple[str, str]:
