@@ -199,6 +199,8 @@ def test_live_killed_mid_run_leaves_a_readable_unclosed_run(
     report = verify_run(folder)
     assert not report.closed and "not closed" in report.text()
     capsys.readouterr()
-    assert main(["replay", str(folder)]) == 0
+    assert main(["replay", str(folder)]) == 1  # cannot be verified: refused unless asked
+    assert "--unverified" in capsys.readouterr().err
+    assert main(["replay", str(folder), "--unverified"]) == 0
     out = capsys.readouterr().out
-    assert "NOT closed" in out and "identical" in out
+    assert "UNVERIFIED" in out and "NOT closed" in out and "identical" in out
