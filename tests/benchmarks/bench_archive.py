@@ -101,7 +101,7 @@ def _start(workers: int) -> tuple[Any, Any]:
         n_workers=workers,
         threads_per_worker=1,
         processes=True,
-        dashboard_address=None,
+        dashboard_address=":0",  # any free port: 8787 may be taken
         silence_logs=logging.ERROR,
     )
     client = Client(cluster, set_as_default=False)

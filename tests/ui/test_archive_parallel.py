@@ -84,7 +84,7 @@ def test_serial_local_dask_and_a_two_worker_cluster_give_the_same_tables(
     assert "running on 2 local Dask worker processes" in capsys.readouterr().out
 
     with LocalCluster(
-        n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None
+        n_workers=2, threads_per_worker=1, processes=True, dashboard_address=":0"
     ) as cluster:
         address = cluster.scheduler_address
         remote = _impact(archive, "cluster", ["--scheduler", address])
@@ -137,10 +137,14 @@ def test_a_failing_task_is_an_outcome_and_order_is_kept() -> None:
 
 
 def test_an_outcome_computed_by_other_code_is_refused_for_its_run() -> None:
-    here = parallel.TaskOutcome(value=1, code="aaaa")
-    there = parallel.TaskOutcome(value=1, code="bbbb")
-    kept, refused = parallel._same_code([here, there], "aaaa")
-    assert kept == here
+    from ui.archive.fingerprint import task_code
+
+    names, digest = task_code()
+    assert "ui.archive.fingerprint" in names
+    here = parallel.TaskOutcome(value=1, code=(names, digest))
+    there = parallel.TaskOutcome(value=1, code=(names, "0123456789abcdef"))
+    assert parallel._same_code(here) == here
+    refused = parallel._same_code(there)
     assert refused.value is None and "other forcelens sources" in (refused.problem or "")
 
 

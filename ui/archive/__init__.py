@@ -2,6 +2,8 @@
 
 * `parallel` — one task per run, serially, on local Dask worker processes or on an
   existing Dask cluster; results in the order of the runs whatever the workers;
+* `fingerprint` — which forcelens modules and libraries computed a result, so that a
+  result from a worker running other code is refused;
 * `progress` — the progress bar over runs;
 * `impact` — one run replayed with its own profile and with a corrected one: the
   settled readings and load changes, old and new;

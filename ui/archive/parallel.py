@@ -139,13 +139,14 @@ class TaskOutcome:
         problem: the one-line message of a ValueError or OSError the task raised (a run
             that cannot be read), else None.
         fault: any other exception (a fault of forcelens, a lost worker), else None.
-        code: the digest of the code that ran the task (`code_fingerprint`).
+        code: the forcelens modules that ran the task and their digest
+            (``ui.archive.fingerprint.task_code``), or None.
     """
 
     value: Any = None
     problem: str | None = None
     fault: BaseException | None = None
-    code: str = ""
+    code: tuple[tuple[str, ...], str] | None = None
 
     @property
     def ok(self) -> bool:
@@ -155,12 +156,12 @@ class TaskOutcome:
 
 def _guarded(task: Callable[[Any], Any], item: Any) -> TaskOutcome:
     """Run one task; a run that cannot be read becomes an outcome, not an error."""
-    from ui.archive.fingerprint import code_fingerprint
+    from ui.archive.fingerprint import task_code
 
     try:
-        return TaskOutcome(value=task(item), code=code_fingerprint())
+        return TaskOutcome(value=task(item), code=task_code())
     except (ValueError, OSError) as exc:
-        return TaskOutcome(problem=str(exc) or type(exc).__name__, code=code_fingerprint())
+        return TaskOutcome(problem=str(exc) or type(exc).__name__, code=task_code())
 
 
 def run_tasks(
@@ -178,23 +179,24 @@ def run_tasks(
 
     Raises OSError when a cluster cannot be reached or never gets a worker.
     """
-    from ui.archive.fingerprint import code_fingerprint
-
-    return _same_code(_placed(task, items, plan, advance), code_fingerprint())
+    return [_same_code(o) for o in _placed(task, items, plan, advance)]
 
 
-def _same_code(outcomes: list[TaskOutcome], code: str) -> list[TaskOutcome]:
-    """Outcomes computed by other code become problems of their runs."""
-    return [
-        o
-        if o.fault is not None or o.code == code
-        else TaskOutcome(
-            problem=f"computed by a worker running other forcelens sources or numeric "
-            f"libraries (code {o.code}, here {code}); install the same on every worker",
-            code=o.code,
-        )
-        for o in outcomes
-    ]
+def _same_code(outcome: TaskOutcome) -> TaskOutcome:
+    """An outcome computed by other code than this process's becomes a problem of its run."""
+    from ui.archive.fingerprint import digest_of
+
+    if outcome.fault is not None or outcome.code is None:
+        return outcome
+    names, digest = outcome.code
+    here = digest_of(names)
+    if digest == here:
+        return outcome
+    return TaskOutcome(
+        problem=f"computed by a worker running other forcelens sources or numeric libraries "
+        f"(code {digest}, here {here}); install the same on every worker",
+        code=outcome.code,
+    )
 
 
 def _placed(
@@ -210,7 +212,7 @@ def _placed(
                 n_workers=plan.workers,
                 threads_per_worker=1,
                 processes=True,
-                dashboard_address=None,
+                dashboard_address=":0",  # any free port: 8787 may be taken
                 silence_logs=logging.ERROR,
             ) as cluster,
             Client(cluster, set_as_default=False) as client,
