@@ -58,6 +58,11 @@ _DIRECTIONS = ("up", "down")
 # displacement transducer on a force cell rarely spans more than a few centimetres
 # (common practice). Only a warning: the reader cannot know.
 _SUSPECT_METRES = 0.05
+# Refused outright: a reading a metre from zero, a load of 10⁹ kg or N (the largest force
+# standard machines are tens of meganewtons). Both are typing or unit errors, and the fit
+# would overflow on them.
+_READING_MAX_M = 1.0
+_LOAD_MAX = 1e9
 
 
 class CalibrationSheetError(FramingError):
@@ -244,6 +249,24 @@ def parse_calibration_sheet(
                 value=values["load"],
             )
         r = _number(values["reading"], name, lineno, cols["reading"][0])
+        if not abs(r * scale) < _READING_MAX_M:
+            raise CalibrationSheetError(
+                f"is {abs(r * scale):g} m from zero: beyond any displacement transducer on a "
+                f"force cell (less than {_READING_MAX_M:g} m); check the value and the unit",
+                path=name,
+                line=lineno,
+                column=cols["reading"][0],
+                value=values["reading"],
+            )
+        if not w < _LOAD_MAX:
+            raise CalibrationSheetError(
+                f"is beyond {_LOAD_MAX:g} ({load_name}): no deadweight or force standard is "
+                "that large; check the value and the unit",
+                path=name,
+                line=lineno,
+                column=load_name,
+                value=values["load"],
+            )
         lines.append(lineno)
         series.append(values["series"])
         direction.append(d)

@@ -99,6 +99,7 @@ FLAG_JUMP = 8  #: the jump model is the most probable: the load is changing sudd
 FLAG_OUTLIER_BEFORE = 32  #: the previous sample was judged an outlier and not used
 
 _TABLE_CACHE = 256  # distinct step lengths kept
+_DISPLACEMENT_MAX_M = 1.0  # a reading this far from zero is a unit error
 
 
 @dataclass(frozen=True)
@@ -399,6 +400,13 @@ class ForceObserver:
             bad = int(np.nonzero(np.isinf(z))[0][0])
             raise EstimatorError(
                 f"displacement_m[{bad}] = {float(z[bad])!r}: use NaN for a missing sample, not inf"
+            )
+        if np.any(np.abs(z) >= _DISPLACEMENT_MAX_M):
+            bad = int(np.nonzero(np.abs(z) >= _DISPLACEMENT_MAX_M)[0][0])
+            raise EstimatorError(
+                f"displacement_m[{bad}] = {float(z[bad])!r}: a metre or more from zero, beyond "
+                "any transducer on a force cell; check the unit (a reading in mm or µm "
+                "given as m?)"
             )
         st = self._state
         t_before = t[0] - self.dt_s if st.t_last is None else st.t_last

@@ -307,6 +307,19 @@ class TransducerSection:
         )
         _set(self, "zero_volts", _real(t, "zero_volts", self.zero_volts))
         _set(self, "noise_m", _real(t, "noise_m", self.noise_m, at_least=0.0))
+        # a displacement transducer on a force cell resolves micrometres and spans at most
+        # centimetres: a metre of noise or of one count is a unit error (and would overflow)
+        for key, value in (("noise_m", self.noise_m), ("resolution", self.resolution_m)):
+            if not value < _DISPLACEMENT_MAX_M:
+                what = (
+                    "noise_m"
+                    if key == "noise_m"
+                    else "volts_per_count × metres_per_volt (one count)"
+                )
+                raise ProfileError(
+                    f"[{t}] {what} = {value!r} m: must be below {_DISPLACEMENT_MAX_M:g} m "
+                    "(a transducer on a force cell resolves micrometres; check the unit)"
+                )
 
     @property
     def resolution_m(self) -> float:
@@ -522,6 +535,7 @@ class CellProfile:
 
 
 _FN_MIN_HZ = 1e-3  # slowest natural frequency accepted (a 17-minute period)
+_DISPLACEMENT_MAX_M = 1.0  # larger noise or count: a unit error
 
 
 # --------------------------------------------------------------------------- reading

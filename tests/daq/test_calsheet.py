@@ -221,6 +221,9 @@ BAD = [
         "up",
         "up again",
     ),
+    # issue 15 (found by the fuzzing suite): 1e308 made the fit overflow
+    (HEADER + "1,up,0,0,1e308\n1,up,0,10,0.5\n", 2, "reading_mm", "1e308", "beyond any"),
+    (HEADER + "1,up,0,0,0\n1,up,0,1e300,0.5\n", 3, "force_n", "1e300", "no deadweight"),
     (HEADER, 1, None, None, "no rows"),
     ("# only a comment\n\n", None, None, None, "no header"),
     ("", None, None, None, "no header"),

@@ -259,6 +259,8 @@ INVALID_CASES = [
     ("zero process noise", _set("observer", "process_noise_n2_per_s", 0.0), "process_noise"),
     ("bandwidth past Nyquist", _set("observer", "force_bandwidth_hz", 1000.0), "Nyquist"),
     # issue 15's values: ωn overflows to infinity; both were called valid
+    ("noise of a metre", _set("transducer", "noise_m", 1e308), "noise_m = 1e+308 m"),
+    ("count of a metre", _set("transducer", "metres_per_volt", 1e300), "one count"),
     ("stiffness 1.7e308", _set("plant", "stiffness_n_per_m", 1.7e308), "natural frequency of inf"),
     ("mass 1e-320", _set("plant", "mass_kg", 1e-320), "natural frequency of inf"),
     ("cell past Nyquist", _set("plant", "stiffness_n_per_m", 4.0e8), "below the Nyquist"),
