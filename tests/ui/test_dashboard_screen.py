@@ -21,7 +21,7 @@ from ui.dashboard import palette
 from ui.dashboard.buffer import TraceBuffer
 from ui.dashboard.window import SIMULATED_LABEL, DashboardWindow
 from ui.dashboard.wording import LIVE_ONLY_REASON, NO_ALARMS, event_text
-from ui.dashboard.worker import WorkerStatus
+from ui.dashboard.worker import WorkerStatus, rule_numbers
 from ui.display_units import CellUnits
 from ui.safety import CAUTION
 
@@ -87,7 +87,7 @@ SETTLED = WorkerStatus(
     displacement_m=125.0312e-6,
     settling="settled",
     valid_since_s=2.0215,
-    rule=SettlingRule.for_range(-10.0, 120.0),
+    rule=rule_numbers(SettlingRule.for_range(-10.0, 120.0)),
     hold_samples=40,
     model=(0.97, 0.03, 0.0),
 )

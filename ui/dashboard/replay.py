@@ -15,7 +15,7 @@ from typing import Any
 
 import numpy as np
 
-from ui.dashboard.worker import WorkerStatus
+from ui.dashboard.worker import WorkerStatus, rule_numbers
 
 __all__ = ["PlaybackEvent", "RunPlayback"]
 
@@ -197,7 +197,7 @@ class RunPlayback:
             displacement_m=float(self.displacement_m[i]),
             settling=state,
             settling_rule=self.rule_text,
-            rule=self.rule,
+            rule=rule_numbers(self.rule),
             hold_samples=self.hold_samples,
             valid_since_s=valid_since,
             alarms=tuple(active.values()),

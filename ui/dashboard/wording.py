@@ -8,6 +8,7 @@ plots' axis ("t = 4.1225 s"); forces and displacements in the cell's units
 from __future__ import annotations
 
 import math
+from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Any
 
@@ -96,20 +97,24 @@ def tile_text(state: str, since_s: float | None, units: CellUnits, *, replay: bo
     return TileText(headline, detail, state if known else "changing")
 
 
-def rule_words(rule: Any, hold_samples: int, units: CellUnits) -> str:
-    """The settling rule (`estimator.monitor.SettlingRule`) in words, in the cell's units."""
+def rule_words(rule: Mapping[str, float] | None, hold_samples: int, units: CellUnits) -> str:
+    """The settling rule in words, in the cell's units.
+
+    `rule`: the numbers of an `estimator.monitor.SettlingRule` (`band_fraction`,
+    `band_floor_n`, `hold_s`, `k`, `release_factor`), as `worker.rule_numbers` gives them.
+    """
     if rule is None:
         return ""
-    parts = [f"{_number(rule.band_fraction * 100)} % of the reading"]
-    parts.append(f"the observer's U (k = {rule.k:g})")
-    if rule.band_floor_n > 0:
-        floor = units.force.of(rule.band_floor_n)
+    parts = [f"{_number(rule['band_fraction'] * 100)} % of the reading"]
+    parts.append(f"the observer's U (k = {rule['k']:g})")
+    if rule["band_floor_n"] > 0:
+        floor = units.force.of(rule["band_floor_n"])
         parts.append(f"{_number(floor)} {units.force.symbol}")
     return (
-        f"Settled when every estimate of the last {_number(rule.hold_s * 1e3)} ms "
+        f"Settled when every estimate of the last {_number(rule['hold_s'] * 1e3)} ms "
         f"({hold_samples + 1} samples) stays within ±max({', '.join(parts)}) of their "
         f"mean; the reading stays valid until their spread exceeds "
-        f"{_number(rule.release_factor)} × that band."
+        f"{_number(rule['release_factor'])} × that band."
     )
 
 

@@ -32,7 +32,14 @@ from ui.dashboard.buffer import PROCESS_CONTEXT, TraceBuffer, holding
 if TYPE_CHECKING:
     from estimator.profile import CellProfile
 
-__all__ = ["AcquisitionWorker", "CellProcess", "SimulatedSource", "StatusBox", "WorkerStatus"]
+__all__ = [
+    "AcquisitionWorker",
+    "CellProcess",
+    "SimulatedSource",
+    "StatusBox",
+    "WorkerStatus",
+    "rule_numbers",
+]
 
 _POLL_S = 0.02  # time between two polls of the session, s
 _ENDED = ("stopped", "failed")
@@ -69,7 +76,10 @@ class WorkerStatus:
     displacement_m: float = float("nan")
     settling: str = "waiting"  # the settling monitor's state
     settling_rule: str = ""  # the rule, in words (the estimator's, in N)
-    rule: Any = None  # the rule itself (estimator.monitor.SettlingRule), for our own words
+    # The rule's numbers (band_fraction, band_floor_n, hold_s, k, release_factor: the
+    # fields of estimator.monitor.SettlingRule) for our own words. Plain numbers, not the
+    # rule: unpickling that would import the estimator into the window's process (~1.4 s).
+    rule: dict[str, float] | None = None
     hold_samples: int = 0  # the rule's hold window, in sample steps
     valid_since_s: float | None = None  # when the current reading became valid (plotted time)
     # (id, severity, message, acknowledged, raised at: plotted time, s)
@@ -79,6 +89,12 @@ class WorkerStatus:
     messages: tuple[str, ...] = field(default_factory=tuple)  # the latest ones, oldest first
     message_total: int = 0  # messages said since the start (the window shows the new ones)
     error: str = ""
+
+
+def rule_numbers(rule: Any) -> dict[str, float]:
+    """The numbers of a settling rule (`estimator.monitor.SettlingRule`), as plain floats."""
+    names = ("band_fraction", "band_floor_n", "hold_s", "k", "release_factor")
+    return {name: float(getattr(rule, name)) for name in names}
 
 
 class CellProcess:
@@ -485,7 +501,7 @@ class _Acquisition:
         self._publish(
             settling=monitor.state if monitor is not None else "",
             settling_rule=self._rule_text(monitor),
-            rule=monitor.rule if monitor is not None else None,
+            rule=rule_numbers(monitor.rule) if monitor is not None else None,
             hold_samples=monitor.hold_samples if monitor is not None else 0,
             # The monitor's device time, on the plotted clock (kept increasing across
             # device restarts: see _push).
