@@ -189,10 +189,12 @@ def _estimate(
 ) -> tuple[Any, Any]:
     from estimator.observer import concat_estimates
     from estimator.smoother import smooth_record
+    from ui.display_units import CellUnits
     from ui.pipeline import EstimationPipeline
     from ui.status import StatusLine, format_status
 
     pipeline = EstimationPipeline(profile, tares=tares)
+    units = CellUnits.for_profile(profile)  # the status line in the cell's units, as live
     if args.smooth:
         if tares:
             raise ValueError("--smooth cannot replay a run with zero events yet; leave it out")
@@ -227,7 +229,14 @@ def _estimate(
             parts.append(pipeline.process(samples[start:stop]))
             start = stop
             if status.due():
-                status.show(format_status(parts[-1], state=f"replay ×{speed:g}"))
+                status.show(
+                    format_status(
+                        parts[-1],
+                        state=f"replay ×{speed:g}",
+                        units=units,
+                        framing=profile.acquisition.framing,
+                    )
+                )
         status.finish()
     est = concat_estimates(parts) if parts else pipeline.process(samples[:0])
     return est, pipeline.observer
