@@ -126,7 +126,16 @@ def _turns_per_s() -> float:
 
 
 def _same(a: list[Any], b: list[Any]) -> bool:
-    return [repr(o.value) for o in a] == [repr(o.value) for o in b]
+    """True when both lists hold the same results; else say where they first differ."""
+    for i, (x, y) in enumerate(zip(a, b, strict=True)):
+        if repr(x.value) != repr(y.value):
+            print(
+                f"  results differ from run {i} on: {x.problem or x.fault or 'a value'} / "
+                f"{y.problem or y.fault or 'a value'}",
+                file=sys.stderr,
+            )
+            return False
+    return True
 
 
 def _rate(n: int, seconds: float) -> float:
