@@ -31,7 +31,6 @@ from __future__ import annotations
 
 import argparse
 import dataclasses
-import logging
 import os
 import statistics
 import sys
@@ -51,7 +50,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[2]))  # the repository: 
 from estimator.profile import profile_to_toml  # noqa: E402 (after the thread settings)
 from tests.ui.invented_archive import PROFILE, record_run  # noqa: E402 (after the thread settings)
 from ui.archive.impact import impact_task  # noqa: E402 (after the thread settings)
-from ui.archive.parallel import Plan, map_on_client, run_tasks  # noqa: E402 (after the thread settings)
+from ui.archive.parallel import Plan, local_cluster, map_on_client, run_tasks  # noqa: E402 (after the thread settings)
 from ui.auditing import audit_run  # noqa: E402 (after the thread settings)
 
 
@@ -95,15 +94,9 @@ def _warm(_: int) -> int:
 
 
 def _start(workers: int) -> tuple[Any, Any]:
-    from dask.distributed import Client, LocalCluster
+    from dask.distributed import Client
 
-    cluster = LocalCluster(
-        n_workers=workers,
-        threads_per_worker=1,
-        processes=True,
-        dashboard_address=":0",  # any free port: 8787 may be taken
-        silence_logs=logging.ERROR,
-    )
+    cluster = local_cluster(workers)  # as the commands start theirs
     client = Client(cluster, set_as_default=False)
     pids = set(client.gather(client.map(_warm, range(4 * workers), pure=False)))
     if len(pids) < workers:  # pragma: no cover - a worker that took no warm-up task

@@ -37,6 +37,7 @@ __all__ = [
     "TaskOutcome",
     "add_parallel_options",
     "dask_available",
+    "local_cluster",
     "map_on_client",
     "plan_execution",
     "run_tasks",
@@ -204,17 +205,11 @@ def _placed(
 ) -> list[TaskOutcome]:
     if plan.kind == "serial":
         return [_serial(task, item, advance) for item in items]
-    from dask.distributed import Client, LocalCluster
+    from dask.distributed import Client
 
     if plan.kind == "local":
         with (
-            LocalCluster(
-                n_workers=plan.workers,
-                threads_per_worker=1,
-                processes=True,
-                dashboard_address=":0",  # any free port: 8787 may be taken
-                silence_logs=logging.ERROR,
-            ) as cluster,
+            local_cluster(plan.workers) as cluster,
             Client(cluster, set_as_default=False) as client,
         ):
             return map_on_client(client, task, items, advance)
@@ -235,6 +230,28 @@ def _placed(
                 f"{WORKER_WAIT_S:g} s; start workers with dask worker {plan.address}"
             ) from None
         return map_on_client(client, task, items, advance)
+
+
+def local_cluster(workers: int) -> Any:
+    """A ``LocalCluster`` of ``workers`` single-threaded worker processes for a job.
+
+    Its HTTP server takes any free port (8787 may be taken). Dask starts worker processes
+    with ``MALLOC_TRIM_THRESHOLD_=65536`` (memory back to the system early); that also
+    stops glibc from raising its mmap threshold, so every array of a replay above 128 KiB
+    is a fresh mapping and a replay runs about 30 % slower (measured: 6.5 against
+    4.4 runs/s serially): the job's workers start without it, and live only for the job.
+    """
+    import dask
+    from dask.distributed import LocalCluster
+
+    with dask.config.set({"distributed.nanny.pre-spawn-environ.MALLOC_TRIM_THRESHOLD_": None}):
+        return LocalCluster(
+            n_workers=workers,
+            threads_per_worker=1,
+            processes=True,
+            dashboard_address=":0",
+            silence_logs=logging.ERROR,
+        )
 
 
 def _serial(task: Callable[[Any], Any], item: Any, advance: Callable[[], None]) -> TaskOutcome:
