@@ -160,7 +160,10 @@ def _real(
     """Check that ``value`` is a finite real number obeying the bound; return it as float."""
     if isinstance(value, bool) or not isinstance(value, int | float):
         raise _fail(table, key, value, "must be a number (write it without quotes)")
-    number = float(value)
+    try:
+        number = float(value)
+    except OverflowError:  # a whole number of hundreds of digits
+        number = math.inf
     if not math.isfinite(number):
         raise _fail(table, key, value, "must be a finite number")
     if above is not None and not number > above:

@@ -259,6 +259,8 @@ INVALID_CASES = [
     ("zero process noise", _set("observer", "process_noise_n2_per_s", 0.0), "process_noise"),
     ("bandwidth past Nyquist", _set("observer", "force_bandwidth_hz", 1000.0), "Nyquist"),
     # issue 15's values: ωn overflows to infinity; both were called valid
+    # found by the long fuzz run: a TOML integer of 400 digits overflowed float()
+    ("mass of 400 digits", _set("plant", "mass_kg", 10**400), "must be a finite number"),
     ("noise of a metre", _set("transducer", "noise_m", 1e308), "noise_m = 1e+308 m"),
     ("count of a metre", _set("transducer", "metres_per_volt", 1e300), "one count"),
     ("stiffness 1.7e308", _set("plant", "stiffness_n_per_m", 1.7e308), "natural frequency of inf"),
