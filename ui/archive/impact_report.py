@@ -24,6 +24,7 @@ import html
 import io
 import json
 import math
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -42,14 +43,14 @@ _COLUMNS = (
     "run_id",
     "started_utc",
     "kind",
-    "index",
+    "index [1]",
     "time_s [s]",
-    "old_N [N]",
-    "new_N [N]",
-    "diff_N [N]",
+    "old_n [N]",
+    "new_n [N]",
+    "diff_n [N]",
     "diff_pct [%]",
-    "U_k2_N [N]",
-    "limit_N [N]",
+    "expanded_u_n [N]",
+    "limit_n [N]",
     "exceeds",
     "old_settle_ms [ms]",
     "new_settle_ms [ms]",
@@ -158,13 +159,22 @@ def _num(value: float | None, fmt: str) -> str:
     return format(value, fmt)
 
 
-def _csv_num(value: float | None, fmt: str = ".10g") -> str:
+def _csv_num(value: float | None) -> str:
+    """A number as the CSV dialect writes it (docs/csv-files.md): the shortest text that
+    reads back to the same double; empty when there is none."""
     if value is None or not math.isfinite(value):
         return ""
-    return format(value, fmt)
+    return repr(float(value))
 
 
-def _table(a: Assessment) -> list[list[str]]:
+def _short(value: float | None) -> str:
+    """A number for people (the HTML table): six significant digits."""
+    if value is None or not math.isfinite(value):
+        return ""
+    return format(value, ".6g")
+
+
+def _table(a: Assessment, number: Callable[[float | None], str] = _csv_num) -> list[list[str]]:
     out = []
     for folder, result in a.runs:
         if isinstance(result, str):
@@ -180,16 +190,16 @@ def _table(a: Assessment) -> list[list[str]]:
                     result.started_utc,
                     row.kind,
                     str(row.index),
-                    _csv_num(row.time_s, ".6f"),
-                    _csv_num(row.old_n),
-                    _csv_num(row.new_n),
-                    _csv_num(row.diff_n),
-                    _csv_num(pct, ".6g"),
-                    _csv_num(row.expanded_u_n, ".6g"),
-                    _csv_num(row.limit_n, ".6g"),
+                    number(row.time_s),
+                    number(row.old_n),
+                    number(row.new_n),
+                    number(row.diff_n),
+                    number(pct),
+                    number(row.expanded_u_n),
+                    number(row.limit_n),
                     "yes" if row.exceeds else "no",
-                    _csv_num(row.old_settle_ms, ".4g"),
-                    _csv_num(row.new_settle_ms, ".4g"),
+                    number(row.old_settle_ms),
+                    number(row.new_settle_ms),
                     note,
                 ]
             )
@@ -198,10 +208,17 @@ def _table(a: Assessment) -> list[list[str]]:
 
 def _csv_text(a: Assessment, sha: str) -> str:
     buffer = io.StringIO()
+    head = {
+        "command": a.command,
+        "corrected_profile": a.profile_path,
+        "corrected_profile_sha256": sha,
+        "cell": a.cell,
+        "limit": a.limit_text(),
+        "expanded_u_n": "U (k = 2) of each old value, N",
+    }
     buffer.write("# forcelens impact assessment\n")
-    buffer.write(f"# command: {a.command}\n")
-    buffer.write(f"# corrected profile: {a.profile_path} (SHA-256 {sha})\n")
-    buffer.write(f"# cell: {a.cell}; limit: {a.limit_text()}\n")
+    for key, value in head.items():
+        buffer.write(f"# {key}: {value}".replace("\n", " ") + "\n")
     writer = csv.writer(buffer, lineterminator="\n")
     writer.writerow(_COLUMNS)
     writer.writerows(_table(a))
@@ -215,7 +232,7 @@ def _html_text(a: Assessment, sha: str, version: str) -> str:
         f"<tr class='{'bad' if r[11] == 'yes' or r[2] == 'unreadable' else ''}'>"
         + "".join(f"<td>{e(c)}</td>" for c in r)
         + "</tr>"
-        for r in _table(a)
+        for r in _table(a, _short)
     )
     return (
         "<!DOCTYPE html><html lang='en'><head><meta charset='utf-8'>"
