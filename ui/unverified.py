@@ -11,7 +11,7 @@ from __future__ import annotations
 import argparse
 import os
 
-__all__ = ["add_unverified_option", "check_verifiable"]
+__all__ = ["add_unverified_option", "check_verifiable", "refuse_unverifiable"]
 
 
 def add_unverified_option(parser: argparse.ArgumentParser) -> None:
@@ -25,14 +25,20 @@ def add_unverified_option(parser: argparse.ArgumentParser) -> None:
 
 
 def check_verifiable(folder: str | os.PathLike[str], allow: bool) -> list[str]:
-    """Why the run cannot be verified (empty when it can).
+    """Why the run cannot be verified (empty when it can); reads the run to find out.
 
     Raises ValueError naming the first reason unless ``allow``. A closed run whose
     hashes do not match is refused later by the reader whatever ``allow`` says.
     """
     from daq.runs import read_run
 
-    reasons = read_run(folder, check_hash=False).warnings
+    return refuse_unverifiable(folder, read_run(folder, check_hash=False).warnings, allow)
+
+
+def refuse_unverifiable(
+    folder: str | os.PathLike[str], reasons: list[str], allow: bool
+) -> list[str]:
+    """``reasons`` (a run's reader warnings) unless there are some and not ``allow``."""
     if reasons and not allow:
         more = f" (and {len(reasons) - 1} more)" if len(reasons) > 1 else ""
         raise ValueError(

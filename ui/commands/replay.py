@@ -127,11 +127,11 @@ def _replay_run(args: argparse.Namespace, folder: Path, speed: float) -> int:
     from daq.runs import read_run
     from estimator.profile import load_profile
     from ui.pipeline import ESTIMATE_STREAM, tares_from_events
-    from ui.unverified import check_verifiable
+    from ui.unverified import refuse_unverifiable
     from ui.wiring import profile_from_text
 
-    check_verifiable(folder, args.unverified)
     data = read_run(folder)
+    refuse_unverifiable(folder, data.warnings, args.unverified)
     for warning in data.warnings:
         print(f"warning: {warning}", file=sys.stderr)
     if data.warnings:
