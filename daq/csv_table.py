@@ -7,15 +7,21 @@ when it has no comma; a column name may carry its unit in brackets and case does
 matter (`daq.csv_dialect.split_column_header`); every row has as many fields as the
 header; an empty field or ``nan`` is a missing value (NaN).
 
-Large files take NumPy's compiled text reader; a file it cannot take (a missing value,
-a text column, a ragged row) is read line by line, and the first bad line is named.
+The rows are read in chunks of a few megabytes (`iter_csv_chunks`), so a record of any
+length is read in bounded memory; `read_csv_table` joins the chunks. Each chunk goes
+through NumPy's compiled text reader (``numpy.loadtxt``, correctly rounded like
+``float()``); a chunk with empty fields is read again with them written as ``nan``; a
+chunk it still cannot take (a text column, a ragged row, a field that is not a number)
+is read line by line, and the first bad line is named.
 """
 
 from __future__ import annotations
 
+import io
 import os
+import re
 import warnings
-from collections.abc import Sequence
+from collections.abc import Iterator, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import TextIO
@@ -25,7 +31,17 @@ import numpy as np
 from daq.csv_dialect import split_column_header
 from daq.errors import FramingError, SourceError
 
-__all__ = ["CsvHeader", "CsvTable", "read_csv_header", "read_csv_table"]
+__all__ = [
+    "CsvChunk",
+    "CsvHeader",
+    "CsvTable",
+    "iter_csv_chunks",
+    "read_csv_header",
+    "read_csv_table",
+]
+
+#: Characters of text read per chunk (about 130 000 rows of two columns).
+CHUNK_CHARS = 1 << 22
 
 
 @dataclass(frozen=True)
@@ -71,6 +87,14 @@ class CsvTable:
 
 def _open(path: Path) -> TextIO:
     return open(path, encoding="utf-8-sig", newline=None)
+
+
+def _lines(text: str) -> list[str]:
+    """The lines of ``text`` read with universal newlines (``\\n`` ends; no other breaks)."""
+    lines = text.split("\n")
+    if lines and not lines[-1]:
+        lines.pop()
+    return lines
 
 
 def _skipped(line: str) -> bool:
@@ -140,6 +164,65 @@ def read_csv_table(
     """
     p = Path(path)
     head = read_csv_header(p, expect=expect)
+    wanted = list(head.names) if columns is None else list(columns)
+    parts: dict[str, list[np.ndarray]] = {name: [] for name in wanted}
+    for chunk in iter_csv_chunks(p, head, columns=wanted, expect=expect):
+        for name in wanted:
+            parts[name].append(chunk.columns[name])
+    got = {name: np.concatenate(v) if v else np.zeros(0, np.float64) for name, v in parts.items()}
+    return CsvTable(p, head.line, head.names, head.units, head.metadata, got)
+
+
+@dataclass(frozen=True)
+class CsvChunk:
+    """Consecutive data rows of a CSV table, as read by `iter_csv_chunks`.
+
+    Attributes:
+        first_row: index (0-based) in the table of the chunk's first data row.
+        first_line: line number (1-based) in the file of the chunk's first line.
+        columns: the columns read, name → float64 array of shape (rows,).
+        bytes_read: how far into the file reading has got, in bytes (for progress).
+    """
+
+    first_row: int
+    first_line: int
+    columns: dict[str, np.ndarray] = field(repr=False)
+    bytes_read: int
+    text: str = field(repr=False)
+
+    @property
+    def rows(self) -> int:
+        return next(iter(self.columns.values())).size if self.columns else 0
+
+    def line_of_row(self, row: int) -> int:
+        """Line number (1-based) of the chunk's data row ``row`` (0-based in the chunk)."""
+        seen = -1
+        for lineno, line in enumerate(_lines(self.text), start=self.first_line):
+            if _skipped(line):
+                continue
+            seen += 1
+            if seen == row:
+                return lineno
+        raise IndexError(row)
+
+
+def iter_csv_chunks(
+    path: str | os.PathLike[str],
+    head: CsvHeader | None = None,
+    *,
+    columns: Sequence[str] | None = None,
+    expect: str = "e.g. 'time_s,displacement_m'",
+    chunk_chars: int = CHUNK_CHARS,
+) -> Iterator[CsvChunk]:
+    """The data rows of a CSV table in chunks of about ``chunk_chars`` characters (whole
+    lines, at least one), each with the numbers of ``columns`` (every column when None).
+
+    ``head`` is the table's header when the caller has read it already. Errors as
+    `read_csv_table`; a bad row is found when its chunk is read.
+    """
+    p = Path(path)
+    if head is None:
+        head = read_csv_header(p, expect=expect)
     names = head.names
     wanted = list(names) if columns is None else list(columns)
     for name in wanted:
@@ -147,27 +230,93 @@ def read_csv_table(
             raise FramingError(
                 f"{p}:{head.line}: header {head.text!r} has no {name!r} column; expected {expect}"
             )
-    table = CsvTable(p, head.line, names, head.units, head.metadata, {})
+    index = [names.index(n) for n in wanted]
+    reader = _ChunkReader(p, head, wanted, index)
     try:
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore", UserWarning)  # "input contained no data"
-            data = np.loadtxt(
-                p,
-                delimiter=head.delimiter,
-                comments="#",
-                skiprows=head.line,
-                dtype=np.float64,
-                ndmin=2,
-                encoding="utf-8-sig",
-            )
-        if data.shape[0] and data.shape[1] != len(names):
-            raise ValueError("rows and header differ in width")
-        data = data.reshape(-1, len(names))
-        got = {name: np.ascontiguousarray(data[:, names.index(name)]) for name in wanted}
-    except (ValueError, IndexError):
-        got = _slow(table, head.delimiter, wanted)
-    table.columns.update(got)
-    return table
+        with _open(p) as handle:
+            for _ in range(head.line):
+                handle.readline()
+            line, row = head.line + 1, 0
+            while True:
+                text = handle.read(max(1, chunk_chars))
+                if not text:
+                    return
+                if not text.endswith("\n"):
+                    text += handle.readline()
+                got = reader.numbers(text, line)
+                yield CsvChunk(row, line, got, handle.buffer.tell(), text)
+                row += next(iter(got.values())).size if got else 0
+                line += text.count("\n")
+    except (OSError, UnicodeDecodeError) as exc:
+        reason = exc.strerror if isinstance(exc, OSError) and exc.strerror else exc
+        raise SourceError(f"{p}: cannot read ({reason})") from exc
+
+
+class _ChunkReader:
+    """The numbers of one chunk of text: compiled reader first, line by line if need be."""
+
+    def __init__(self, p: Path, head: CsvHeader, wanted: list[str], index: list[int]) -> None:
+        self.p, self.head, self.wanted, self.index = p, head, wanted, index
+        sep = re.escape(head.delimiter)
+        # an empty field (only blanks between separators or the line's ends) -> "nan"
+        self._first_empty = re.compile(rf"(?m)^[ \t]*(?={sep})")
+        self._other_empty = re.compile(rf"(?m){sep}[ \t]*(?={sep}|$)")
+
+    def numbers(self, text: str, first_line: int) -> dict[str, np.ndarray]:
+        data = self._compiled(text)
+        if data is None:
+            filled = self._first_empty.sub("nan", text)
+            filled = self._other_empty.sub(self.head.delimiter + "nan", filled)
+            data = self._compiled(filled) if filled != text else None
+        if data is None:
+            return self._by_line(text, first_line)
+        return {
+            n: np.ascontiguousarray(data[:, i])
+            for n, i in zip(self.wanted, self.index, strict=True)
+        }
+
+    def _compiled(self, text: str) -> np.ndarray | None:
+        width = len(self.head.names)
+        try:
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore", UserWarning)  # "input contained no data"
+                data = np.loadtxt(
+                    io.StringIO(text),
+                    delimiter=self.head.delimiter,
+                    comments="#",
+                    dtype=np.float64,
+                    ndmin=2,
+                )
+        except (ValueError, IndexError):
+            return None
+        if data.shape[0] and data.shape[1] != width:
+            return None
+        return data.reshape(-1, width)
+
+    def _by_line(self, text: str, first_line: int) -> dict[str, np.ndarray]:
+        """Line by line: empty fields are NaN, and the first bad line is named."""
+        p, names, head = self.p, self.head.names, self.head
+        values: list[list[float]] = [[] for _ in self.wanted]
+        for lineno, line in enumerate(_lines(text), start=first_line):
+            if _skipped(line):
+                continue
+            fields = line.split(head.delimiter)
+            if len(fields) != len(names):
+                raise FramingError(
+                    f"{p}:{lineno}: {line.strip()!r} has {len(fields)} fields; the header "
+                    f"(line {head.line}) has {len(names)}"
+                )
+            for out, i in zip(values, self.index, strict=True):
+                field_text = fields[i].strip()
+                try:
+                    out.append(float(field_text) if field_text else np.nan)
+                except ValueError:
+                    raise FramingError(
+                        f"{p}:{lineno}: {line.strip()!r} is not numbers in column "
+                        f"{names[i]} ({field_text!r}); columns {', '.join(self.wanted)} "
+                        "must be numbers"
+                    ) from None
+        return {n: np.array(v, dtype=np.float64) for n, v in zip(self.wanted, values, strict=True)}
 
 
 def _header(p: Path) -> tuple[int, str | None, dict[str, str]]:
@@ -183,30 +332,3 @@ def _header(p: Path) -> tuple[int, str | None, dict[str, str]]:
                 continue
             return lineno, line, metadata
     return 0, None, metadata
-
-
-def _slow(table: CsvTable, sep: str, wanted: list[str]) -> dict[str, np.ndarray]:
-    """Line by line: empty fields are NaN, and the first bad line is named."""
-    p, names = table.path, table.names
-    index = [names.index(n) for n in wanted]
-    values: list[list[float]] = [[] for _ in wanted]
-    with _open(p) as handle:
-        for lineno, line in enumerate(handle, start=1):
-            if lineno <= table.header_line or _skipped(line):
-                continue
-            fields = line.rstrip("\r\n").split(sep)
-            if len(fields) != len(names):
-                raise FramingError(
-                    f"{p}:{lineno}: {line.strip()!r} has {len(fields)} fields; the header "
-                    f"(line {table.header_line}) has {len(names)}"
-                )
-            for out, i in zip(values, index, strict=True):
-                text = fields[i].strip()
-                try:
-                    out.append(float(text) if text else np.nan)
-                except ValueError:
-                    raise FramingError(
-                        f"{p}:{lineno}: {line.strip()!r} is not numbers in column "
-                        f"{names[i]} ({text!r}); columns {', '.join(wanted)} must be numbers"
-                    ) from None
-    return {name: np.array(v, dtype=np.float64) for name, v in zip(wanted, values, strict=True)}

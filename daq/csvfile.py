@@ -8,23 +8,51 @@ displacement is exactly one of ``displacement_m`` / ``displacement_mm`` /
 marks a missing sample. Time strictly increases: a row whose time is equal to or
 earlier than the one before is an error naming its line (a reordered or merged file
 would otherwise be estimated as a record that restarts at every row).
+
+`iter_displacement_csv` gives the record in chunks (bounded memory for a record of any
+length; ``replay`` streams it), with the same checks across chunk boundaries;
+`read_displacement_csv` joins them.
 """
 
 from __future__ import annotations
 
 import os
+from collections.abc import Iterator
+from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
 
-from daq.csv_table import read_csv_header, read_csv_table
+from daq.csv_table import CHUNK_CHARS, CsvChunk, iter_csv_chunks, read_csv_header
 from daq.errors import FramingError
 
-__all__ = ["DISPLACEMENT_UNITS", "read_displacement_csv"]
+__all__ = [
+    "DISPLACEMENT_UNITS",
+    "DisplacementChunk",
+    "iter_displacement_csv",
+    "read_displacement_csv",
+]
 
 #: Accepted displacement columns and their factor to metres.
 DISPLACEMENT_UNITS = {"displacement_m": 1.0, "displacement_mm": 1e-3, "displacement_um": 1e-6}
 _EXPECT = "e.g. 'time_s,displacement_m'"
+
+
+@dataclass(frozen=True)
+class DisplacementChunk:
+    """Consecutive samples of a displacement record.
+
+    Attributes:
+        time_s: times, s, shape (n,), strictly increasing (also from the chunk before).
+        displacement_m: displacement, m, shape (n,); NaN is a missing sample.
+        first_row: index (0-based) of the chunk's first sample in the record.
+        bytes_read: how far into the file reading has got, in bytes (for progress).
+    """
+
+    time_s: np.ndarray
+    displacement_m: np.ndarray
+    first_row: int
+    bytes_read: int
 
 
 def read_displacement_csv(path: str | os.PathLike[str]) -> tuple[np.ndarray, np.ndarray]:
@@ -34,6 +62,22 @@ def read_displacement_csv(path: str | os.PathLike[str]) -> tuple[np.ndarray, np.
         SourceError: the file cannot be read.
         FramingError: no usable header, or a row that is not numbers; the message
             names the file, the line and what to fix.
+    """
+    chunks = list(iter_displacement_csv(path))
+    if not chunks:
+        return np.zeros(0), np.zeros(0)
+    t = np.concatenate([c.time_s for c in chunks])
+    x = np.concatenate([c.displacement_m for c in chunks])
+    return t, x
+
+
+def iter_displacement_csv(
+    path: str | os.PathLike[str], *, chunk_chars: int = CHUNK_CHARS
+) -> Iterator[DisplacementChunk]:
+    """The record of a displacement CSV file in chunks of about ``chunk_chars`` characters.
+
+    The header is checked before the first chunk is read; a bad row raises when its
+    chunk is reached. Errors as `read_displacement_csv`.
     """
     p = Path(path)
     head = read_csv_header(p, expect=_EXPECT)
@@ -49,25 +93,51 @@ def read_displacement_csv(path: str | os.PathLike[str]) -> tuple[np.ndarray, np.
             f"{p}:{head.line}: header {head.text!r} needs exactly one of "
             f"{', '.join(DISPLACEMENT_UNITS)}"
         )
-    table = read_csv_table(p, columns=[time_name, found[0]], expect=_EXPECT)
-    t, x = table.columns[time_name], table.columns[found[0]]
+    scale = DISPLACEMENT_UNITS[found[0]]
+    before: tuple[float, CsvChunk] | None = None  # the previous row's time and chunk
+    chunks = iter_csv_chunks(
+        p, head, columns=[time_name, found[0]], expect=_EXPECT, chunk_chars=chunk_chars
+    )
+    for chunk in chunks:
+        if chunk.rows == 0:
+            continue
+        t, x = chunk.columns[time_name], chunk.columns[found[0]]
+        _check_times(p, time_name, chunk, t, before)
+        before = (float(t[-1]), chunk)
+        yield DisplacementChunk(
+            t, x if scale == 1.0 else x * scale, chunk.first_row, chunk.bytes_read
+        )
+
+
+def _check_times(
+    p: Path,
+    time_name: str,
+    chunk: CsvChunk,
+    t: np.ndarray,
+    before: tuple[float, CsvChunk] | None,
+) -> None:
+    """Finite and strictly increasing, from the previous chunk's last row on."""
     if not np.all(np.isfinite(t)):
         row = int(np.nonzero(~np.isfinite(t))[0][0])
         raise FramingError(
-            f"{p}:{table.line_of_row(row)}: {time_name} must be a finite number, got {t[row]!r}"
+            f"{p}:{chunk.line_of_row(row)}: {time_name} must be a finite number, got {t[row]!r}"
         )
     back = np.flatnonzero(np.diff(t) <= 0.0)
-    if back.size:
+    if before is not None and t[0] <= before[0]:
+        last = before[1]
+        prev, line_prev, line = before[0], last.line_of_row(last.rows - 1), chunk.line_of_row(0)
+        here = float(t[0])
+    elif back.size:
         i = int(back[0]) + 1
         prev, here = float(t[i - 1]), float(t[i])
-        line_prev, line = table.line_of_row(i - 1), table.line_of_row(i)
-        if here == prev:
-            what = f"{time_name} {here!r} repeats that of line {line_prev}"
-        else:
-            what = f"{time_name} goes back from {prev!r} (line {line_prev}) to {here!r}"
-        raise FramingError(
-            f"{p}:{line}: {what}; time must increase from row to row (sort the "
-            "file, or remove the repeated rows)"
-        )
-    scale = DISPLACEMENT_UNITS[found[0]]
-    return t, (x if scale == 1.0 else x * scale)
+        line_prev, line = chunk.line_of_row(i - 1), chunk.line_of_row(i)
+    else:
+        return
+    if here == prev:
+        what = f"{time_name} {here!r} repeats that of line {line_prev}"
+    else:
+        what = f"{time_name} goes back from {prev!r} (line {line_prev}) to {here!r}"
+    raise FramingError(
+        f"{p}:{line}: {what}; time must increase from row to row (sort the "
+        "file, or remove the repeated rows)"
+    )

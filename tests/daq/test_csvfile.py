@@ -70,3 +70,85 @@ def test_semicolons_bracketed_units_and_case_are_read(tmp_path: Path) -> None:
     t, x = read_displacement_csv(_file(tmp_path, "\ufeff" + text))
     np.testing.assert_array_equal(t, [0.0, 0.001])
     np.testing.assert_allclose(x, [1.5e-6, 1.25e-6], rtol=1e-15)
+
+
+# ------------------------------------------------------------------ read in chunks
+# Any chunk size gives the same numbers and the same refusals at the same lines: a
+# chunk of 1 character holds one line, so every row boundary is a chunk boundary.
+# Reference: Python's csv module and float() on the same text.
+
+MIXED = (
+    "\ufeff# forcelens invented record\r\n# cell: invented\r\n\r\n"
+    "Time_s [s];displacement_m [m];note\r\n"
+    "0.0;1e-6;a\r\n0.0005;;b\r\n# a comment between rows\r\n\r\n"
+    "0.001; 1.2e-6 ;c\r\n0.0015;nan;d\r\n0.002;-3.5e-7;e\r\n"
+)
+
+
+def _reference(text: str) -> tuple[list[float], list[float]]:
+    """Times and displacements by Python's csv module and float() (empty = NaN)."""
+    import csv
+    import io
+
+    rows = [
+        r
+        for r in csv.reader(io.StringIO(text.lstrip("\ufeff")), delimiter=";")
+        if r and "".join(r).strip() and not r[0].lstrip().startswith("#")
+    ][1:]
+    return (
+        [float(r[0]) for r in rows],
+        [float(r[1]) if r[1].strip() else float("nan") for r in rows],
+    )
+
+
+@pytest.mark.parametrize("chunk_chars", [1, 5, 40, 1 << 22])
+def test_any_chunk_size_reads_the_same_numbers(tmp_path: Path, chunk_chars: int) -> None:
+    from daq.csvfile import iter_displacement_csv
+
+    p = _file(tmp_path, MIXED)
+    chunks = list(iter_displacement_csv(p, chunk_chars=chunk_chars))
+    t = np.concatenate([c.time_s for c in chunks])
+    x = np.concatenate([c.displacement_m for c in chunks])
+    t_ref, x_ref = _reference(MIXED)
+    assert t.tobytes() == np.array(t_ref).tobytes()
+    assert x.tobytes() == np.array(x_ref).tobytes()  # NaN bit patterns included
+    assert [c.first_row for c in chunks] == list(
+        np.cumsum([0] + [c.time_s.size for c in chunks])[:-1]
+    )
+
+
+def _rows(n: int, bad: dict[int, str] | None = None) -> str:
+    """``n`` invented rows at 1 kHz after a two-line head (data row i is line i + 3)."""
+    lines = [f"{i / 1000!r},{1e-6 * (i % 7)!r}" for i in range(n)]
+    for i, text in (bad or {}).items():
+        lines[i] = text
+    return "# invented\ntime_s,displacement_m\n" + "\n".join(lines) + "\n"
+
+
+@pytest.mark.parametrize("chunk_chars", [1, 64, 1 << 22])
+@pytest.mark.parametrize(
+    ("bad", "line", "words"),
+    [
+        ({40: "0.039,1e-6"}, 43, "time_s 0.039 repeats that of line 42"),
+        ({40: "0.01,1e-6"}, 43, "goes back from 0.039 (line 42) to 0.01"),
+        ({40: "0.04,1e-6,9"}, 43, "has 3 fields; the header (line 2) has 2"),
+        ({40: "0.04,abc"}, 43, "is not numbers in column displacement_m ('abc')"),
+        ({40: ",1e-6"}, 43, "time_s must be a finite number, got"),
+    ],
+)
+def test_refusals_name_the_same_line_whatever_the_chunk_size(
+    tmp_path: Path, chunk_chars: int, bad: dict[int, str], line: int, words: str
+) -> None:
+    from daq.csvfile import iter_displacement_csv
+
+    p = _file(tmp_path, _rows(100, bad))
+    with pytest.raises(FramingError, match=re.escape(f"x.csv:{line}: ") + ".*" + re.escape(words)):
+        for _ in iter_displacement_csv(p, chunk_chars=chunk_chars):
+            pass
+
+
+def test_a_file_that_is_not_utf8_is_named(tmp_path: Path) -> None:
+    p = tmp_path / "x.csv"
+    p.write_bytes(b"time_s,displacement_m\n0.0,1e-6\n0.001,\xff\xfe\n")
+    with pytest.raises(SourceError, match=r"x\.csv: cannot read"):
+        read_displacement_csv(p)
