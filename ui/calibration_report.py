@@ -66,13 +66,15 @@ def write_calibration_report(result: Any, text: str, out: Path) -> Path:
         f'{base64.b64encode(p.read_bytes()).decode("ascii")}"></figure>'
         for p in (fit_png, res_png)
     )
+    # the text's first line is its heading: shown once, as the page's heading
+    heading, _, body = text.partition("\n")
     page = (
         "<!DOCTYPE html><html lang='en'><head><meta charset='utf-8'>"
-        "<title>forcelens static calibration</title>"
+        f"<title>{html.escape(heading)}</title>"
         "<style>body{font-family:sans-serif;max-width:960px;margin:2em auto;color:#222}"
         "pre{background:#f4f6f7;padding:1em;overflow-x:auto}img{max-width:100%}</style>"
-        "</head><body><h1>Static calibration</h1>"
-        f"<pre>{html.escape(text)}</pre>{images}"
+        f"</head><body><h1>{html.escape(heading)}</h1>"
+        f"<pre>{html.escape(body)}</pre>{images}"
         "<p>Uncertainties are standard uncertainties (k = 1) unless stated. ISO 376 class "
         "limits and ASTM E74 factors are quoted from memory; for legal or safety-critical "
         "use rely on an accredited calibration.</p></body></html>\n"

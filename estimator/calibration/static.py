@@ -55,7 +55,6 @@ class StaticCalibration:
             for j in range(0 if fit.intercept else 1, fit.degree + 1)
         )
         lines = [
-            "Static calibration",
             f"data SHA-256: {self.data_sha256}",
             f"fit: deflection = {terms}  (degree {fit.degree}, "
             f"{'with' if fit.intercept else 'without'} constant term, increasing loads)",

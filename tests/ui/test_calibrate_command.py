@@ -29,6 +29,11 @@ def test_calibrate_writes_summary_plots_and_an_updated_profile(
     text = (out / "summary.txt").read_text()
     assert "GRS80 normal gravity at 48.1°" in text and "class A lower force limit" in text
     page = (out / "summary.html").read_text()
+    # the heading once (issue 14: it was printed twice, once by the command, once by the fit)
+    assert text.splitlines()[0] == f"forcelens static calibration of {SHEET}"
+    assert text.lower().count("static calibration") == 1
+    assert capsys.readouterr().out.lower().count("static calibration") == 1
+    assert page.count("<h1>") == 1 and page.lower().count("static calibration") == 2  # + title
     assert page.count("data:image/png;base64,") == 2  # readable without forcelens
     assert (out / "fit.png").stat().st_size > 1000
     # Independent check of the stiffness: scipy.stats.linregress of the increasing

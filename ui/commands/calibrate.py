@@ -25,35 +25,79 @@ def register(subparsers: Any) -> None:
         help="static calibration from a deadweight sheet (ISO 376 / ASTM E74 style)",
         description=(
             "Fit a calibration sheet (CSV: series, direction, position, mass_kg or force_n, "
-            "reading_m/mm/um) and report stiffness with its uncertainty, ISO 376-style "
-            "errors and class per force step and ASTM E74-style lower force limits. "
-            "Conventional masses become forces with g (from --g, or GRS80 normal gravity "
-            "at --latitude and --height-m) and air buoyancy (OIML R 111)."
+            "reading_m/mm/um) and report the stiffness with its standard uncertainty "
+            "(k = 1), ISO 376-style errors and class per force step and ASTM E74-style "
+            "lower force limits. Conventional masses become forces with g (from --g, or "
+            "GRS80 normal gravity at --latitude and --height-m) and air buoyancy (OIML "
+            "R 111). A sheet of masses needs one of --g or --latitude; the reading "
+            "resolution comes from --resolution-m or, without it, from --profile."
         ),
     )
-    p.add_argument("sheet", help="calibration sheet (CSV)")
-    site = p.add_mutually_exclusive_group()
-    site.add_argument("--g", type=float, metavar="M_S2", help="measured local gravity, m/s²")
-    site.add_argument("--latitude", type=float, metavar="DEG", help="site latitude, degrees")
-    p.add_argument("--height-m", type=float, default=0.0, help="site height, m (default 0)")
+    p.add_argument("sheet", metavar="SHEET.csv", help="calibration sheet (CSV)")
+    site = p.add_argument_group(
+        "site (one of --g or --latitude is required when the sheet's loads are masses)"
+    )
+    one_of = site.add_mutually_exclusive_group()
+    one_of.add_argument(
+        "--g", type=float, metavar="G", help="measured local gravity, m/s² (no default)"
+    )
+    one_of.add_argument(
+        "--latitude",
+        type=float,
+        metavar="DEG",
+        help="site geodetic latitude, degrees, north positive (no default); g is then GRS80 "
+        "normal gravity there",
+    )
+    site.add_argument(
+        "--height-m",
+        type=float,
+        default=0.0,
+        metavar="H",
+        help="site height above the ellipsoid, m, with --latitude (default 0)",
+    )
     p.add_argument(
-        "--air-density", type=float, default=1.2, help="air density, kg/m³ (default 1.2)"
+        "--air-density",
+        type=float,
+        default=1.2,
+        metavar="RHO",
+        help="air density, kg/m³ (default 1.2)",
     )
     p.add_argument(
         "--weight-density",
         type=float,
         default=8000.0,
-        help="density of the weights, kg/m³ (default 8000)",
+        metavar="RHO",
+        help="density of the weights, kg/m³ (default 8000, the conventional value)",
     )
-    p.add_argument("--degree", type=int, default=1, choices=(1, 2, 3), help="fit degree")
-    p.add_argument("--no-intercept", action="store_true", help="fit through the origin")
+    p.add_argument(
+        "--degree",
+        type=int,
+        default=1,
+        choices=(1, 2, 3),
+        help="degree of the polynomial of deflection against force, a count (default 1; "
+        "only 1 gives a stiffness for --profile)",
+    )
+    p.add_argument(
+        "--no-intercept", action="store_true", help="fit through the origin (no constant term)"
+    )
     p.add_argument(
         "--resolution-m",
         type=float,
-        help="reading resolution, m (default: one count of --profile's transducer)",
+        metavar="X",
+        help="reading resolution, m (required without --profile; default: one count of "
+        "--profile's transducer)",
     )
-    p.add_argument("--profile", help="cell profile to update (written to OUT/cell.toml)")
-    p.add_argument("--out", help="output folder (default: calibration-<sheet name>)")
+    p.add_argument(
+        "--profile",
+        metavar="FILE.toml",
+        help="cell profile to update, written to OUT/cell.toml (default: none, no profile "
+        "written)",
+    )
+    p.add_argument(
+        "--out",
+        metavar="DIR",
+        help="output folder (default: calibration-SHEET, SHEET the sheet's name without .csv)",
+    )
     add_force_option(p)
     p.set_defaults(run=run)
 
