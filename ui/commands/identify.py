@@ -35,28 +35,78 @@ def register(subparsers: Any) -> None:
             "(k = 1); the 95 % intervals use Student's t."
         ),
     )
-    p.add_argument("record", help="run folder, or CSV with time_s and displacement_m/mm/um")
-    p.add_argument("--test", choices=("ringdown", "step"), required=True, help="kind of record")
+    p.add_argument(
+        "record",
+        metavar="RUN_OR_CSV",
+        help="run folder, or CSV with time_s and displacement_m/mm/um",
+    )
+    p.add_argument(
+        "--test", choices=("ringdown", "step"), required=True, help="kind of record (required)"
+    )
     p.add_argument(
         "--from",
         dest="t_from",
         type=float,
         metavar="S",
-        help="start time, s (ring-down: without --from/--to the free decay is found in the "
-        "whole record, from the release until the ringing reaches the noise)",
+        help="start of the part used, s, on the record's own clock: a run's device time (as "
+        "replay and the dashboard show it) or a CSV's time_s (default: the record's start; "
+        "ring-down without --from/--to: the free decay is found in the whole record, from "
+        "the release until the ringing reaches the noise)",
     )
-    p.add_argument("--to", dest="t_to", type=float, metavar="S", help="end time, s")
-    p.add_argument("--mass-kg", type=float, help="known moving mass, kg (k = m·ωn²)")
-    p.add_argument("--mass-u-kg", type=float, default=0.0, help="its standard uncertainty, kg")
-    p.add_argument("--stiffness-n-per-m", type=float, help="known stiffness, N/m")
-    p.add_argument("--stiffness-u-n-per-m", type=float, default=0.0, help="its uncertainty")
-    p.add_argument("--step-force-n", type=float, help="force of the step, N (k = F / gain)")
-    p.add_argument("--step-force-u-n", type=float, default=0.0, help="its uncertainty, N")
+    p.add_argument(
+        "--to",
+        dest="t_to",
+        type=float,
+        metavar="S",
+        help="end of the part used, s, on the same clock as --from (default: the record's end)",
+    )
+    scale = p.add_argument_group(
+        "scale (at most one of --mass-kg, --stiffness-n-per-m, --step-force-n; "
+        "default: the stiffness of --profile or of the run's profile)"
+    )
+    known = scale.add_mutually_exclusive_group()
+    known.add_argument(
+        "--mass-kg", type=float, metavar="M", help="known moving mass, kg (k = m·ωn²)"
+    )
+    known.add_argument("--stiffness-n-per-m", type=float, metavar="K", help="known stiffness, N/m")
+    known.add_argument(
+        "--step-force-n",
+        type=float,
+        metavar="F",
+        help="force of the step, N (k = F / gain; with --test step)",
+    )
+    scale.add_argument(
+        "--mass-u-kg",
+        type=float,
+        default=0.0,
+        metavar="M",
+        help="standard uncertainty (k = 1) of --mass-kg, kg (default 0)",
+    )
+    scale.add_argument(
+        "--stiffness-u-n-per-m",
+        type=float,
+        default=0.0,
+        metavar="K",
+        help="standard uncertainty (k = 1) of --stiffness-n-per-m, N/m (default 0)",
+    )
+    scale.add_argument(
+        "--step-force-u-n",
+        type=float,
+        default=0.0,
+        metavar="F",
+        help="standard uncertainty (k = 1) of --step-force-n, N (default 0)",
+    )
     p.add_argument(
         "--profile",
-        help="profile to update (default scale: its stiffness); written to --out",
+        metavar="FILE.toml",
+        help="profile to update, written to --out (default: the run's own profile, none for "
+        "a CSV)",
     )
-    p.add_argument("--out", help="updated profile (TOML); needs --profile")
+    p.add_argument(
+        "--out",
+        metavar="FILE.toml",
+        help="write the updated profile here; needs --profile (default: none written)",
+    )
     add_force_option(p)
     p.set_defaults(run=run)
 
