@@ -58,14 +58,19 @@ def add_selection_options(
     from ui.commands.live import DEFAULT_RUNS_ROOT
 
     parser.add_argument(
-        "--root", default=DEFAULT_RUNS_ROOT, help="folder holding runs (default: %(default)s)"
+        "--root",
+        default=DEFAULT_RUNS_ROOT,
+        metavar="DIR",
+        help="folder holding runs (default: %(default)s)",
     )
     parser.add_argument("--since", metavar="DATE", help="started at or after DATE (UTC)")
     parser.add_argument("--until", metavar="DATE", help="started before the end of DATE (UTC)")
     parser.add_argument("--cell", metavar="TEXT", help=cell_help)
     parser.add_argument("--tag", metavar="TEXT", help="a tag contains TEXT (any case)")
     parser.add_argument(
-        "--status", help="complete, aborted, failed or open (never closed: crashed or running)"
+        "--status",
+        metavar="STATUS",
+        help="complete, aborted, failed or open (never closed: crashed or running); default: any",
     )
 
 

@@ -57,8 +57,8 @@ def add_parallel_options(parser: argparse.ArgumentParser) -> None:
         "--workers",
         type=int,
         metavar="N",
-        help="local Dask worker processes (default: one per core; 1 runs serially in this "
-        "process)",
+        help="number of local Dask worker processes (default: one per core; 1 runs "
+        "serially in this process)",
     )
     group.add_argument(
         "--scheduler",

@@ -47,8 +47,17 @@ def register(subparsers: Any) -> None:
         ),
     )
     p.add_argument("run_folder", metavar="RUN", nargs="?", help="run folder")
-    p.add_argument("--report", help="report folder (default: RUN-report beside the run)")
-    p.add_argument("--profile", help="replay with this profile instead of the run's own")
+    p.add_argument(
+        "--report",
+        metavar="DIR",
+        help="report folder whose figures.json is checked (default: RUN-report beside the "
+        "run, when it exists)",
+    )
+    p.add_argument(
+        "--profile",
+        metavar="FILE.toml",
+        help="replay with this profile (default: the run's own)",
+    )
     p.add_argument(
         "--all",
         action="store_true",

@@ -26,16 +26,28 @@ def register(subparsers: Any) -> None:
             "misses the target."
         ),
     )
-    p.add_argument("--profile", help="cell profile (default: the demo cell)")
-    p.add_argument("--settling-time-s", type=float, required=True, help="target settling time, s")
+    p.add_argument("--profile", metavar="FILE.toml", help="cell profile (default: the demo cell)")
     p.add_argument(
-        "--band", type=float, default=0.02, help="settling band, fraction (default 0.02)"
+        "--settling-time-s",
+        type=float,
+        required=True,
+        metavar="S",
+        help="target settling time after a step, s (required)",
+    )
+    p.add_argument(
+        "--band",
+        type=float,
+        default=0.02,
+        metavar="FRAC",
+        help="settling band ± around the final value, a fraction of the step: 0.02 is 2 %% "
+        "(default 0.02)",
     )
     p.add_argument(
         "--max-overshoot",
         type=float,
         default=0.05,
-        help="largest acceptable overshoot, fraction (default 0.05)",
+        metavar="FRAC",
+        help="largest acceptable overshoot, a fraction of the step: 0.05 is 5 %% (default 0.05)",
     )
     p.set_defaults(run=run)
 
@@ -65,7 +77,7 @@ def run(args: argparse.Namespace) -> int:
     meets_os = os_ <= args.max_overshoot
     print(
         f"cell '{profile.cell.name}': fn {plant.natural_freq_hz:.4g} Hz, "
-        f"ζ {plant.damping_ratio:.4g}, settling to ±{args.band:.3g} in {ts * 1e3:.4g} ms, "
+        f"ζ {plant.damping_ratio:.4g}, settling to ±{100 * args.band:.3g} % in {ts * 1e3:.4g} ms, "
         f"overshoot {100 * os_:.3g} %"
     )
     print(

@@ -12,32 +12,61 @@ __all__ = ["open_dashboard", "register"]
 
 def register(subparsers: Any) -> None:
     from ui.commands.live import DEFAULT_RUNS_ROOT
+    from ui.sim_help import FAULTS_HELP, PROGRAMME_HELP, SPEED_HELP
 
     p = subparsers.add_parser(
         "dashboard",
         help="open the live window: force ± U, displacement, recording and zero",
         description=(
-            "Open the live dashboard. It connects to the built-in simulated cell (invented "
-            "data) unless a port is chosen in the window or given with --port. --screenshot "
-            "saves the window to a PNG after --after seconds and quits (works offscreen)."
+            "Open the live window: displacement and force ± U (k = 2) on one device-time "
+            "axis, the settling state, alarms, recording, marks and zero; or, with --open, "
+            "replay a recorded run in it. It connects to the built-in simulated cell "
+            "(invented data) unless a port is chosen in the window or given with --port. "
+            "--screenshot saves the window to a PNG after --after seconds and quits (works "
+            "offscreen)."
         ),
     )
-    p.add_argument("--profile", metavar="FILE", help="cell profile (default: the demo cell)")
-    p.add_argument("--port", help="serial port to preselect (default: the simulated cell)")
+    p.add_argument("--profile", metavar="FILE.toml", help="cell profile (default: the demo cell)")
+    p.add_argument(
+        "--port",
+        metavar="PORT",
+        help="serial port to preselect, e.g. /dev/ttyUSB0 or COM3 (default: the built-in "
+        "simulated cell)",
+    )
     p.add_argument(
         "--runs-root",
         default=DEFAULT_RUNS_ROOT,
+        metavar="DIR",
         help="folder for recordings (default: %(default)s)",
     )
     p.add_argument("--no-connect", action="store_true", help="wait for the Connect button")
     p.add_argument("--open", metavar="RUN", help="start in replay mode on this run folder")
-    p.add_argument("--sim-programme", metavar="SPEC", default="", help="simulated load programme")
-    p.add_argument(
-        "--sim-speed", type=float, default=1.0, metavar="X", help="simulated time scale"
+    sim = p.add_argument_group("built-in simulated cell (used when no port is given)")
+    sim.add_argument(
+        "--sim-programme",
+        metavar="SPEC",
+        default="",
+        help=PROGRAMME_HELP + " (default: the demo programme)",
     )
-    p.add_argument("--sim-faults", metavar="SPEC", default="", help="faults, as for live")
-    p.add_argument("--screenshot", metavar="PNG", help="save the window to PNG and quit")
-    p.add_argument("--after", type=float, default=3.0, metavar="S", help="screenshot delay (s)")
+    sim.add_argument(
+        "--sim-speed", type=float, default=1.0, metavar="X", help=SPEED_HELP + " (default 1)"
+    )
+    sim.add_argument(
+        "--sim-faults", metavar="SPEC", default="", help=FAULTS_HELP + " (default: none)"
+    )
+    p.add_argument(
+        "--screenshot",
+        metavar="FILE.png",
+        help="save the window to this PNG after --after seconds and quit (default: none)",
+    )
+    p.add_argument(
+        "--after",
+        type=float,
+        default=3.0,
+        metavar="S",
+        help="with --screenshot: wall-clock seconds from opening the window to the "
+        "screenshot (default 3)",
+    )
     p.set_defaults(run=run)
 
 

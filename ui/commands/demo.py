@@ -17,6 +17,7 @@ from typing import Any
 
 from ui.outputs import add_force_option, claim_folder, write_text_atomic
 from ui.safety import CAUTION
+from ui.sim_help import SPEED_HELP
 
 __all__ = ["register"]
 
@@ -32,11 +33,30 @@ def register(subparsers: Any) -> None:
             "demo.png to --out."
         ),
     )
-    p.add_argument("--profile", help="cell profile (TOML); default: the invented demo cell")
-    p.add_argument("--out", default="forcelens-demo", help="output folder (default: %(default)s)")
-    p.add_argument("--seed", type=int, default=1, help="simulator seed (default: %(default)s)")
     p.add_argument(
-        "--speed", type=float, default=1.0, help="simulated time per real second (default: 1)"
+        "--profile",
+        metavar="FILE.toml",
+        help="cell profile (default: the invented demo cell)",
+    )
+    p.add_argument(
+        "--out",
+        default="forcelens-demo",
+        metavar="DIR",
+        help="output folder (default: %(default)s)",
+    )
+    p.add_argument(
+        "--seed",
+        type=int,
+        default=1,
+        metavar="N",
+        help="seed of the simulated noise, an integer ≥ 0 (default: %(default)s)",
+    )
+    p.add_argument(
+        "--speed",
+        type=float,
+        default=1.0,
+        metavar="X",
+        help=SPEED_HELP + " (default 1)",
     )
     p.add_argument("--no-plot", action="store_true", help="skip the PNG plot")
     p.add_argument(

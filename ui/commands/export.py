@@ -29,11 +29,16 @@ def register(subparsers: Any) -> None:
         ),
     )
     p.add_argument("run_folder", metavar="RUN", help="run folder")
-    p.add_argument("--out", help="output file (default: RUN_ID-STREAM.csv, .mat or .h5 here)")
+    p.add_argument(
+        "--out",
+        metavar="FILE",
+        help="output file (default: RUN_ID-STREAM.csv, .mat or .h5 in the current folder)",
+    )
     p.add_argument(
         "--stream",
         default="samples",
-        help="'samples' (default) or 'estimates' (the force computed live)",
+        metavar="STREAM",
+        help="samples (the raw samples) or estimates (the force computed live); default: samples",
     )
     p.add_argument(
         "--format",

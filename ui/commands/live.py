@@ -17,6 +17,7 @@ from pathlib import Path
 from typing import Any
 
 from ui.safety import CAUTION
+from ui.sim_help import FAULTS_HELP, PROGRAMME_HELP, SPEED_HELP
 
 __all__ = ["register", "run_live"]
 
@@ -37,8 +38,13 @@ def register(subparsers: Any) -> None:
             "closed cleanly."
         ),
     )
-    p.add_argument("--profile", metavar="FILE", help="cell profile (default: the demo cell)")
-    p.add_argument("--port", metavar="PORT", help="serial port; overrides the profile's")
+    p.add_argument("--profile", metavar="FILE.toml", help="cell profile (default: the demo cell)")
+    p.add_argument(
+        "--port",
+        metavar="PORT",
+        help="serial port, e.g. /dev/ttyUSB0 or COM3 (default: the profile's port; none: "
+        "the built-in simulated cell)",
+    )
     p.add_argument(
         "--record",
         metavar="DIR",
@@ -46,31 +52,52 @@ def register(subparsers: Any) -> None:
         const=DEFAULT_RUNS_ROOT,
         help=f"record the run in a new folder under DIR (default DIR: {DEFAULT_RUNS_ROOT})",
     )
-    p.add_argument("--note", default="", help="operator note stored with the run")
     p.add_argument(
-        "--tag", action="append", default=[], help="tag stored with the run (repeatable)"
+        "--note",
+        default="",
+        metavar="TEXT",
+        help="operator note stored with the run (default: none)",
     )
     p.add_argument(
-        "--duration", type=float, metavar="S", help="stop after S seconds (default: Ctrl-C)"
+        "--tag",
+        action="append",
+        default=[],
+        metavar="TEXT",
+        help="tag stored with the run; repeat for more (default: none)",
+    )
+    p.add_argument(
+        "--duration",
+        type=float,
+        metavar="S",
+        help="stop after S seconds of wall-clock time (default: run until q or Ctrl-C)",
     )
     p.add_argument("--quiet", action="store_true", help="no status line")
     sim = p.add_argument_group("built-in simulated cell (used when no port is given)")
     sim.add_argument(
         "--sim-programme",
         metavar="SPEC",
-        help="load programme, e.g. 'hold 0.5 0; hold 1 50' (default: the demo programme)",
+        help=PROGRAMME_HELP + " (default: the demo programme)",
     )
-    sim.add_argument("--sim-speed", type=float, default=1.0, metavar="X", help="time scale")
-    sim.add_argument("--sim-seed", type=int, default=0, metavar="N", help="noise seed")
+    sim.add_argument(
+        "--sim-speed",
+        type=float,
+        default=1.0,
+        metavar="X",
+        help=SPEED_HELP + " (default 1)",
+    )
+    sim.add_argument(
+        "--sim-seed",
+        type=int,
+        default=0,
+        metavar="N",
+        help="seed of the simulated noise, an integer ≥ 0 (default 0)",
+    )
     sim.add_argument("--sim-once", action="store_true", help="play the programme once, then stop")
     sim.add_argument(
         "--sim-faults",
         metavar="SPEC",
         default="",
-        help=(
-            "faults to inject, comma-separated KIND@T[:DURATION][*COUNT], T in simulated s; "
-            "kinds garbage, drop, corrupt, disconnect, stall; e.g. 'drop@1*50,disconnect@2:0.5'"
-        ),
+        help=FAULTS_HELP + " (default: none)",
     )
     p.set_defaults(run=run_live)
 

@@ -55,51 +55,67 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     )
     new.add_argument("out", metavar="OUT.toml", help="file to write")
     new.add_argument(
-        "--stiffness-n-per-m", type=float, required=True, metavar="K", help="stiffness, N/m"
+        "--stiffness-n-per-m",
+        type=float,
+        required=True,
+        metavar="K",
+        help="stiffness, N/m (required)",
     )
     mass = new.add_mutually_exclusive_group(required=True)
-    mass.add_argument("--mass-kg", type=float, metavar="M", help="moving mass, kg")
+    mass.add_argument(
+        "--mass-kg", type=float, metavar="M", help="moving mass, kg (this or the next)"
+    )
     mass.add_argument(
         "--natural-frequency-hz",
         type=float,
-        metavar="F",
-        help="undamped natural frequency, Hz (mass derived as k/(2πF)²)",
+        metavar="HZ",
+        help="undamped natural frequency f, Hz; the mass is then k/(2π·f)²",
     )
     new.add_argument(
-        "--damping-ratio", type=float, required=True, metavar="Z", help="damping ratio ζ, > 0"
+        "--damping-ratio",
+        type=float,
+        required=True,
+        metavar="Z",
+        help="damping ratio ζ, dimensionless, > 0 (required)",
     )
     new.add_argument(
         "--noise-m",
         type=float,
         required=True,
-        metavar="S",
-        help="1-sigma white displacement noise, m",
+        metavar="X",
+        help="white displacement noise of the transducer, one standard deviation, m (required)",
     )
     new.add_argument(
         "--resolution-m",
         type=float,
         required=True,
-        metavar="R",
-        help="displacement of one ADC count, m",
+        metavar="X",
+        help="displacement of one ADC count, m (required)",
     )
     new.add_argument(
-        "--sample-rate-hz", type=float, required=True, metavar="FS", help="sample rate, Hz"
+        "--sample-rate-hz",
+        type=float,
+        required=True,
+        metavar="HZ",
+        help="sample rate, Hz (required)",
     )
     new.add_argument(
         "--force-max-n",
         type=float,
         required=True,
-        metavar="N",
-        help="upper end of the calibrated force range, N",
+        metavar="F",
+        help="upper end of the calibrated force range, N (required)",
     )
     new.add_argument(
         "--force-min-n",
         type=float,
         default=0.0,
-        metavar="N",
+        metavar="F",
         help="lower end of the calibrated force range, N (default 0)",
     )
-    new.add_argument("--name", help="cell name (default: the file name without extension)")
+    new.add_argument(
+        "--name", metavar="TEXT", help="cell name (default: the file name without .toml)"
+    )
     new.add_argument(
         "--bandwidth-hz",
         type=float,
@@ -115,14 +131,23 @@ def register(subparsers: argparse._SubParsersAction) -> None:
         metavar="V",
         help="ADC least significant bit, V (default 20/2**24)",
     )
-    new.add_argument("--travel-m", type=float, metavar="X", help="mechanical stop |x|, m")
     new.add_argument(
-        "--port", default="", help='serial port (default "": the built-in simulated cell)'
+        "--travel-m",
+        type=float,
+        metavar="X",
+        help="displacement |x| at the mechanical stop, m (default: none, no travel alarm)",
+    )
+    new.add_argument(
+        "--port",
+        default="",
+        metavar="PORT",
+        help='serial port, e.g. /dev/ttyUSB0 or COM3 (default "": the built-in simulated cell)',
     )
     new.add_argument(
         "--baudrate",
         type=int,
         default=AcquisitionSection(sample_rate_hz=1.0).baudrate,
+        metavar="BAUD",
         help="serial line speed, bit/s (default %(default)d)",
     )
     add_force_option(new)
@@ -131,9 +156,14 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     show = actions.add_parser(
         "show",
         help="validate a profile and print a summary",
-        description="Validate and summarise.",
+        description=(
+            "Read a cell profile, check every key (present, a finite number in range, its "
+            "unit plausible) and print it in SI units with what follows from it: natural "
+            "frequency, damping coefficient and the static force of one count and of the "
+            "noise. A profile with a problem is refused in one line naming the key."
+        ),
     )
-    show.add_argument("file", metavar="FILE", help="profile to read")
+    show.add_argument("file", metavar="FILE.toml", help="profile to read")
     show.set_defaults(run=run_show)
 
 

@@ -39,14 +39,22 @@ def register(subparsers: Any) -> None:
     )
     p.add_argument("source", metavar="RUN_OR_CSV", help="run folder or CSV file")
     p.add_argument(
-        "--profile", help="cell profile (TOML); required for CSV, overrides a run's own"
+        "--profile",
+        metavar="FILE.toml",
+        help="cell profile; required for a CSV (default for a run: the run's own)",
     )
-    p.add_argument("--out", help="write the estimates to this CSV (required for a CSV input)")
+    p.add_argument(
+        "--out",
+        metavar="FILE.csv",
+        help="write the estimates to this CSV; required for a CSV input (default for a run: "
+        "none written)",
+    )
     p.add_argument(
         "--speed",
         default="max",
         metavar="X",
-        help="'max' (default: as fast as possible), 1 for real time, or a factor such as 5",
+        help="'max' (as fast as possible), or simulated seconds per real second, a factor: "
+        "1 for real time, 5 for five times faster (default: max)",
     )
     p.add_argument(
         "--steps",

@@ -32,7 +32,9 @@ def register(subparsers: Any) -> None:
         ),
     )
     p.add_argument("run_folder", metavar="RUN", help="run folder")
-    p.add_argument("--out", help="output folder (default: RUN-report beside the run)")
+    p.add_argument(
+        "--out", metavar="DIR", help="output folder (default: RUN-report beside the run)"
+    )
     add_force_option(p)
     add_unverified_option(p)
     p.set_defaults(run=run)

@@ -16,6 +16,7 @@ import time
 from typing import TYPE_CHECKING
 
 from ui.outputs import add_force_option, claim_file
+from ui.sim_help import FAULTS_HELP, PROGRAMME_HELP, SPEED_HELP
 
 if TYPE_CHECKING:
     from daq.simulator import SimulatedRun
@@ -38,28 +39,35 @@ def register(subparsers: argparse._SubParsersAction) -> None:
         ),
     )
     parser.add_argument(
-        "--profile", metavar="FILE", help="cell profile (default: the built-in demo cell)"
+        "--profile", metavar="FILE.toml", help="cell profile (default: the built-in demo cell)"
     )
     source = parser.add_mutually_exclusive_group()
     source.add_argument(
         "--programme",
         metavar="SPEC",
-        help=(
-            "load programme, e.g. 'hold 0.5 0; hold 1 50; ramp 1 0' "
-            "(keywords hold, ramp, sine, halfsine; s, N, Hz)"
-        ),
+        help=PROGRAMME_HELP + " (default: the demo programme)",
     )
     source.add_argument(
-        "--programme-csv", metavar="FILE", help="load programme as a time_s,force_n CSV"
+        "--programme-csv",
+        metavar="FILE.csv",
+        help="load programme as a CSV of time_s (s, from 0) and force_n (N), linear "
+        "between points (default: the demo programme)",
     )
     parser.add_argument(
         "--rate", type=float, metavar="HZ", help="sample rate, Hz (default: the profile's)"
     )
-    parser.add_argument("--seed", type=int, default=0, metavar="N", help="noise seed (default 0)")
+    parser.add_argument(
+        "--seed",
+        type=int,
+        default=0,
+        metavar="N",
+        help="seed of the simulated noise, an integer ≥ 0 (default 0)",
+    )
     parser.add_argument(
         "--truth",
-        metavar="FILE",
-        help="also write the true force and displacement (first pass) as CSV",
+        metavar="FILE.csv",
+        help="also write the true force and displacement (first pass) as CSV (default: "
+        "none written)",
     )
     add_force_option(parser)
     parser.add_argument(
@@ -70,7 +78,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
         type=float,
         default=1.0,
         metavar="X",
-        help="time-scale factor, 2 plays twice as fast (default 1)",
+        help=SPEED_HELP + " (default 1)",
     )
     parser.add_argument(
         "--framing",
@@ -81,10 +89,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
         "--faults",
         metavar="SPEC",
         default="",
-        help=(
-            "faults to inject, comma-separated KIND@T[:DURATION][*COUNT], T in simulated s; "
-            "kinds garbage, drop, corrupt, disconnect, stall; e.g. 'drop@1*50,stall@2:0.3'"
-        ),
+        help=FAULTS_HELP + " (default: none)",
     )
     parser.add_argument(
         "--start-delay",
@@ -92,8 +97,9 @@ def register(subparsers: argparse._SubParsersAction) -> None:
         default=2.0,
         metavar="S",
         help=(
-            "seconds between printing the port and the first sample, so a client can open "
-            "the port first (opening a port discards what arrived before; default 2)"
+            "wall-clock seconds between printing the port and the first sample, so a "
+            "client can open the port first (opening a port discards what arrived before; "
+            "default 2)"
         ),
     )
     parser.add_argument(

@@ -36,15 +36,50 @@ def register(subparsers: Any) -> None:
             "profile."
         ),
     )
-    p.add_argument("record", help="run folder, or CSV with time_s and displacement_m/mm/um")
     p.add_argument(
-        "--quiet-from", type=float, metavar="S", help="quiet start, s (with --quiet-to)"
+        "record",
+        metavar="RUN_OR_CSV",
+        help="run folder, or CSV with time_s and displacement_m/mm/um",
     )
-    p.add_argument("--quiet-to", type=float, metavar="S", help="quiet end, s (with --quiet-from)")
-    p.add_argument("--from", dest="t_from", type=float, metavar="S", help="record start, s")
-    p.add_argument("--to", dest="t_to", type=float, metavar="S", help="record end, s")
-    p.add_argument("--profile", help="cell profile (default: the run's own, or the demo cell)")
-    p.add_argument("--out", help="write the tuned profile here (TOML)")
+    p.add_argument(
+        "--quiet-from",
+        type=float,
+        metavar="S",
+        help="start of a quiet stretch (cell unloaded, at rest), s, on the record's clock; "
+        "with --quiet-to (default: none, the noise is fitted)",
+    )
+    p.add_argument(
+        "--quiet-to",
+        type=float,
+        metavar="S",
+        help="end of the quiet stretch, s, on the record's clock; with --quiet-from",
+    )
+    p.add_argument(
+        "--from",
+        dest="t_from",
+        type=float,
+        metavar="S",
+        help="start of the part fitted, s, on the record's own clock: a run's device time "
+        "(as replay and the dashboard show it) or a CSV's time_s (default: the record's "
+        "start)",
+    )
+    p.add_argument(
+        "--to",
+        dest="t_to",
+        type=float,
+        metavar="S",
+        help="end of the part fitted, s, on the same clock (default: the record's end)",
+    )
+    p.add_argument(
+        "--profile",
+        metavar="FILE.toml",
+        help="cell profile (default: the run's own; for a CSV the demo cell)",
+    )
+    p.add_argument(
+        "--out",
+        metavar="FILE.toml",
+        help="write the tuned profile here (default: none written)",
+    )
     add_force_option(p)
     p.set_defaults(run=run)
 
