@@ -4,10 +4,15 @@
 thread, the pipeline and the optional recording, and is polled from one consumer
 thread. Each `poll` drains the samples and reader events that arrived, estimates
 force, logs the events in the run and keeps the run's flush interval.
+
+The session's events (connections, alarms raised and cleared, zeros, marks, recordings
+begun and closed, the end) also go, one line each, to the ``forcelens.session`` logger
+(`ui.session_log`); nothing is logged per sample.
 """
 
 from __future__ import annotations
 
+import logging
 import math
 import time
 from collections.abc import Sequence
@@ -18,11 +23,17 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from ui.pipeline import EstimationPipeline, Tare
+from ui.session_log import session_logger
 
 if TYPE_CHECKING:
     from daq.serial_source import ReaderEvent
     from estimator.profile import CellProfile
     from ui.recording import Recording
+    from ui.session_log import SessionLog
+
+_log = session_logger()
+#: Reader events worth a warning in the session log (the others are information).
+_WARN_KINDS = frozenset({"disconnected", "open-failed", "unread-dropped"})
 
 __all__ = ["LiveSession", "PollResult"]
 
@@ -45,6 +56,7 @@ class LiveSession:
         profile: cell profile (framing, serial settings, observer).
         port: serial port or pyserial URL to read.
         recording: an open `ui.recording.Recording`, or None for no recording.
+        log: the session's log file; recordings begun later move it into their folder.
         reader_options: extra keyword arguments for `daq.serial_source.SerialReader`.
     """
 
@@ -54,6 +66,7 @@ class LiveSession:
         port: str,
         *,
         recording: Recording | None = None,
+        log: SessionLog | None = None,
         **reader_options: Any,
     ) -> None:
         from daq.serial_source import SerialReader
@@ -62,6 +75,7 @@ class LiveSession:
         self.profile = profile
         self.port = port
         self.recording = recording
+        self.log = log
         self.decoder = decoder_for(profile)
         self.reader = SerialReader(
             port_settings_for(profile, port),
@@ -79,6 +93,14 @@ class LiveSession:
 
     def start(self) -> LiveSession:
         """Start the reading thread; returns self."""
+        _log.info(
+            "reading %s: cell %r, %s framing at %g Hz%s",
+            self.port,
+            self.profile.cell.name,
+            self.profile.acquisition.framing,
+            self.profile.acquisition.sample_rate_hz,
+            f"; recording run {self.recording.run_id}" if self.recording is not None else "",
+        )
         self.reader.start()
         return self
 
@@ -90,6 +112,8 @@ class LiveSession:
         for ev in events:
             if ev.kind in ("connected", "reconnected"):
                 self.connected_once = True
+            level = logging.WARNING if ev.kind in _WARN_KINDS else logging.INFO
+            _log.log(level, "%s: %s (last seq %s)", ev.kind, ev.message, ev.last_seq)
             if writer is not None:
                 writer.event(ev.kind, ev.message, host_time_s=ev.host_time_s, last_seq=ev.last_seq)
         if samples.size:
@@ -104,6 +128,11 @@ class LiveSession:
         now = self._clock()
         if self.reader.stats().samples_unread == 0:
             changes += self.pipeline.tick(now)
+        for change in changes:
+            if getattr(change, "alarm_id", None):  # alarms; settling states stay in the run
+                level = logging.WARNING if change.event == "raised" else logging.INFO
+                _log.log(level, "alarm %s %s (%s): %s", change.alarm_id, change.event,
+                         change.severity, change.message)  # fmt: skip
         if writer is not None:
             writer.maybe_flush()
         return PollResult(samples, estimates, events, changes)
@@ -113,6 +142,7 @@ class LiveSession:
         seq = self.pipeline.last_seq
         if self.recording is not None:
             self.recording.writer.event("mark", message or "mark", seq=seq)
+        _log.info("mark at seq %s: %s", seq, message or "mark")
         return seq
 
     def tare(self, requested_s: float | None = None) -> Tare:
@@ -120,9 +150,18 @@ class LiveSession:
 
         The cell must be unloaded and at rest; the zero is logged in the run.
         """
-        return self.pipeline.tare(
-            requested_s=self._clock() if requested_s is None else requested_s
-        )
+        try:
+            tare = self.pipeline.tare(
+                requested_s=self._clock() if requested_s is None else requested_s
+            )
+        except ValueError as exc:
+            _log.warning("zero refused: %s", exc)
+            raise
+        _log.info(
+            "zero set: offset %.6e m from %d samples, from seq %s (sample %d)",
+            tare.offset_m, tare.n_samples, tare.seq, tare.index,
+        )  # fmt: skip
+        return tare
 
     def start_recording(
         self, root: Path, *, note: str = "", tags: Sequence[str] = ()
@@ -146,6 +185,12 @@ class LiveSession:
             self.pipeline.tare(offset_m=offset)
         self.recording = recording
         self._baseline = self._counters()
+        if self.log is not None:
+            self.log.follow_run(recording.folder)
+        _log.info(
+            "recording run %s in %s%s", recording.run_id, recording.folder,
+            f"; zero carried over: {offset:.6e} m" if offset != 0.0 else "",
+        )  # fmt: skip
         return recording
 
     def stop_recording(self, status: str = "complete", reason: str = "") -> dict[str, Any]:
@@ -157,7 +202,15 @@ class LiveSession:
         summary = {"reason": reason, **self.summary(), "final_tick_host_s": final_tick}
         recording, self.recording = self.recording, None
         self.pipeline.recorder = None
-        recording.close(status, summary)
+        try:
+            recording.close(status, summary)
+        except Exception as exc:
+            _log.error("run %s could not be closed: %s", recording.run_id, exc)
+            raise
+        finally:
+            _log.info("run %s closed, status %s: %s", recording.run_id, status, _counts(summary))
+            if self.log is not None:
+                self.log.leave_run()
         return summary
 
     def _counters(self) -> dict[str, Any]:
@@ -200,9 +253,24 @@ class LiveSession:
             finally:
                 summary = {"reason": reason, **self.summary(), "final_tick_host_s": final_tick}
                 if self.recording is not None:
-                    self.recording.close(status, summary)
+                    try:
+                        self.recording.close(status, summary)
+                    except Exception as exc:
+                        _log.error("run %s could not be closed: %s", self.recording.run_id, exc)
+                        raise
+                    _log.info("run %s closed, status %s", self.recording.run_id, status)
+                _log.log(
+                    logging.ERROR if status == "failed" else logging.INFO,
+                    "stopped (%s, %s): %s", status, reason or "no reason given", _counts(summary),
+                )  # fmt: skip
             self._summary = summary
         return self._summary
+
+
+def _counts(summary: dict[str, Any]) -> str:
+    """The counters of a summary in one line, for the log."""
+    names = ("samples", "samples_lost", "rejected_frames", "reconnects", "observer_restarts")
+    return ", ".join(f"{name} {summary.get(name)}" for name in names)
 
 
 def _number_or_none(value: float | None) -> float | None:

@@ -24,6 +24,8 @@ SUPPORTED_RUN_VERSIONS: tuple[int, ...] = (1,)
 DESCRIPTION_FILE = "run.json"
 EVENTS_FILE = "events.jsonl"
 CLOSING_FILE = "closing.json"
+#: The session's log (`ui.session_log`): for people, outside the seal (docs/run-format.md).
+LOG_FILE = "session.log"
 #: Allowed values of ``closing.json`` ``status``.
 CLOSING_STATUSES: tuple[str, ...] = ("complete", "aborted", "failed")
 #: Largest allowed flush interval, s: at most this much data is lost on a crash.

@@ -8,7 +8,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from daq.errors import RunFormatError
-from daq.runs.layout import CLOSING_FILE, EVENTS_FILE
+from daq.runs.layout import CLOSING_FILE, EVENTS_FILE, LOG_FILE
 from daq.runs.loss import lost_data_problems
 from daq.runs.reader import (
     _closing_problems,
@@ -81,6 +81,8 @@ def verify_run(folder: str | os.PathLike[str]) -> VerifyReport:
     Checks: the description and closing are valid; the run was closed; record counts and
     SHA-256 of every file match ``closing.json``; no torn record or event line; sample
     ``seq`` increases by 1 except where ``FLAG_GAP_BEFORE`` marks a gap (counted in notes).
+    The session's log (``session.log``) is outside the seal: its presence is a note, and
+    it is never opened.
     """
     where = str(folder)
     try:
@@ -125,6 +127,8 @@ def verify_run(folder: str | os.PathLike[str]) -> VerifyReport:
     reconnects = int(np.count_nonzero(np.asarray(samples["flags"]) & FLAG_RECONNECT_BEFORE))
     if reconnects:
         notes.append(f"samples: {reconnects} reconnection(s) flagged")
+    if os.path.lexists(info.folder / LOG_FILE):  # not opened: it may be anything
+        notes.append(f"{LOG_FILE}: the session's log, outside the seal (not checked)")
     return VerifyReport(
         ok=not problems,
         closed=info.closed,
