@@ -216,3 +216,64 @@ def test_verify_never_opens_the_log(tmp_path: Path) -> None:
     report = verify_run(folder)
     assert report.ok and any("session.log" in n for n in report.notes)
     assert main(["verify", str(folder)]) == 0
+
+
+def _worker_log(folder: Path) -> Path:
+    (found,) = sorted(folder.glob("forcelens-*-dashboard-*.log"))
+    return found
+
+
+def test_the_dashboards_worker_logs_its_session_and_its_recording(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    from tests.ui.test_dashboard_worker import _wait
+    from ui.dashboard.buffer import TraceBuffer
+    from ui.dashboard.worker import AcquisitionWorker, SimulatedSource
+
+    monkeypatch.setenv(LOG_DIR_ENV, str(tmp_path / "logs"))  # the spawned worker inherits it
+    buffer = TraceBuffer(20_000)
+    sim = SimulatedSource(programme="hold 0.5 0; hold 3 30", speed=4.0, loop=False)
+    worker = AcquisitionWorker(PROFILE, None, buffer, runs_root=tmp_path / "runs", simulated=sim)
+    worker.start()
+    try:
+        _wait(lambda: buffer.total > 300)
+        worker.tare()
+        worker.start_recording(note="worker log test (invented data)")
+        _wait(lambda: worker.status().recording != "")
+        worker.mark("loaded")
+        _wait(lambda: buffer.total > 2000)
+        worker.stop_recording()
+        _wait(lambda: worker.status().recording == "")
+    finally:
+        worker.stop()
+    user = _worker_log(tmp_path / "logs")
+    assert any(m.endswith(f"session log: {user}") for m in worker.status().messages)
+    text = user.read_text(encoding="utf-8")
+    assert "INFO    source: the built-in simulated cell (invented data) on " in text
+    assert "INFO    profile: the built-in demo profile (invented cell)" in text
+    assert "INFO    zero set: offset" in text
+    (folder,) = [p.parent for p in (tmp_path / "runs").glob("*/run.json")]
+    inside = (folder / "session.log").read_text(encoding="utf-8")
+    assert f"continued from {user}" in inside and "mark at seq" in inside
+    assert f"run {folder.name} closed, status complete" in inside
+    assert "INFO    stopped (complete, window closed)" in _lines(user)[-1]
+    assert verify_run(folder).ok
+
+
+def test_the_dashboards_worker_logs_why_it_failed(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    from tests.ui.test_dashboard_worker import _wait
+    from ui.dashboard.buffer import TraceBuffer
+    from ui.dashboard.worker import AcquisitionWorker, SimulatedSource
+
+    monkeypatch.setenv(LOG_DIR_ENV, str(tmp_path / "logs"))
+    sim = SimulatedSource(faults="melt@1")  # no such fault kind (invented)
+    worker = AcquisitionWorker(PROFILE, None, TraceBuffer(1000), simulated=sim).start()
+    try:
+        _wait(lambda: worker.status().state == "failed")
+    finally:
+        worker.stop()
+    last = _lines(_worker_log(tmp_path / "logs"))[-1]
+    assert "ERROR   acquisition stopped by SourceError: the simulated cell did not start" in last
+    assert "melt" in last

@@ -370,7 +370,12 @@ class DashboardWindow(QtWidgets.QMainWindow):
         rate = self.profile.acquisition.sample_rate_hz
         self.buffer = TraceBuffer(int(_MAX_WINDOW_S * rate) + 1)
         worker = AcquisitionWorker(
-            self.profile, port, self.buffer, runs_root=self.runs_root, simulated=self.simulated
+            self.profile,
+            port,
+            self.buffer,
+            runs_root=self.runs_root,
+            simulated=self.simulated,
+            profile_path=str(self.profile_path or ""),
         )
         self.attach(worker.start(), self.buffer)
         self._say(f"connecting to {port or SIMULATED_LABEL}")

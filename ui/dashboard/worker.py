@@ -220,6 +220,10 @@ class AcquisitionWorker:
         buffer: where the traces go (time is kept increasing across device restarts).
         runs_root: folder that recordings are created under.
         simulated: options of the simulated cell (used when `port` is None).
+        profile_path: the profile's file, for the session's log ("" for the demo cell).
+
+    The worker process keeps the session's log (`ui.session_log`): in the run folder while
+    recording, in the per-user log folder otherwise.
     """
 
     def __init__(
@@ -230,12 +234,14 @@ class AcquisitionWorker:
         *,
         runs_root: Path = Path("recordings"),
         simulated: SimulatedSource | None = None,
+        profile_path: str = "",
     ) -> None:
         self.profile = profile
         self.port = port
         self.buffer = buffer
         self.runs_root = Path(runs_root)
         self.simulated = simulated or SimulatedSource()
+        self.profile_path = profile_path
         self._commands: Any = PROCESS_CONTEXT.Queue()
         # A plain shared flag, not an Event: an Event's lock could be left held by a
         # worker that died, and setting it would then hang the window.
@@ -251,7 +257,7 @@ class AcquisitionWorker:
         if self._process is None:
             acquisition = _Acquisition(
                 self.profile, self.port, self.buffer, self.runs_root, self.simulated,
-                self._commands, self._stop, self._box,
+                self._commands, self._stop, self._box, self.profile_path,
             )  # fmt: skip
             # The bound method is pickled to the new process with what it holds: the
             # shared buffer, box, flag and queue, not copies of them.
@@ -334,8 +340,11 @@ class _Acquisition:
         commands: Any,
         stop: Any,
         box: StatusBox,
+        profile_path: str = "",
     ) -> None:
         self.profile = profile
+        self.profile_path = profile_path
+        self._log: Any = None  # ui.session_log.SessionLog, in the worker process
         self.port = port
         self.buffer = buffer
         self.runs_root = runs_root
@@ -374,25 +383,38 @@ class _Acquisition:
     def run(self) -> None:
         """The worker process: acquire until stopped or until the window's process is
         gone (a recording in progress is closed cleanly either way); every failure ends
-        as a published "failed" state."""
+        as a published "failed" state, logged in the session's log."""
+        from ui.session_log import SessionLog, log_start, session_logger
+
         cell = None
-        try:
-            port = self.port
-            if port is None:
-                cell = CellProcess(self.profile, self.simulated)
-                port = cell.port_name
-            self._loop(port, cell)
-        except Exception as exc:  # shown in the window; the worker must not die silently
-            self._say(f"acquisition stopped: {exc}")
-            self._publish(state="failed", error=str(exc))
-        finally:
-            if cell is not None:
-                cell.stop()
+        with SessionLog("dashboard") as self._log:
+            if self._log.path is not None:
+                self._say(f"session log: {self._log.path}")
+            try:
+                port = self.port
+                if port is None:
+                    cell = CellProcess(self.profile, self.simulated)
+                    port = cell.port_name
+                source = (
+                    port
+                    if cell is None
+                    else f"the built-in simulated cell (invented data) on {port}"
+                )
+                command = f"forcelens dashboard (window process {os.getppid()})"
+                log_start(command, source, self.profile, self.profile_path)
+                self._loop(port, cell)
+            except Exception as exc:  # shown in the window; the worker must not die silently
+                session_logger().error("acquisition stopped by %s: %s", type(exc).__name__, exc)
+                self._say(f"acquisition stopped: {exc}")
+                self._publish(state="failed", error=str(exc))
+            finally:
+                if cell is not None:
+                    cell.stop()
 
     def _loop(self, port: str, cell: Any) -> None:
         from ui.session import LiveSession
 
-        session = LiveSession(self.profile, port)
+        session = LiveSession(self.profile, port, log=self._log)
         session.start()
         started_cell = False
         parent = multiprocessing.parent_process()
@@ -424,10 +446,12 @@ class _Acquisition:
             if session.recording is not None:
                 summary = session.stop_recording(reason=reason)
                 self._say(f"recording closed: {summary['samples']} samples")
-            session.close()
+            session.close(reason=reason)
             self._publish_session(session, state="stopped")
 
     def _run_commands(self, session: Any) -> None:
+        from ui.session_log import session_logger
+
         while True:
             try:
                 name, args = self._commands.get_nowait()
@@ -450,12 +474,15 @@ class _Acquisition:
                     alarms = session.pipeline.alarms
                     if alarms is not None and alarms.acknowledge(args[0]):
                         self._say(f"alarm {args[0]} acknowledged")
+                        session_logger().info("alarm %s acknowledged", args[0])
                 elif name == "tare":
                     tare = session.tare(requested_s=args[0])
                     offset = self.units.displacement_text(tare.offset_m)
                     self._say(f"zero set: {offset} subtracted ({tare.n_samples} samples)")
             except ValueError as exc:
                 self._say(f"{name} refused: {exc}")
+                if name != "tare":  # the session logs a refused zero itself
+                    session_logger().warning("%s refused: %s", name, exc)
 
     def _push(self, samples: np.ndarray, est: np.ndarray, session: Any) -> None:
         t = est["time_s"].astype(float)
