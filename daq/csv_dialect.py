@@ -22,6 +22,7 @@ import os
 import tempfile
 from collections.abc import Callable, Mapping, Sequence
 from pathlib import Path
+from typing import NoReturn
 
 import numpy as np
 
@@ -29,6 +30,7 @@ from daq.errors import SourceError
 
 __all__ = [
     "DELIMITER",
+    "CsvTableWriter",
     "column_header",
     "number_texts",
     "split_column_header",
@@ -36,7 +38,7 @@ __all__ = [
 ]
 
 DELIMITER = ","
-_CHUNK_ROWS = 65_536
+_CHUNK_ROWS = 16_384  # rows formatted at a time (~15 MB of text objects)
 
 
 def column_header(name: str, unit: str) -> str:
@@ -65,6 +67,100 @@ def number_texts(values: np.ndarray) -> list[str]:
     return [str(int(v)) for v in values.tolist()]
 
 
+class CsvTableWriter:
+    """Write a table in the dialect block by block (a record of any length in bounded
+    memory); the file appears under ``path`` only when the writer is closed without an
+    error.
+
+    Use it as a context manager: ``with CsvTableWriter(path, title=..., columns=[(name,
+    unit), ...]) as out: out.write([values, ...])``. The rows written are the same text,
+    byte for byte, however the table is cut into blocks. The file is written under a
+    temporary name in the same folder and renamed over ``path`` once complete, so a
+    reader sees the old file or the whole new one.
+
+    Raises:
+        SourceError: the file cannot be written.
+    """
+
+    def __init__(
+        self,
+        path: str | os.PathLike[str],
+        *,
+        title: str,
+        metadata: Mapping[str, object] | None = None,
+        columns: Sequence[tuple[str, str]],
+    ) -> None:
+        self.path = Path(path)
+        self.rows = 0
+        self._width = len(columns)
+        head = [f"# forcelens {title}"]
+        head += [f"# {key}: {value}" for key, value in (metadata or {}).items()]
+        head = [line.replace("\r", " ").replace("\n", " ") for line in head]
+        head.append(DELIMITER.join(column_header(name, unit) for name, unit in columns))
+        try:
+            fd, self._tmp = tempfile.mkstemp(
+                dir=self.path.parent, prefix=f".{self.path.name}.", suffix=".tmp"
+            )
+            self._handle = os.fdopen(fd, "w", encoding="utf-8", newline="\n")
+            self._handle.write("\n".join(head) + "\n")
+        except OSError as exc:
+            self._fail(exc)
+
+    def write(self, values: Sequence[np.ndarray]) -> None:
+        """Append rows: one array per column, all of one length, in the header's order."""
+        if len(values) != self._width:
+            raise ValueError(f"{len(values)} columns given; the table has {self._width}")
+        lengths = {int(np.shape(v)[0]) for v in values}
+        if len(lengths) > 1:
+            raise ValueError(f"columns of different lengths {sorted(lengths)}")
+        n = lengths.pop() if lengths else 0
+        try:
+            for start in range(0, n, _CHUNK_ROWS):
+                stop = start + _CHUNK_ROWS
+                texts = [number_texts(v[start:stop]) for v in values]
+                self._handle.writelines(
+                    DELIMITER.join(row) + "\n" for row in zip(*texts, strict=True)
+                )
+        except OSError as exc:
+            self._fail(exc)
+        self.rows += n
+
+    def close(self) -> None:
+        """Finish the file and rename it over ``path``."""
+        try:
+            self._handle.close()
+            os.chmod(self._tmp, 0o666 & ~_umask())
+            os.replace(self._tmp, self.path)
+        except OSError as exc:
+            self._fail(exc)
+
+    def discard(self) -> None:
+        """Drop the unfinished file; ``path`` is left as it was."""
+        with contextlib.suppress(OSError):
+            self._handle.close()
+        with contextlib.suppress(FileNotFoundError):
+            os.unlink(self._tmp)
+
+    def _fail(self, exc: OSError) -> NoReturn:
+        if hasattr(self, "_handle"):
+            self.discard()
+        elif hasattr(self, "_tmp"):
+            with contextlib.suppress(FileNotFoundError):
+                os.unlink(self._tmp)
+        raise SourceError(
+            f"{self.path}: cannot write the CSV file ({exc.strerror or exc})"
+        ) from exc
+
+    def __enter__(self) -> CsvTableWriter:
+        return self
+
+    def __exit__(self, kind: type[BaseException] | None, *rest: object) -> None:
+        if kind is None:
+            self.close()
+        else:
+            self.discard()
+
+
 def write_csv_table(
     path: str | os.PathLike[str],
     *,
@@ -75,8 +171,7 @@ def write_csv_table(
 ) -> int:
     """Write ``columns`` (``(name, unit, values)``, all of one length) to ``path``.
 
-    The file is written under a temporary name in the same folder and renamed over
-    ``path`` once complete, so a reader sees the old file or the whole new one.
+    The whole table at once through `CsvTableWriter` (atomically).
     ``progress(rows)`` is called after each chunk with the rows written so far.
     Returns the number of data rows.
 
@@ -88,27 +183,13 @@ def write_csv_table(
     if len(lengths) > 1:
         raise ValueError(f"columns of different lengths {sorted(lengths)}")
     n = lengths.pop() if lengths else 0
-    head = [f"# forcelens {title}"]
-    head += [f"# {key}: {value}" for key, value in (metadata or {}).items()]
-    head = [line.replace("\r", " ").replace("\n", " ") for line in head]
-    head.append(DELIMITER.join(column_header(name, unit) for name, unit, _ in columns))
-    target = Path(path)
-    fd, tmp_name = tempfile.mkstemp(dir=target.parent, prefix=f".{target.name}.", suffix=".tmp")
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as handle:
-            handle.write("\n".join(head) + "\n")
-            for start in range(0, n, _CHUNK_ROWS):
-                stop = start + _CHUNK_ROWS
-                texts = [number_texts(values[start:stop]) for *_, values in columns]
-                handle.writelines(DELIMITER.join(row) + "\n" for row in zip(*texts, strict=True))
-                if progress is not None:
-                    progress(min(n, start + _CHUNK_ROWS))
-        os.chmod(tmp_name, 0o666 & ~_umask())
-        os.replace(tmp_name, target)
-    except OSError as exc:
-        with contextlib.suppress(FileNotFoundError):
-            os.unlink(tmp_name)
-        raise SourceError(f"{target}: cannot write the CSV file ({exc.strerror or exc})") from exc
+    with CsvTableWriter(
+        path, title=title, metadata=metadata, columns=[(name, unit) for name, unit, _ in columns]
+    ) as out:
+        for start in range(0, n, _CHUNK_ROWS):
+            out.write([values[start : start + _CHUNK_ROWS] for *_, values in columns])
+            if progress is not None:
+                progress(min(n, start + _CHUNK_ROWS))
     return n
 
 

@@ -20,7 +20,8 @@ SHA-256 of every file). The format is documented field by field in
 Times are SI seconds; UTC timestamps are ISO 8601 text ending in ``Z``.
 
 The package splits it by concept: `layout` (names, versions, record layouts), `writer`,
-`reader`, `verify`, `export` (CSV), `export_mat`, `export_hdf5`.
+`reader`, `blocks` (a stream read a block at a time, bounded memory), `verify`,
+`export` (CSV), `export_mat`, `export_hdf5`.
 """
 
 from __future__ import annotations

@@ -546,3 +546,32 @@ def test_csv_export_of_an_extra_stream_and_non_finite_values(tmp_path: Path) -> 
     assert [line.split(",")[3] for line in lines[1:]] == ["1", "0", "1", "0"]
     with pytest.raises(RunFormatError, match="'nope'"):
         export_run_csv(folder_run, out, stream="nope")
+
+
+@pytest.mark.parametrize("block_rows", [1, 7, 1000])
+def test_csv_export_in_blocks_is_byte_identical_to_the_whole_table(
+    tmp_path: Path, block_rows: int
+) -> None:
+    """Reference: the stream read whole (``numpy.fromfile``, in memory) and written as one
+    table; the export reads the file a block at a time and must give the same bytes."""
+    from daq.csv_dialect import write_csv_table
+    from daq.runs.export import export_metadata
+
+    folder = tmp_path / "run"
+    write_run(folder)
+    run = read_run(folder)
+    for stream in ("samples", "estimates"):
+        whole = np.fromfile(folder / f"{stream}.bin", dtype=run.streams[stream].dtype)
+        units = run.description["streams"][stream]["units"]
+        meta = {k: v for k, v in export_metadata(run, stream).items() if k != "run_id"}
+        ref = tmp_path / f"{stream}-whole.csv"
+        write_csv_table(
+            ref,
+            title=f"run {run.run_id}",
+            metadata=meta,
+            columns=[(n, units[n], whole[n]) for n in whole.dtype.names],
+        )
+        for r in (run, read_run(folder, memmap=False)):
+            out = tmp_path / f"{stream}-{block_rows}.csv"
+            assert export_run_csv(r, out, stream=stream, block_rows=block_rows) == whole.size
+            assert out.read_bytes() == ref.read_bytes()
