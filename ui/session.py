@@ -113,7 +113,8 @@ class LiveSession:
             if ev.kind in ("connected", "reconnected"):
                 self.connected_once = True
             level = logging.WARNING if ev.kind in _WARN_KINDS else logging.INFO
-            _log.log(level, "%s: %s (last seq %s)", ev.kind, ev.message, ev.last_seq)
+            seq = "" if ev.last_seq is None else f" (last seq {ev.last_seq})"
+            _log.log(level, "%s: %s%s", ev.kind, ev.message, seq)
             if writer is not None:
                 writer.event(ev.kind, ev.message, host_time_s=ev.host_time_s, last_seq=ev.last_seq)
         if samples.size:

@@ -277,3 +277,35 @@ def test_the_dashboards_worker_logs_why_it_failed(
     last = _lines(_worker_log(tmp_path / "logs"))[-1]
     assert "ERROR   acquisition stopped by SourceError: the simulated cell did not start" in last
     assert "melt" in last
+
+
+def test_live_logs_into_the_run_it_records_and_otherwise_into_the_user_folder(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    from tests.fuzz.harness import run_cli
+
+    monkeypatch.setenv(LOG_DIR_ENV, str(tmp_path / "logs"))
+    # invented programme; the simulated cell's port goes away for 0.3 s at 0.6 s
+    argv = ["live", "--sim-once", "--sim-programme", "hold 0.5 0; hold 0.8 40",
+            "--sim-faults", "disconnect@0.6:0.3", "--quiet"]  # fmt: skip
+    outcome = run_cli([*argv, "--record", str(tmp_path / "runs")])
+    assert outcome.status == 0, outcome.stderr
+    (folder,) = [p.parent for p in (tmp_path / "runs").glob("*/run.json")]
+    path = folder / "session.log"
+    assert f"session log: {path}\n" in outcome.stdout
+    assert not (tmp_path / "logs").exists()  # recording from the start: all in the run
+    lines = _lines(path)
+    text = "\n".join(lines)
+    assert "INFO    command: forcelens live --sim-once --sim-programme 'hold 0.5 0; hold" in text
+    assert "INFO    source: the built-in simulated cell (invented data) on /" in text
+    assert "INFO    profile: the built-in demo profile (invented cell), cell" in text
+    assert "WARNING disconnected: " in text and "INFO    reconnected: " in text
+    assert f"INFO    run {folder.name} closed, status complete" in text
+    assert "INFO    stopped (complete, simulated programme finished): samples " in lines[-1]
+    assert verify_run(folder).ok
+
+    outcome = run_cli(["live", "--sim-once", "--sim-programme", "hold 0.3 0", "--quiet"])
+    assert outcome.status == 0, outcome.stderr
+    (user,) = (tmp_path / "logs").glob("forcelens-*-live-*.log")
+    assert f"session log: {user}\n" in outcome.stdout
+    assert "INFO    stopped (complete, simulated programme finished)" in _lines(user)[-1]

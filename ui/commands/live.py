@@ -174,13 +174,13 @@ def _simulated_cell(args: argparse.Namespace, profile: Any) -> Any:
 
 
 def _acquire(args: argparse.Namespace, profile: Any, port: str, cell: Any) -> int:
-    from estimator.uncertainty import ForceUncertainty
-    from ui.console import HELP, Console, start_line_reader
-    from ui.dashboard.wording import rejected_word
-    from ui.display_units import CellUnits
+    """Open the recording and the session's log (in the run folder when recording, else
+    in the per-user log folder), then run the session; an error is logged before it goes
+    on to the terminal."""
+    import shlex
+
     from ui.recording import open_recording
-    from ui.session import LiveSession
-    from ui.status import StatusLine, format_status
+    from ui.session_log import SessionLog, log_start, session_logger
 
     recording = None
     if args.record:
@@ -192,6 +192,30 @@ def _acquire(args: argparse.Namespace, profile: Any, port: str, cell: Any) -> in
             acquisition={"port": port, "simulated": cell is not None},
         )
         print(f"recording to {recording.folder}", flush=True)
+    with SessionLog("live", run_folder=recording.folder if recording else None) as log:
+        if log.path is not None:
+            print(f"session log: {log.path}", flush=True)
+        source = port
+        if cell is not None:
+            source = f"the built-in simulated cell (invented data) on {port}"
+        command = "forcelens " + shlex.join(getattr(args, "argv", None) or ["live"])
+        log_start(command, source, profile, args.profile)
+        try:
+            return _run(args, profile, port, cell, recording)
+        except BaseException as exc:
+            session_logger().error("ended by %s: %s", type(exc).__name__, exc)
+            raise
+
+
+def _run(args: argparse.Namespace, profile: Any, port: str, cell: Any, recording: Any) -> int:
+    """The session itself: status line, typed commands, until stopped."""
+    from estimator.uncertainty import ForceUncertainty
+    from ui.console import HELP, Console, start_line_reader
+    from ui.dashboard.wording import rejected_word
+    from ui.display_units import CellUnits
+    from ui.session import LiveSession
+    from ui.status import StatusLine, format_status
+
     session = LiveSession(profile, port, recording=recording)
     if session.pipeline.monitor is not None:
         print(f"reading rule: {session.pipeline.monitor.describe()}", flush=True)
