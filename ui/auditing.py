@@ -115,7 +115,7 @@ def audit_run(
     from ui.commands.report import default_report_folder
     from ui.figures import compute_figures, replay_run
     from ui.pipeline import ESTIMATE_STREAM
-    from ui.version import library_changes, software_version
+    from ui.version import library_changes, platform_changes, software_version
 
     folder = Path(folder)
     found = _Findings()
@@ -149,10 +149,22 @@ def audit_run(
     n_samples = int(replayed.data.samples.size)
     likely = _likely(newer, version, replayed.own_profile, problems)
     libraries = library_changes(replayed.data.description.get("libraries"))
-    if libraries and not problems and replayed.own_profile:
-        said = "other library versions (a bit-identical replay depends on them): "
-        said += ", ".join(libraries)
-        likely = (f"{likely[0]}; also {said}", likely[1]) if newer else (said, "other library")
+    machine = platform_changes(replayed.data.description.get("platform"))
+    if (libraries or machine) and not problems and replayed.own_profile:
+        parts = []
+        if libraries:
+            parts.append(
+                "other library versions (a bit-identical replay depends on them): "
+                + ", ".join(libraries)
+            )
+        if machine:
+            parts.append(
+                "another interpreter or processor (floating-point results may differ): "
+                + ", ".join(machine)
+            )
+        said = "; ".join(parts)
+        label = "other library" if libraries else "other platform"
+        likely = (f"{likely[0]}; also {said}", likely[1]) if newer else (said, label)
     explained = newer and replayed.own_profile and not problems
     live = replayed.data.streams.get(ESTIMATE_STREAM)
     if live is not None:

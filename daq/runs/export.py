@@ -39,7 +39,8 @@ def stream_of(run: RunData, stream: str) -> tuple[np.ndarray, dict[str, str]]:
 
 def export_metadata(run: RunData, stream: str) -> dict[str, str]:
     """What every export of ``run`` states about it, as text: run id, start, cell, the
-    software and library versions it was recorded with, whether it was closed, the stream."""
+    software, library and Python versions and the platform it was recorded with, whether it
+    was closed, the stream."""
     d = run.description
     closed = f"yes, status {run.status}" if run.closed else "no (the recording did not finish)"
     meta = {
@@ -50,6 +51,11 @@ def export_metadata(run: RunData, stream: str) -> dict[str, str]:
     }
     for name, version in (d.get("libraries") or {}).items():
         meta[f"{name}_version"] = str(version)
+    facts = d.get("platform") or {}
+    if "python" in facts:
+        meta["python_version"] = str(facts["python"])
+    if "system" in facts:
+        meta["platform"] = str(facts["system"])
     meta["closed"] = closed
     meta["stream"] = stream
     return meta

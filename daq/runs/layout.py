@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import hashlib
 import json
+import platform
 import re
 import secrets
 from datetime import UTC, datetime
@@ -88,6 +89,18 @@ def library_versions() -> dict[str, str]:
         except metadata.PackageNotFoundError:
             versions[name] = "not installed"
     return versions
+
+
+def platform_facts() -> dict[str, str]:
+    """The interpreter and the machine computing the live estimates (run.json ``platform``):
+    Python's version and implementation, the processor architecture (``machine``) and the
+    operating system in one line (``system``, `platform.platform`)."""
+    return {
+        "python": platform.python_version(),
+        "implementation": platform.python_implementation(),
+        "machine": platform.machine(),
+        "system": platform.platform(),
+    }
 
 
 def json_default(value: object) -> object:

@@ -223,6 +223,11 @@ def _check_description(path: Path, data: object) -> dict[str, np.dtype]:
         raise RunFormatError(
             f"{path}: libraries = {libraries!r}: must map library names to version strings"
         )
+    facts = data.get("platform", {})  # absent in runs recorded before it was kept
+    if not isinstance(facts, dict) or not all(isinstance(v, str) for v in facts.values()):
+        raise RunFormatError(
+            f"{path}: platform = {facts!r}: must map names (python, machine...) to strings"
+        )
     flush = data.get("flush_interval_s", FLUSH_INTERVAL_MAX_S)  # absent in older runs
     if not (
         isinstance(flush, int | float)

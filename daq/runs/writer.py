@@ -36,6 +36,7 @@ from daq.runs.layout import (
     layout_text,
     library_versions,
     new_run_id,
+    platform_facts,
     sha256_of,
     to_json,
     utc_text,
@@ -107,6 +108,8 @@ class RunWriter:
         libraries: name → version of the libraries a bit-identical replay depends on;
             defaults to the installed versions of ``REPLAY_LIBRARIES`` (NumPy, SciPy,
             numba, filterpy).
+        platform_info: the interpreter and the machine (``python``, ``implementation``,
+            ``machine``, ``system``); defaults to this one (`platform_facts`).
         extra_streams: more append-only streams, ``{name: (dtype, {field: unit})}``.
             ``"samples"`` (dtype ``SAMPLE_DTYPE``) always exists and cannot be redeclared.
         flush_interval_s: buffered data is written and fsynced once this long has passed
@@ -132,6 +135,7 @@ class RunWriter:
         profile_toml: str = "",
         software_version: str | None = None,
         libraries: Mapping[str, str] | None = None,
+        platform_info: Mapping[str, str] | None = None,
         acquisition: Mapping[str, Any] | None = None,
         extra_streams: Mapping[str, tuple[np.dtype, Mapping[str, str]]] | None = None,
         flush_interval_s: float = 0.25,
@@ -166,6 +170,9 @@ class RunWriter:
         libs = library_versions() if libraries is None else dict(libraries)
         if not all(isinstance(k, str) and isinstance(v, str) for k, v in libs.items()):
             raise RunFormatError(f"libraries = {libs!r}: must map names to version strings")
+        plat = platform_facts() if platform_info is None else dict(platform_info)
+        if not all(isinstance(k, str) and isinstance(v, str) for k, v in plat.items()):
+            raise RunFormatError(f"platform_info = {plat!r}: must map names to strings")
         acq = {} if acquisition is None else acquisition
         if not isinstance(acq, Mapping):
             raise RunFormatError(f"acquisition = {acq!r}: must be a mapping")
@@ -195,6 +202,7 @@ class RunWriter:
             "profile_toml": profile_toml,
             "software_version": version,
             "libraries": libs,
+            "platform": plat,
             "flush_interval_s": float(flush_interval_s),
             "acquisition": acq_dict,
             "streams": {

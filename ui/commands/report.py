@@ -122,7 +122,10 @@ def _provenance(replayed: Any, figures: dict[str, Any], summary: Any) -> list[st
     """The provenance section as text lines, for the PDF."""
     d = replayed.data.description
     prof = replayed.profile
+    from ui.version import platform_text
+
     libraries = ", ".join(f"{k} {v}" for k, v in (d.get("libraries") or {}).items())
+    libraries = "; ".join(x for x in (libraries, platform_text(d)) if x)
     lines = [
         f"profile: {prof.cell.source}; calibrated {prof.cell.calibration_date or 'never'}",
         f"profile SHA-256 {figures['profile_sha256']}",

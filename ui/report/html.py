@@ -8,6 +8,7 @@ from typing import Any
 
 from ui.report.summary import ReportSummary
 from ui.report.tables import CHANGE_COLUMNS, budget_lines, cell, change_rows
+from ui.version import platform_text
 
 __all__ = ["page"]
 
@@ -62,6 +63,7 @@ def page(
         for name, entry in (closing or {}).get("streams", {}).items()
     )
     libraries = ", ".join(f"{k} {v}" for k, v in (d.get("libraries") or {}).items())
+    libraries = "; ".join(x for x in (libraries, platform_text(d)) if x)
     head = "".join(f"<th>{_head(w, u)}</th>" for _, w, u, _ in CHANGE_COLUMNS)
     rows = "".join(
         "<tr>" + "".join(f"<td>{v}</td>" for v in row) + "</tr>"
