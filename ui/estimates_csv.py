@@ -13,10 +13,11 @@ from collections.abc import Callable, Mapping
 
 import numpy as np
 
-from daq.csv_dialect import write_csv_table
+from daq.csv_dialect import CsvTableWriter, write_csv_table
+from estimator.observer import ESTIMATE_DTYPE
 from ui.pipeline import ESTIMATE_UNITS
 
-__all__ = ["write_estimates_csv"]
+__all__ = ["estimates_csv_writer", "write_estimates_csv"]
 
 
 def write_estimates_csv(
@@ -38,4 +39,19 @@ def write_estimates_csv(
         metadata=metadata,
         columns=[(name, ESTIMATE_UNITS[name], estimates[name]) for name in estimates.dtype.names],
         progress=None if progress is None else (lambda done: progress(done, n)),
+    )
+
+
+def estimates_csv_writer(
+    path: str | os.PathLike[str], *, metadata: Mapping[str, object] | None = None
+) -> CsvTableWriter:
+    """A writer of estimates to ``path`` block by block (``replay --out`` on a record of
+    any length): ``with estimates_csv_writer(path) as out: out.write([block[name] for
+    name in block.dtype.names])``. The file is the one `write_estimates_csv` writes from
+    the whole array, byte for byte."""
+    return CsvTableWriter(
+        path,
+        title="estimates",
+        metadata=metadata,
+        columns=[(name, ESTIMATE_UNITS[name]) for name in ESTIMATE_DTYPE.names],
     )

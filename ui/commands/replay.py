@@ -9,9 +9,11 @@ sample by sample and must be bit-identical.
 from __future__ import annotations
 
 import argparse
+import contextlib
 import math
 import sys
 import time
+from collections.abc import Iterator
 from pathlib import Path
 from typing import Any
 
@@ -20,7 +22,8 @@ from ui.unverified import add_unverified_option
 
 __all__ = ["register"]
 
-_BLOCK = 200_000  # samples per observer call; any size gives the same numbers
+_BLOCK = 50_000  # samples per observer call from a run; any size gives the same numbers
+_CSV_CHUNK_CHARS = 1 << 20  # characters of a CSV read per block (~35 000 rows); any size does
 _PACED_BLOCK_S = 0.05  # device time per block when pacing, s
 
 
@@ -100,10 +103,6 @@ def run(args: argparse.Namespace) -> int:
 
 
 def _replay_csv(args: argparse.Namespace, source: Path, speed: float) -> int:
-    import numpy as np
-
-    from daq.csvfile import read_displacement_csv
-    from daq.samples import empty_block
     from estimator.profile import load_profile
 
     if not args.profile:
@@ -111,30 +110,68 @@ def _replay_csv(args: argparse.Namespace, source: Path, speed: float) -> int:
     if not args.out:
         raise ValueError(f"{source}: give --out FILE for the estimates")
     profile = load_profile(args.profile)
-    t, x = read_displacement_csv(source)
+    if args.smooth:
+        from daq.csvfile import read_displacement_csv
+
+        t, x = read_displacement_csv(source)
+        blocks = [_samples_of(t, x)]
+    else:  # read, estimated and written a chunk at a time: bounded memory
+        blocks = _csv_blocks_shown(source)
+    replay = _Replay(args, profile, [], speed)
+    with replay.writing():
+        for block in blocks:
+            replay.feed(block)
+    replay.finish()
+    c = replay.observer.counters
+    print(
+        f"{source}: {replay.samples} samples; rejected {c.rejected}, missing {c.missing}, "
+        f"gaps {c.gaps}, load jumps {c.jumps}"
+    )
+    return 0
+
+
+def _samples_of(t: Any, x: Any) -> Any:
+    """A whole CSV record as one sample block (for the smoother, which needs it all)."""
+    import numpy as np
+
+    from daq.samples import empty_block
+
     samples = empty_block(t.size)
     samples["seq"] = np.arange(t.size)
     samples["device_time_s"] = t
     samples["host_time_s"] = math.nan
     samples["displacement_m"] = x
-    estimates, observer = _estimate(args, profile, samples, [], speed)
-    _write(args, estimates, profile)
-    if args.steps:
-        _print_steps(profile, samples, estimates)
-    c = observer.counters
-    print(
-        f"{source}: {t.size} samples; rejected {c.rejected}, missing {c.missing}, "
-        f"gaps {c.gaps}, load jumps {c.jumps}"
-    )
-    return 0
+    return samples
+
+
+def _csv_blocks_shown(source: Path) -> Any:
+    """The CSV's sample blocks, with a bar over the file's bytes on a terminal."""
+    from ui.progress import bar
+
+    with bar(source.stat().st_size, "estimating", unit="B") as shown:
+        done = 0
+        for block, read in _csv_blocks(source):
+            yield block
+            shown.update(read - done)
+            done = read
+
+
+def _csv_blocks(source: Path) -> Any:
+    """``(samples, bytes read)`` per chunk of ``source`` (`_CSV_CHUNK_CHARS` characters)."""
+    from ui.replay_blocks import csv_sample_blocks
+
+    return csv_sample_blocks(source, chunk_chars=_CSV_CHUNK_CHARS)
 
 
 def _replay_run(args: argparse.Namespace, folder: Path, speed: float) -> int:
     import numpy as np
 
     from daq.runs import read_run
+    from daq.runs.blocks import iter_stream_blocks
     from estimator.profile import load_profile
     from ui.pipeline import ESTIMATE_STREAM, tares_from_events
+    from ui.progress import bar
+    from ui.replay_blocks import LiveComparison
     from ui.unverified import refuse_unverifiable
     from ui.wiring import profile_from_text
 
@@ -151,39 +188,44 @@ def _replay_run(args: argparse.Namespace, folder: Path, speed: float) -> int:
     own_profile = profile == recorded_profile
     tares = tares_from_events(data.events)
     state = "closed" if data.closed else "NOT closed (ended without its closing record)"
-    print(f"run {data.description['run_id']}: {data.samples.size} samples, {state}")
-    estimates, observer = _estimate(args, profile, data.samples, tares, speed)
-    if args.out:
-        _write(args, estimates, profile)
-    if args.steps:
-        _print_steps(profile, data.samples, estimates)
-    c = observer.counters
+    n_samples = int(data.samples.shape[0])
+    print(f"run {data.description['run_id']}: {n_samples} samples, {state}")
+    live = None
+    if ESTIMATE_STREAM in data.streams and not args.smooth:
+        live = LiveComparison(data, ESTIMATE_STREAM, _BLOCK)
+    replay = _Replay(args, profile, tares, speed, live)
+    with replay.writing(), bar(n_samples, "estimating") as shown:
+        if args.smooth:
+            blocks: Any = [np.asarray(data.samples)]
+        else:  # a block at a time from the file: bounded memory
+            blocks = iter_stream_blocks(data, "samples", _BLOCK)
+        for block in blocks:
+            replay.feed(block)
+            shown.update(block.size)
+    replay.finish()
+    c = replay.observer.counters
     print(
-        f"replayed {estimates.size} samples; rejected {c.rejected}, gaps {c.gaps}, "
+        f"replayed {replay.samples} samples; rejected {c.rejected}, gaps {c.gaps}, "
         f"load jumps {c.jumps}, zero events {len(tares)}"
     )
-    live = data.streams.get(ESTIMATE_STREAM)
-    if live is None or args.smooth:
+    if live is None:
         return 0
-    n = min(live.size, estimates.size)
-    same = np.asarray(live[:n]).tobytes() == estimates[:n].tobytes()
-    if same and live.size == estimates.size:
+    n = live.compared
+    if live.identical and live.live_rows == live.replayed:
         print(f"identical to the {n} estimates computed live (bit for bit)")
         return 0
     if not own_profile:
         print("differs from the live estimates, as expected: --profile replaces the run's own")
         return 0
-    if same:
+    if live.identical:
         lost = any("data lost" in w for w in data.warnings)
         why = "records were removed after the recording" if lost else "the run ended mid-flush"
         print(
             f"the first {n} estimates are identical to the live ones; the live stream holds "
-            f"{live.size} and the samples {estimates.size} ({why})"
+            f"{live.live_rows} and the samples {live.replayed} ({why})"
         )
         return 1 if lost else 0
-    live_rows = np.asarray(live[:n]).view(np.uint8).reshape(n, -1)
-    replay_rows = estimates[:n].view(np.uint8).reshape(n, -1)
-    first = int(np.flatnonzero((live_rows != replay_rows).any(axis=1))[0])
+    first = int(live.first_difference or 0)
     print(
         f"DIFFERS from the live estimates from sample {first} on "
         f"(seq {int(data.samples['seq'][first])}); the run or the software has changed",
@@ -192,65 +234,123 @@ def _replay_run(args: argparse.Namespace, folder: Path, speed: float) -> int:
     return 1
 
 
-def _estimate(
-    args: argparse.Namespace, profile: Any, samples: Any, tares: list, speed: float
-) -> tuple[Any, Any]:
-    from estimator.observer import concat_estimates
-    from estimator.smoother import smooth_record
-    from ui.display_units import CellUnits
-    from ui.pipeline import EstimationPipeline
-    from ui.status import StatusLine, format_status
+class _Replay:
+    """Sample blocks in, in stream order; estimates out to ``--out`` (written as they
+    come), to the live comparison and, with ``--steps``, kept for the change table."""
 
-    pipeline = EstimationPipeline(profile, tares=tares)
-    units = CellUnits.for_profile(profile)  # the status line in the cell's units, as live
-    if args.smooth:
-        if tares:
+    def __init__(
+        self, args: argparse.Namespace, profile: Any, tares: list, speed: float, live: Any = None
+    ) -> None:
+        from ui.display_units import CellUnits
+        from ui.pipeline import EstimationPipeline
+
+        self.args, self.profile, self.live = args, profile, live
+        self.pipeline = EstimationPipeline(profile, tares=tares)
+        if args.smooth and tares:
             raise ValueError("--smooth cannot replay a run with zero events yet; leave it out")
-        from ui.progress import busy
+        self.speed = speed
+        self.units = CellUnits.for_profile(profile)  # the status line in the cell's units
+        self.samples = 0
+        self._out: Any = None
+        self._kept: list[tuple[Any, Any]] = []  # (estimates, displacement) for --steps
+        self._status: Any = None
+        self._clock: tuple[float, float] | None = None  # (monotonic, device time) at start
 
-        with busy(f"smoothing {samples.size} samples"):
-            est = smooth_record(
-                pipeline.observer, samples["device_time_s"], samples["displacement_m"]
-            )
-        return est, pipeline.observer
-    parts = []
-    if math.isinf(speed):
-        from ui.progress import bar
+    @property
+    def observer(self) -> Any:
+        return self.pipeline.observer
 
-        with bar(samples.size, "estimating") as shown:
-            for start in range(0, samples.size, _BLOCK):
-                parts.append(pipeline.process(samples[start : start + _BLOCK]))
-                shown.update(parts[-1].size)
-    else:
-        status = StatusLine()
+    @contextlib.contextmanager
+    def writing(self) -> Iterator[None]:
+        """``--out`` open while the blocks are fed: complete on success, none on error."""
+        if not self.args.out:
+            yield
+            return
+        from ui.estimates_csv import estimates_csv_writer
+
+        with estimates_csv_writer(
+            self.args.out, metadata=_metadata(self.args, self.profile)
+        ) as out:
+            self._out = out
+            try:
+                yield
+            finally:
+                self._out = None
+        print(
+            f"wrote {self.args.out}" + (f" ({self.args.replaced})" if self.args.replaced else "")
+        )
+
+    def feed(self, samples: Any) -> None:
+        """Estimate one block of samples (the whole record when smoothing)."""
+        self.samples += samples.size
+        if self.args.smooth:
+            from estimator.smoother import smooth_record
+            from ui.progress import busy
+
+            with busy(f"smoothing {samples.size} samples"):
+                est = smooth_record(
+                    self.pipeline.observer, samples["device_time_s"], samples["displacement_m"]
+                )
+            self._use(est, samples)
+        elif math.isinf(self.speed):
+            self._use(self.pipeline.process(samples), samples)
+        else:
+            self._paced(samples)
+
+    def _paced(self, samples: Any) -> None:
+        from ui.status import StatusLine, format_status
+
+        if self._status is None:
+            self._status = StatusLine()
         t = samples["device_time_s"]
-        t0_dev = float(t[0]) if t.size else 0.0
-        t0 = time.monotonic()
+        if self._clock is None and t.size:
+            self._clock = (time.monotonic(), float(t[0]))
         start = 0
         while start < samples.size:
-            stop = int(t.searchsorted(t[start] + _PACED_BLOCK_S * speed, side="right"))
+            stop = int(t.searchsorted(t[start] + _PACED_BLOCK_S * self.speed, side="right"))
             stop = max(stop, start + 1)
-            due = t0 + (float(t[stop - 1]) - t0_dev) / speed
-            wait = due - time.monotonic()
+            t0, t0_dev = self._clock or (time.monotonic(), 0.0)
+            wait = t0 + (float(t[stop - 1]) - t0_dev) / self.speed - time.monotonic()
             if wait > 0:
                 time.sleep(wait)
-            parts.append(pipeline.process(samples[start:stop]))
+            est = self.pipeline.process(samples[start:stop])
+            self._use(est, samples[start:stop])
             start = stop
-            if status.due():
-                status.show(
+            if self._status.due():
+                self._status.show(
                     format_status(
-                        parts[-1],
-                        state=f"replay ×{speed:g}",
-                        units=units,
-                        framing=profile.acquisition.framing,
+                        est,
+                        state=f"replay ×{self.speed:g}",
+                        units=self.units,
+                        framing=self.profile.acquisition.framing,
                     )
                 )
-        status.finish()
-    est = concat_estimates(parts) if parts else pipeline.process(samples[:0])
-    return est, pipeline.observer
+
+    def _use(self, est: Any, samples: Any) -> None:
+        if self._out is not None:
+            self._out.write([est[name] for name in est.dtype.names])
+        if self.live is not None:
+            self.live.add(est)
+        if self.args.steps:
+            self._kept.append((est, samples["displacement_m"].copy()))
+
+    def finish(self) -> None:
+        """End the status line; print the change table with ``--steps``."""
+        if self._status is not None:
+            self._status.finish()
+        if self.args.steps:
+            import numpy as np
+
+            from estimator.observer import concat_estimates
+
+            est = concat_estimates([e for e, _ in self._kept]) if self._kept else None
+            if est is None:
+                est = self.pipeline.process(_samples_of(np.zeros(0), np.zeros(0)))
+            x = np.concatenate([x for _, x in self._kept]) if self._kept else np.zeros(0)
+            _print_steps(self.profile, x, est)
 
 
-def _print_steps(profile: Any, samples: Any, estimates: Any) -> None:
+def _print_steps(profile: Any, displacement: Any, estimates: Any) -> None:
     """The change table of the estimate and of the static conversion k·x."""
     import numpy as np
 
@@ -259,7 +359,7 @@ def _print_steps(profile: Any, samples: Any, estimates: Any) -> None:
     ok = np.isfinite(estimates["force_n"])
     t = estimates["time_s"][ok]
     k = profile.plant.stiffness_n_per_m
-    static = k * samples["displacement_m"][ok]
+    static = k * displacement[ok]
     # The band is 2 % of each step, never narrower than twice the steady force
     # uncertainty (so noise alone cannot hold the reading "unsettled").
     floor = 4.0 * float(np.median(estimates["force_u_n"][ok])) if ok.any() else 0.0
@@ -267,25 +367,14 @@ def _print_steps(profile: Any, samples: Any, estimates: Any) -> None:
     print(format_change_table(rows) if rows else "no load change found")
 
 
-def _write(args: argparse.Namespace, estimates: Any, profile: Any) -> None:
-    from ui.estimates_csv import write_estimates_csv
+def _metadata(args: argparse.Namespace, profile: Any) -> dict[str, str]:
+    """The ``# key: value`` lines of ``--out``: what was estimated, and how."""
     from ui.version import software_version
 
-    meta = {
+    return {
         "source": Path(args.source).name,
         "cell": profile.cell.name,
         "profile": args.profile or "the run's own",
         "method": "smoother (offline)" if args.smooth else "observer (as live)",
         "software_version": software_version(),
     }
-    from ui.progress import bar
-
-    with bar(estimates.size, f"writing {args.out}", unit="rows") as shown:
-        done = [0]
-
-        def advance(rows: int, total: int) -> None:
-            shown.update(rows - done[0])
-            done[0] = rows
-
-        write_estimates_csv(estimates, args.out, progress=advance, metadata=meta)
-    print(f"wrote {args.out}" + (f" ({args.replaced})" if args.replaced else ""))
