@@ -52,7 +52,9 @@ class Selection:
 
 
 def add_selection_options(
-    parser: argparse.ArgumentParser, *, cell_help: str = "cell name contains TEXT (any case)"
+    parser: argparse.ArgumentParser,
+    *,
+    cell_help: str = "cell name contains TEXT, any case (default: any cell)",
 ) -> None:
     """``--root``, ``--since``, ``--until``, ``--cell``, ``--tag``, ``--status``."""
     from ui.commands.live import DEFAULT_RUNS_ROOT
@@ -63,10 +65,22 @@ def add_selection_options(
         metavar="DIR",
         help="folder holding runs (default: %(default)s)",
     )
-    parser.add_argument("--since", metavar="DATE", help="started at or after DATE (UTC)")
-    parser.add_argument("--until", metavar="DATE", help="started before the end of DATE (UTC)")
+    parser.add_argument(
+        "--since",
+        metavar="DATE",
+        help="started at or after DATE: YYYY-MM-DD or an ISO 8601 time, UTC when it names no "
+        "zone (default: no limit)",
+    )
+    parser.add_argument(
+        "--until",
+        metavar="DATE",
+        help="started before the end of DATE (a day) or before DATE (a time), UTC as for "
+        "--since (default: no limit)",
+    )
     parser.add_argument("--cell", metavar="TEXT", help=cell_help)
-    parser.add_argument("--tag", metavar="TEXT", help="a tag contains TEXT (any case)")
+    parser.add_argument(
+        "--tag", metavar="TEXT", help="a tag contains TEXT, any case (default: any tag)"
+    )
     parser.add_argument(
         "--status",
         metavar="STATUS",

@@ -64,7 +64,8 @@ def add_parallel_options(parser: argparse.ArgumentParser) -> None:
         "--scheduler",
         metavar="ADDRESS",
         help="run on an existing Dask cluster, e.g. tcp://HOST:8786 (its workers must see "
-        "the run folders at the same paths and have forcelens installed)",
+        "the run folders at the same paths and have forcelens installed); default: local "
+        "workers",
     )
 
 

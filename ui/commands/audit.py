@@ -66,7 +66,11 @@ def register(subparsers: Any) -> None:
     )
     add_selection_options(p)
     add_parallel_options(p)
-    p.add_argument("--out", metavar="FILE.csv", help="with --all: also write the table as CSV")
+    p.add_argument(
+        "--out",
+        metavar="FILE.csv",
+        help="with --all: also write the table as CSV (default: none written)",
+    )
     add_force_option(p)
     p.set_defaults(run=run)
 

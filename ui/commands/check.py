@@ -39,7 +39,7 @@ def register(subparsers: Any) -> None:
         type=float,
         default=0.02,
         metavar="FRAC",
-        help="settling band ± around the final value, a fraction of the step: 0.02 is 2 %% "
+        help="settling band ± around the final value, a fraction of the step: 0.02 is 2\u00a0%% "
         "(default 0.02)",
     )
     p.add_argument(
@@ -47,7 +47,8 @@ def register(subparsers: Any) -> None:
         type=float,
         default=0.05,
         metavar="FRAC",
-        help="largest acceptable overshoot, a fraction of the step: 0.05 is 5 %% (default 0.05)",
+        help="largest acceptable overshoot, a fraction of the step: 0.05 is 5\u00a0%% "
+        "(default 0.05)",
     )
     p.set_defaults(run=run)
 

@@ -44,7 +44,10 @@ def register(subparsers: Any) -> None:
         ),
     )
     p.add_argument(
-        "--profile", required=True, metavar="NEW.toml", help="the corrected cell profile"
+        "--profile",
+        required=True,
+        metavar="NEW.toml",
+        help="the corrected cell profile (required)",
     )
     add_selection_options(
         p, cell_help="cell name contains TEXT, any case (default: the corrected profile's "
@@ -53,9 +56,9 @@ def register(subparsers: Any) -> None:
     p.add_argument(
         "--tolerance",
         metavar="T",
-        help="flag differences above T instead of U (k = 2): a force (0.05 or 0.05N), a "
-        "share of each old value (0.1%%), or both added (0.1%%+0.005N: a share with a floor "
-        "for values near zero)",
+        help="flag differences above T instead of U (k = 2): a force in N (0.05 or 0.05N), "
+        "a share of each old value (0.1%%), or both added (0.1%%+0.005N: a share with a floor "
+        "for values near zero); default: the U (k = 2) of each old value",
     )
     p.add_argument(
         "--out",

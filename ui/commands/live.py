@@ -30,9 +30,10 @@ def register(subparsers: Any) -> None:
         "live",
         help="estimate force live from a serial port (or the built-in simulated cell)",
         description=(
-            "Read samples from a serial port, estimate force with its uncertainty live and "
-            "show a status line; optionally record the run. Without --port and without a "
-            "port in the profile, the built-in simulated cell (invented data) is used. "
+            "Read samples from a serial port, estimate force with its expanded uncertainty "
+            "U (k = 2) live and show a status line; optionally record the run. Without "
+            "--port and without a port in the profile, the built-in simulated cell "
+            "(invented data) is used. "
             "On a terminal, type m [note] to mark the run, z to zero (with the cell "
             "unloaded, after a confirmation) and q to stop. Ctrl-C also stops; the run is "
             "closed cleanly."

@@ -63,7 +63,10 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     )
     mass = new.add_mutually_exclusive_group(required=True)
     mass.add_argument(
-        "--mass-kg", type=float, metavar="M", help="moving mass, kg (this or the next)"
+        "--mass-kg",
+        type=float,
+        metavar="M",
+        help="moving mass, kg (one of --mass-kg or --natural-frequency-hz is required)",
     )
     mass.add_argument(
         "--natural-frequency-hz",

@@ -56,8 +56,8 @@ def register(subparsers: Any) -> None:
         "--speed",
         default="max",
         metavar="X",
-        help="'max' (as fast as possible), or simulated seconds per real second, a factor: "
-        "1 for real time, 5 for five times faster (default: max)",
+        help="'max' (as fast as possible), or seconds of the record per real second, a "
+        "factor: 1 for real time, 5 for five times faster (default: max)",
     )
     p.add_argument(
         "--steps",
