@@ -147,6 +147,15 @@ class Catalogue:
         except sqlite3.DatabaseError as exc:  # e.g. "file is not a database"
             raise RunFormatError(f"{self._path}: not a usable SQLite catalogue ({exc})") from exc
 
+    def check_writable(self) -> None:
+        """Raise SourceError when the catalogue cannot be written (a read-only archive).
+
+        The probe is a real write that changes nothing (the schema version set to itself),
+        so it fails exactly when indexing would: a read-only file, folder or file system.
+        """
+        with self._connect() as con:
+            con.execute("UPDATE meta SET value = value WHERE key = 'schema_version'")
+
     # ----------------------------------------------------------------------- writing
 
     def upsert(self, run_folder: str | os.PathLike[str]) -> CatalogueEntry:

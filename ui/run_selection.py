@@ -5,6 +5,8 @@
 them the same way (`select_runs`): the run folders under ``--root`` are indexed into
 their catalogue (``daq.catalogue``), then queried by start time (UTC), cell, tag and
 status. Folders that could not be read are returned with their problem, never dropped.
+A read-only archive is indexed into a temporary copy of its catalogue
+(`ui.catalogue_access`), with a note on standard error.
 
 This module imports nothing heavy: `add_selection_options` runs while the parser is built.
 """
@@ -13,6 +15,7 @@ from __future__ import annotations
 
 import argparse
 import datetime as dt
+import sys
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -113,7 +116,7 @@ def select_runs(args: argparse.Namespace, *, cell: str | None = None) -> Selecti
     ``cell`` overrides ``args.cell`` (text the cell name contains). Raises ValueError when
     the root is not a folder or a filter is malformed.
     """
-    from ui.recording import catalogue_for
+    from ui.catalogue_access import catalogue_to_scan
 
     root = Path(args.root)
     if not root.is_dir():
@@ -122,7 +125,9 @@ def select_runs(args: argparse.Namespace, *, cell: str | None = None) -> Selecti
         )
     since = parse_utc("--since", args.since, end_of_day=False)
     until = parse_utc("--until", args.until, end_of_day=True)
-    catalogue = catalogue_for(root)
+    catalogue, note = catalogue_to_scan(root)
+    if note:
+        print(f"note: {note}", file=sys.stderr)
     filters = {
         "since": since,
         "until": until,
