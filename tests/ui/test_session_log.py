@@ -309,3 +309,29 @@ def test_live_logs_into_the_run_it_records_and_otherwise_into_the_user_folder(
     (user,) = (tmp_path / "logs").glob("forcelens-*-live-*.log")
     assert f"session log: {user}\n" in outcome.stdout
     assert "INFO    stopped (complete, simulated programme finished)" in _lines(user)[-1]
+
+
+def test_live_into_a_closed_pipe_ends_quietly_with_its_run_closed_and_logged(
+    tmp_path: Path,
+) -> None:
+    import subprocess
+
+    # ``forcelens live --record DIR | head -1``: the reader leaves; live stops at its next
+    # line, closes the run (status failed: the session did not end as asked) and logs why
+    repo = Path(__file__).resolve().parents[2]
+    cmd = [sys.executable, "-m", "ui.cli", "live", "--sim-once", "--sim-programme",
+           "hold 3 0; hold 3 20", "--record", str(tmp_path / "runs")]  # fmt: skip
+    env = dict(os.environ, PYTHONPATH=str(repo), **{LOG_DIR_ENV: str(tmp_path / "logs")})
+    proc = subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, env=env)
+    assert proc.stdout is not None and proc.stderr is not None
+    while b"recording to" not in proc.stdout.readline():
+        pass
+    time.sleep(1.0)  # the session is acquiring
+    proc.stdout.close()
+    err = proc.stderr.read().decode()
+    assert proc.wait(timeout=60) == 1
+    assert err == "", err
+    (folder,) = [p.parent for p in (tmp_path / "runs").glob("*/run.json")]
+    report = verify_run(folder)
+    assert report.ok and report.status == "failed"
+    assert "ERROR   ended by BrokenPipeError" in _lines(folder / "session.log")[-1]
