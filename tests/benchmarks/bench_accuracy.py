@@ -104,8 +104,9 @@ def fmt_settle(values: Sequence[float]) -> str:
     return " ".join(parts)
 
 
-def score_record(record: Record, step_decades: float) -> tuple[Row, dict[str, float]]:
-    """Run every estimator on ``record``; return its table row and the seconds spent."""
+def score_record(record: Record, step_decades: float, label: str) -> tuple[Row, dict[str, float]]:
+    """Run every estimator on ``record``; return its table row (named ``label``) and the
+    seconds spent."""
     cell, t, z, f = record.cell, record.t_s, record.z_m, record.force_true_n
     mask = record.scored
     spent: dict[str, float] = {}
@@ -124,7 +125,7 @@ def score_record(record: Record, step_decades: float) -> tuple[Row, dict[str, fl
     kx = static_conversion(cell, z)
 
     row: Row = {
-        "record": record.label,
+        "record": label,
         "cell": cell.name,
         "shape": record.load.shape,
         "variant": record.variant,
@@ -265,13 +266,17 @@ def summary(rows: list[Row]) -> None:
         "[info] median |error|/σ by shape, live/smoothed (0.67 when σ is the error's "
         "standard deviation; lower: σ too large): " + ", ".join(parts)
     )
+
     # 5. Spikes and dropped rows against the clean record.
-    clean = {(r["cell"], r["shape"]): r for r in rows if r["variant"] == "clean"}
+    def same_load(r: Row) -> tuple[str, str, str]:  # the same load and noise: seed, cell, shape
+        return str(r["seed"]).split(":")[0], str(r["cell"]), str(r["shape"])
+
+    clean = {same_load(r): r for r in rows if r["variant"] == "clean"}
     for variant, limit in (("spikes", SPIKE_FACTOR), ("dropped", DROP_FACTOR)):
         pairs = [
-            (r, clean[(r["cell"], r["shape"])])
+            (r, clean[same_load(r)])
             for r in rows
-            if r["variant"] == variant and (r["cell"], r["shape"]) in clean
+            if r["variant"] == variant and same_load(r) in clean
         ]
         if not pairs:
             print(f"[{verdict(None)}] {variant}: no pair with a clean record selected")
@@ -329,6 +334,18 @@ def write_csv(path: Path, rows: list[Row]) -> None:
             writer.writerow({k: (f"{v:.6g}" if isinstance(v, float) else v) for k, v in r.items()})
 
 
+def _seeds(text: str) -> list[int]:
+    try:
+        seeds = [int(part) for part in text.split(",")]
+    except ValueError:
+        raise argparse.ArgumentTypeError(
+            f"{text!r}: give whole numbers separated by commas"
+        ) from None
+    if len(set(seeds)) != len(seeds):
+        raise argparse.ArgumentTypeError(f"{text!r}: a seed is given twice")
+    return seeds
+
+
 def parse_args(argv: Sequence[str] | None) -> argparse.Namespace:
     p = argparse.ArgumentParser(
         description="Accuracy benchmark of the force observer on invented cells and loads."
@@ -346,7 +363,14 @@ def parse_args(argv: Sequence[str] | None) -> argparse.Namespace:
         help=f"keep matching records; SHAPE in {', '.join(SHAPES)}, CELL in "
         f"{', '.join(c.name for c in CELLS)}; either part may be empty or '*'; repeatable",
     )
-    p.add_argument("--seed", type=int, default=2024, help="base seed (default 2024)")
+    p.add_argument(
+        "--seed",
+        type=_seeds,
+        default=[2024],
+        metavar="N[,N...]",
+        help="base seed, or several separated by commas: one summary over the records of "
+        "every seed, the targets met (or not) by all of them (default 2024)",
+    )
     p.add_argument("--csv", type=Path, metavar="OUT", help="write the per-record table here")
     return p.parse_args(argv)
 
@@ -367,10 +391,15 @@ def main(argv: Sequence[str] | None = None) -> int:
             print("  " + cell.describe())
     print(
         f"  {duration:g} s records, {len(variants)} variants ({', '.join(variants)}); "
-        f"seed {args.seed}; q grid step {GRID_STEP_DECADES} decade; "
+        f"seed {', '.join(map(str, args.seed))}; q grid step {GRID_STEP_DECADES} decade; "
         f"OPENBLAS_NUM_THREADS={os.environ.get('OPENBLAS_NUM_THREADS')}"
     )
-    records, truth_s = build_records(args.seed, duration, args.only, variants=variants)
+    records: list[Record] = []
+    truth_s = 0.0
+    for seed in args.seed:
+        some, secs = build_records(seed, duration, args.only, variants=variants)
+        records += some
+        truth_s += secs
     if not records:
         print("no record matches --only", file=sys.stderr)
         return 2
@@ -378,7 +407,10 @@ def main(argv: Sequence[str] | None = None) -> int:
     q_rw: list[float] = []
     spent: dict[str, float] = {"truth": truth_s}
     for record in records:
-        row, secs = score_record(record, GRID_STEP_DECADES)
+        label = (
+            record.label if len(args.seed) == 1 else f"{record.seed.split(':')[0]}/{record.label}"
+        )
+        row, secs = score_record(record, GRID_STEP_DECADES, label)
         for k, v in secs.items():
             spent[k] = spent.get(k, 0.0) + v
         rows.append(row)
@@ -387,7 +419,12 @@ def main(argv: Sequence[str] | None = None) -> int:
         sys.stdout.flush()
     edges = [f"{r['record']} ({m})" for r in rows for m in ("rw", "irw") if r[f"q_{m}_at_edge"]]
     summary(rows)
-    speed(records, q_rw, repeats)
+    first = [r.seed.split(":")[0] == str(args.seed[0]) for r in records]  # one seed is enough
+    speed(
+        [r for r, keep in zip(records, first, strict=True) if keep],
+        [q for q, keep in zip(q_rw, first, strict=True) if keep],
+        repeats,
+    )
     if edges:
         print("[note] q fit at the grid edge: " + ", ".join(edges))
     else:
