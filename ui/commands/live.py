@@ -232,6 +232,12 @@ def _run(args: argparse.Namespace, profile: Any, port: str, cell: Any, recording
     reason = "stopped by the operator"
     outcome = "complete"
     t_start = time.monotonic()
+    # the simulated programme is over once its last bytes are in: a short silence after
+    # the writer finished, well inside the stalled-stream timeout (the end of a programme
+    # is not a stall)
+    alarms = session.pipeline.alarms
+    stall_s = alarms.settings.stall_timeout_s if alarms is not None else 0.5
+    programme_end_s = min(0.2, 0.4 * stall_s)
     with _Stop() as stop:
         try:
             session.start()
@@ -285,7 +291,7 @@ def _run(args: argparse.Namespace, profile: Any, port: str, cell: Any, recording
                 if (
                     cell is not None
                     and cell.finished
-                    and session.reader.stats().seconds_since_data > 0.5
+                    and session.reader.stats().seconds_since_data > programme_end_s
                 ):
                     reason = "simulated programme finished"
                     break
