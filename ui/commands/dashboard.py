@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import argparse
 import os
+import sys
 from pathlib import Path
 from typing import Any
 
@@ -12,6 +13,7 @@ __all__ = ["open_dashboard", "register"]
 
 def register(subparsers: Any) -> None:
     from ui.commands.live import DEFAULT_RUNS_ROOT
+    from ui.outputs import add_force_option
     from ui.sim_help import FAULTS_HELP, PROGRAMME_HELP, SPEED_HELP
 
     p = subparsers.add_parser(
@@ -67,6 +69,7 @@ def register(subparsers: Any) -> None:
         help="with --screenshot: wall-clock seconds from opening the window to the "
         "screenshot (default 3)",
     )
+    add_force_option(p)
     p.set_defaults(run=run)
 
 
@@ -86,9 +89,14 @@ def open_dashboard(profile: Any, *, profile_path: str = "") -> None:
 
 def run(args: argparse.Namespace) -> int:
     from estimator.profile import default_demo_profile, load_profile
+    from ui.outputs import claim_file, replacing
     from ui.wiring import refuse_demo_model_on_a_real_port
 
     refuse_demo_model_on_a_real_port(args.port, args.profile)
+    replaced = None
+    if args.screenshot:  # refused before a window opens: an existing file needs --force
+        inputs = [p for p in (args.profile, args.open) if p]
+        replaced = claim_file(args.screenshot, inputs=inputs, force=args.force)
     profile = load_profile(args.profile) if args.profile else default_demo_profile()
     if args.screenshot and not os.environ.get("DISPLAY") and "QT_QPA_PLATFORM" not in os.environ:
         os.environ["QT_QPA_PLATFORM"] = "offscreen"
@@ -108,13 +116,19 @@ def run(args: argparse.Namespace) -> int:
         port=args.port,
     )
     window.show()
+    saved: list[bool] = []
     if args.screenshot:
         out = Path(args.screenshot)
 
         def shoot() -> None:
             window.redraw()
-            if not window.grab().save(str(out)):
-                print(f"could not write {out}")
+            try:
+                with replacing(out) as tmp:  # the old file or the new one, never half
+                    if not window.grab().save(str(tmp)):
+                        raise OSError("Qt could not encode or write the image")
+                saved.append(True)
+            except OSError as exc:
+                print(f"could not write {out}: {exc}", file=sys.stderr)
             window.close()
 
         if args.open:
@@ -131,5 +145,7 @@ def run(args: argparse.Namespace) -> int:
             window.connect_source()
     app.exec()
     if args.screenshot:
-        print(f"wrote {args.screenshot}")
+        if not saved:
+            return 1
+        print(f"wrote {args.screenshot}" + (f" ({replaced})" if replaced else ""))
     return 0
