@@ -47,7 +47,7 @@ import time
 from pathlib import Path
 
 ROOT = Path(__file__).resolve().parents[2]
-_BLOCK = 50_000
+_BLOCK = 16_384  # samples per observer call, as replay
 _LEVELS_N = (0.0, 20.0, 50.0, 80.0, 40.0, 10.0)
 
 
@@ -141,8 +141,8 @@ t = np.empty(run.samples.shape[0]); x = np.empty_like(t); i = 0
 for b in iter_stream_blocks(run, "samples"):
     t[i : i + b.size] = b["device_time_s"]; x[i : i + b.size] = b["displacement_m"]; i += b.size
 obs = ForceObserver.from_profile(default_demo_profile()); obs.warm_up()
-for i in range(0, t.size, 50_000):
-    obs.process(t[i : i + 50_000], x[i : i + 50_000])
+for i in range(0, t.size, 16_384):
+    obs.process(t[i : i + 16_384], x[i : i + 16_384])
 """
 
 

@@ -22,7 +22,9 @@ from ui.unverified import add_unverified_option
 
 __all__ = ["register"]
 
-_BLOCK = 50_000  # samples per observer call from a run; any size gives the same numbers
+# Samples per observer call (the observer's working arrays grow with it) and per block
+# read from a run; any size gives the same numbers.
+_BLOCK = 16_384
 _CSV_CHUNK_CHARS = 1 << 20  # characters of a CSV read per block (~35 000 rows); any size does
 _PACED_BLOCK_S = 0.05  # device time per block when pacing, s
 
@@ -293,7 +295,9 @@ class _Replay:
                 )
             self._use(est, samples)
         elif math.isinf(self.speed):
-            self._use(self.pipeline.process(samples), samples)
+            for start in range(0, samples.size, _BLOCK):
+                part = samples[start : start + _BLOCK]
+                self._use(self.pipeline.process(part), part)
         else:
             self._paced(samples)
 
