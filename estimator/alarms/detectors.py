@@ -387,6 +387,7 @@ class _Stall:
         self.timeout = timeout_s
         self.clear_after = clear_after_s
         self.last_host = math.nan  # latest host receive time seen, s
+        self.last_device = math.nan  # device time of the sample received then, s
         self.resumed = math.nan  # host time at which samples came back, s
         self.next_pos = 0
         self.active = False
@@ -397,17 +398,23 @@ class _Stall:
             f"clears once samples have flowed again for {self.clear_after:g} s"
         )
 
-    def _raise(self, index: int) -> AlarmChange:
+    def _raise(self, index: int, last_device_s: float) -> AlarmChange:
         self.active = True
         self.resumed = math.nan
         t = self.last_host + self.timeout
+        # the operator's clock is the device time on the plots; the host clock only
+        # measures the silence
+        last = (
+            f"the last sample at device time {last_device_s:.3f} s"
+            if math.isfinite(last_device_s)
+            else "no device time known"
+        )
         return _change(
             STALL,
             RAISED,
             index,
             t,
-            f"no sample received for more than {self.timeout:g} s (last at "
-            f"{self.last_host:.3f} s host time)",
+            f"no sample received for more than {self.timeout:g} s ({last})",
             self.timeout,
             self.timeout,
             "s",
@@ -418,7 +425,7 @@ class _Stall:
         if self.active or not math.isfinite(self.last_host):
             return []
         if now_s - self.last_host > self.timeout:
-            return [self._raise(self.next_pos)]
+            return [self._raise(self.next_pos, self.last_device)]
         return []
 
     def process(self, b: _Block) -> list[AlarmChange]:
@@ -428,6 +435,8 @@ class _Stall:
         if known.size == 0:
             return []
         h = host[known]
+        dev = b.est["time_s"][known].astype(float)
+        prev_dev = np.concatenate(([self.last_device], dev[:-1]))
         if math.isfinite(self.last_host):
             h = np.maximum.accumulate(np.concatenate(([self.last_host], h)))[1:]
         else:
@@ -467,10 +476,11 @@ class _Stall:
             # a silence longer than the timeout ends at sample `stop`
             self.last_host = float(prev[stop])
             if not self.active:
-                changes.append(self._raise(int(b.pos[known[stop]])))
+                changes.append(self._raise(int(b.pos[known[stop]]), float(prev_dev[stop])))
             self.resumed = float(h[stop])
             a = stop
         self.last_host = float(h[-1])
+        self.last_device = float(dev[-1])
         return changes
 
 

@@ -288,6 +288,14 @@ def test_stalled_stream_fires_on_a_gap_in_host_times_and_clears_after_the_flow_r
     ]
     assert stall[0].clock == "host"
     assert stall[0].time_s == host[after - 1] + timeout  # when the silence passed the timeout
+    # the message places the silence on the operator's clock (device time, as the plots):
+    # the last sample before it (issue 14: one clock on the screen)
+    last = samples["device_time_s"][after - 1]
+    assert stall[0].message == (
+        f"no sample received for more than {timeout:g} s (the last sample at device time "
+        f"{last:.3f} s)"
+    )
+    assert "host" not in stall[0].message
     # the samples the stall swallowed are lost too
     assert _of(changes, LOSS)[0] == (RAISED, after)
     assert alarms.active() == []
@@ -323,6 +331,8 @@ def test_live_ticks_and_a_replay_without_them_give_the_same_transitions() -> Non
     assert [c.event for c in ends] == [RAISED, CLEARED, RAISED]
     assert ends[-1].time_s == host[-1] + AlarmSettings().stall_timeout_s
     assert ends[-1].index == samples.size  # the sample that never came
+    last = samples["device_time_s"][-1]
+    assert ends[-1].message.endswith(f"(the last sample at device time {last:.3f} s)")
     assert [a.alarm_id for a in live.active()] == [STALL]
 
 
