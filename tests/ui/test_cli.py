@@ -100,6 +100,11 @@ def test_demo_end_to_end(tmp_path: Path, capsys, monkeypatch) -> None:
     assert main(["demo", "--out", str(out), "--speed", "5"]) == 0
     text = capsys.readouterr().out
     assert "received 10200 of 10200 samples" in text
+    # the status line is live's (issue 14: one unit per quantity, the cell's): the demo
+    # cell's travel is 0.5 mm, so displacements in µm; force ± U (k = 2) in N
+    status = [line for line in text.splitlines() if line.startswith("t = ")]
+    assert status and all(" µm  [" in line and "(U, k=2)" in line for line in status)
+    assert not any(" mm " in line for line in status)
     for name in ("estimates.csv", "truth.csv", "summary.txt", "demo.png"):
         assert (out / name).stat().st_size > 0
     # Every load step: observer within 2 % of the step of the applied force, and faster

@@ -103,8 +103,7 @@ def run(args: argparse.Namespace) -> int:
     )
     k = pl.stiffness_n_per_m
     samples, estimates = [], []
-    live = _StatusLine()
-    live.budget = ForceUncertainty.from_profile(profile)
+    live = _StatusLine(profile)
     # The same path as `forcelens live` and the dashboard: serial reader, decoder of the
     # profile's framing, estimation pipeline with the settling monitor and the alarms.
     with PtyCell(truth, speed=args.speed, framing=acq.framing) as pty:  # the port exists
@@ -125,7 +124,7 @@ def run(args: argparse.Namespace) -> int:
                     quiet_since = None
                     samples.append(got.samples)
                     estimates.append(got.estimates)
-                    live.maybe_show(got.estimates[-1], session)
+                    live.maybe_show(got.estimates, session)
                 elif pty.finished:
                     quiet_since = quiet_since or time.monotonic()
                     if time.monotonic() - quiet_since > 0.3:
@@ -247,27 +246,39 @@ def _summary(programme: Any, t: Any, est: Any, kx: Any, truth_f: Any, budget: An
 
 
 class _StatusLine:
-    """A live status line: force ± U, displacement, settled or not, losses."""
+    """The live status line of `forcelens live` (`ui.status.format_status`: the cell's
+    units, the digits U supports, the settling state, the model in force, losses),
+    rate-limited: rewritten in place on a terminal, a line every 0.5 s otherwise."""
 
-    def __init__(self) -> None:
+    def __init__(self, profile: Any) -> None:
+        from estimator.uncertainty import ForceUncertainty
+        from ui.display_units import CellUnits
+
         self.tty = sys.stdout.isatty()
-        self.budget: Any = None
+        self.budget = ForceUncertainty.from_profile(profile)  # GUM: U of the reading
+        self.units = CellUnits.for_profile(profile)
+        self.framing = profile.acquisition.framing
         self.last = 0.0
         self.period = 0.1 if self.tty else 0.5
 
-    def maybe_show(self, e: Any, session: Any) -> None:
-        """Show estimate `e` with the session's settling state and losses (rate-limited)."""
+    def maybe_show(self, estimates: Any, session: Any) -> None:
+        """Show the newest of `estimates` with the session's state (rate-limited)."""
+        from ui.status import format_status
+
         now = time.monotonic()
         if now - self.last < self.period:
             return
         self.last = now
         monitor = session.pipeline.monitor
-        state = monitor.state if monitor is not None else "—"
         decoded = session.reader.stats().decoder
-        line = (
-            f"t {e['time_s']:6.2f} s   F {e['force_n']:9.3f} N ± {self.u_expanded(e):.3f} N "
-            f"(U, k=2)   x {e['displacement_m'] * 1e3:8.5f} mm   {state:<8}   "
-            f"lost {decoded.samples_lost}  bad {decoded.rejected}"
+        line = format_status(
+            estimates,
+            settling=monitor.state if monitor is not None else "",
+            lost=decoded.samples_lost,
+            rejected=decoded.rejected,
+            budget=self.budget,
+            units=self.units,
+            framing=self.framing,
         )
         if self.tty:
             print("\r" + line, end="", flush=True)
@@ -277,9 +288,3 @@ class _StatusLine:
     def finish(self) -> None:
         if self.tty:
             print()
-
-    def u_expanded(self, e: Any) -> float:
-        """U (k = 2) of one estimate: the GUM combination when a budget is set."""
-        if self.budget is None:
-            return 2.0 * float(e["force_u_n"])
-        return float(self.budget.expanded_n(e["force_n"], e["force_u_n"]))
