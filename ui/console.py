@@ -18,6 +18,8 @@ import sys
 import threading
 from typing import Any, TextIO
 
+from ui.display_units import CellUnits
+
 __all__ = ["HELP", "Console", "start_line_reader"]
 
 HELP = "commands: m [note] = mark, z = zero (cell unloaded), q = stop, ? = this help"
@@ -47,9 +49,13 @@ class Console:
                 tare = self.session.tare()
             except ValueError as exc:
                 return f"zero refused: {exc}"
+            # on the operator's clock (device time) and in the cell's unit, as on screen
+            units = CellUnits.for_profile(self.session.pipeline.profile)
+            after = self.session.pipeline.last_device_time_s
+            when = "" if after is None else f" after {units.time_text(after)}"
             return (
-                f"zero set: offset {tare.offset_m * 1e3:.6f} mm from {tare.n_samples} samples, "
-                f"applies from seq {tare.seq}"
+                f"zero set: offset {units.displacement_text(tare.offset_m)} (mean of "
+                f"{tare.n_samples} samples), applies from the next sample{when} (seq {tare.seq})"
             )
         if not text:
             return ""

@@ -29,7 +29,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from daq.samples import SAMPLE_DTYPE
+from daq.samples import SAMPLE_DTYPE, TIME_MAX_S
 from estimator.alarms import ALARM_EVENT, AlarmSet
 from estimator.monitor import SETTLING_EVENT, SettlingMonitor, SettlingRule, StateChange
 from estimator.observer import ESTIMATE_DTYPE, ForceObserver, concat_estimates
@@ -207,8 +207,16 @@ class EstimationPipeline:
             raise ValueError(f"pipeline: block has dtype {dtype}; pass daq.samples.SAMPLE_DTYPE")
         if block.size == 0:
             return np.zeros(0, ESTIMATE_DTYPE)
-        parts = []
         first = self.samples_in  # stream position of block[0]
+        far = np.abs(block["device_time_s"]) >= TIME_MAX_S
+        if far.any():  # damage, not a clock: its sample intervals would overflow
+            i = int(np.nonzero(far)[0][0])
+            raise ValueError(
+                f"sample {first + i} (seq {int(block['seq'][i])}): device_time_s = "
+                f"{float(block['device_time_s'][i])!r} s is {TIME_MAX_S:g} s or more from zero "
+                "(over 30 000 years): not a device clock (damaged data)"
+            )
+        parts = []
         # Cut the block where the device clock goes back (a device restart: the observer
         # starts afresh) and where a zero applies.
         t = block["device_time_s"]
@@ -324,6 +332,11 @@ class EstimationPipeline:
     def last_seq(self) -> int | None:
         """Sequence number of the last sample processed (None before the first)."""
         return self._last_seq
+
+    @property
+    def last_device_time_s(self) -> float | None:
+        """Device time of the last sample processed, s (None before the first)."""
+        return self._t_last
 
     # ------------------------------------------------------------------- zero
     def tare(self, offset_m: float | None = None, *, requested_s: float | None = None) -> Tare:

@@ -46,7 +46,12 @@ def test_zero_needs_a_confirmation_and_is_refused_without_data() -> None:
     assert console.handle("no") == "zero cancelled"
     assert console.handle("z") == ZERO_QUESTION
     reply = console.handle("y")
-    assert reply.startswith("zero set: offset 0.003000 mm from 200 samples, applies from seq 400")
+    # in the demo cell's unit (µm, its travel is 0.5 mm) with the digits one sample's U
+    # supports, placed on the device clock: the last of 400 samples at 2 kHz is at 0.1995 s
+    assert reply == (
+        "zero set: offset 3.00 µm (mean of 200 samples), applies from the next sample "
+        "after t = 0.1995 s (seq 400)"
+    )
 
 
 def test_mark_stop_help_and_unknown() -> None:
