@@ -196,9 +196,9 @@ def run(args: argparse.Namespace) -> int:
 
 
 def _ringdown_window(t: Any, x: Any, record: str) -> tuple[Any, Any]:
-    """The free decay of a whole record (ui.ringdown_window), said in one line; a record
+    """The free decay of a whole record (estimator.ringdown_window), said in one line; a record
     where none can be found is refused in one line that says to give --from/--to."""
-    from ui.ringdown_window import RingdownNotFoundError, find_ringdown_window
+    from estimator.ringdown_window import RingdownNotFoundError, find_ringdown_window
 
     try:
         window = find_ringdown_window(t, x)

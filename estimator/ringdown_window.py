@@ -21,7 +21,7 @@ the free decay itself. This finds it from the data alone:
 
 It refuses (`RingdownNotFoundError`, one line) when no stretch rings above 20σ (the
 identification's own threshold for a decay) or none comes back to rest before the record
-ends. Numbers in, numbers out; it lives in ``ui`` beside the command that uses it.
+ends. Numbers in, numbers out (used by ``forcelens identify``).
 """
 
 from __future__ import annotations
