@@ -25,6 +25,7 @@ import numpy as np
 
 from daq.csv_table import CHUNK_CHARS, CsvChunk, iter_csv_chunks, read_csv_header
 from daq.errors import FramingError
+from daq.samples import TIME_MAX_S
 
 __all__ = [
     "DISPLACEMENT_UNITS",
@@ -116,11 +117,20 @@ def _check_times(
     t: np.ndarray,
     before: tuple[float, CsvChunk] | None,
 ) -> None:
-    """Finite and strictly increasing, from the previous chunk's last row on."""
+    """Finite, within ±`TIME_MAX_S` and strictly increasing, from the previous chunk's
+    last row on."""
     if not np.all(np.isfinite(t)):
         row = int(np.nonzero(~np.isfinite(t))[0][0])
         raise FramingError(
             f"{p}:{chunk.line_of_row(row)}: {time_name} must be a finite number, got {t[row]!r}"
+        )
+    far = np.abs(t) >= TIME_MAX_S
+    if far.any():
+        row = int(np.nonzero(far)[0][0])
+        raise FramingError(
+            f"{p}:{chunk.line_of_row(row)}: {time_name} = {float(t[row])!r} s is {TIME_MAX_S:g} "
+            "s or more from zero (over 30 000 years): not the time of a record; check the "
+            "column (seconds expected)"
         )
     back = np.flatnonzero(np.diff(t) <= 0.0)
     if before is not None and t[0] <= before[0]:

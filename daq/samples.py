@@ -28,6 +28,7 @@ __all__ = [
     "FLAG_RECONNECT_BEFORE",
     "SAMPLE_DTYPE",
     "SAMPLE_UNITS",
+    "TIME_MAX_S",
     "concat_blocks",
     "device_status",
     "empty_block",
@@ -43,6 +44,11 @@ SAMPLE_DTYPE = np.dtype(
         ("flags", "<u4"),
     ]
 )
+
+#: Largest magnitude of a record's time, s (about 31 700 years; a Unix time is ~2e9 s).
+#: Beyond it a time is damage, not a clock, and the arithmetic of a sample interval
+#: overflows (an interval of 1e308 s made the observer's discretisation fail).
+TIME_MAX_S = 1e12
 
 #: Units of each field, as recorded in run descriptions and CSV headers.
 SAMPLE_UNITS = {

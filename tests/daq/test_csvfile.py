@@ -152,3 +152,34 @@ def test_a_file_that_is_not_utf8_is_named(tmp_path: Path) -> None:
     p.write_bytes(b"time_s,displacement_m\n0.0,1e-6\n0.001,\xff\xfe\n")
     with pytest.raises(SourceError, match=r"x\.csv: cannot read"):
         read_displacement_csv(p)
+
+
+@pytest.mark.parametrize(
+    ("rows", "line", "value"),
+    [
+        # found by hand after the long fuzz run (issue 15): a last time of 1.7e308 s made
+        # the observer's sample interval overflow (exit 3); a first one of -1.7e308 s made
+        # it say "-1.7e+308 does not come after -1.7e+308"
+        ("0.0,1e-6\n0.0005,1e-6\n1.7e308,1e-6\n", 5, "1.7e+308"),
+        ("-1.7e308,1e-6\n0.0005,1e-6\n0.001,1e-6\n", 3, "-1.7e+308"),
+        ("0.0,1e-6\n1e12,1e-6\n", 4, "1000000000000.0"),
+    ],
+)
+def test_a_time_beyond_any_record_is_refused_at_its_line(
+    tmp_path: Path, rows: str, line: int, value: str
+) -> None:
+    p = _file(tmp_path, "# invented\ntime_s,displacement_m\n" + rows)
+    with pytest.raises(
+        FramingError, match=re.escape(f"x.csv:{line}: time_s = {value} s is 1e+12 s or more")
+    ):
+        read_displacement_csv(p)
+
+
+def test_unix_times_are_times_of_a_record(tmp_path: Path) -> None:
+    from datetime import UTC, datetime
+
+    # reference: POSIX time of 2027-01-01T00:00:00Z as Python's datetime computes it
+    start = datetime(2027, 1, 1, tzinfo=UTC).timestamp()
+    p = _file(tmp_path, f"time_s,displacement_m\n{start!r},1e-6\n{start + 0.5!r},1e-6\n")
+    t, _ = read_displacement_csv(p)
+    np.testing.assert_array_equal(t, [start, start + 0.5])

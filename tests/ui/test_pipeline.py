@@ -193,3 +193,33 @@ def test_zero_uses_only_samples_received_before_the_request() -> None:
     late.process(samples[: int(0.6 * RATE)])
     k = PROFILE.plant.stiffness_n_per_m  # without the time limit the load would be zeroed
     assert late.tare().offset_m == pytest.approx(OFFSET_M + 30.0 / k, rel=0.01)
+
+
+def test_a_device_time_beyond_any_clock_is_refused_by_sample_and_seq() -> None:
+    # Found by hand after the long fuzz run (issue 15): an unclosed run whose last sample
+    # says device_time_s = 1.7e308 s made the observer's sample interval overflow (exit 3).
+    block = empty_block(4)
+    block["seq"] = np.arange(10, 14)
+    block["device_time_s"] = [0.0, 0.0005, 0.001, 1.7e308]
+    pipeline = EstimationPipeline(PROFILE)
+    with pytest.raises(ValueError, match=r"sample 3 \(seq 13\): device_time_s = 1\.7e\+308 s"):
+        pipeline.process(block)
+
+
+def test_replay_of_a_run_with_such_a_time_ends_in_one_line(tmp_path) -> None:
+    import shutil
+    from pathlib import Path
+
+    from tests.fuzz.harness import demo_run, run_cli
+
+    folder = Path(tmp_path) / "run"
+    shutil.copytree(demo_run(), folder)
+    samples = np.fromfile(folder / "samples.bin", dtype=SAMPLE_DTYPE)
+    samples["device_time_s"][-1] = 1.7e308  # invented damage, the case found by hand
+    samples.tofile(folder / "samples.bin")
+    (folder / "closing.json").unlink()
+    outcome = run_cli(["replay", str(folder), "--unverified"])
+    assert outcome.status == 1 and "Traceback" not in outcome.stderr, outcome.stderr
+    error = outcome.stderr.splitlines()[-1]  # after the data-loss warning, one error line
+    assert error.startswith("forcelens replay: error: ")
+    assert f"sample {samples.size - 1} (seq " in error and "device_time_s = 1.7e+308 s" in error
