@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import json
 import os
-from collections.abc import Mapping
+from collections.abc import Collection, Mapping
 from dataclasses import dataclass
 from datetime import datetime
 from pathlib import Path
@@ -361,30 +361,57 @@ def _load_stream(info: RunInfo, name: str, use_memmap: bool) -> np.ndarray:
     return np.fromfile(path, dtype=dtype, count=n)
 
 
-def _read_events(path: Path) -> tuple[list[dict[str, Any]], bool, int]:
-    """Parse ``events.jsonl``; return (events, torn last line?, torn byte count)."""
+@dataclass
+class _Events:
+    """What `_read_events` found: the events kept, every line counted."""
+
+    kept: list[dict[str, Any]]
+    lines: int
+    torn: bool
+    torn_bytes: int
+    #: the event naming the highest sample index (kept or not), for the loss check
+    furthest: dict[str, Any] | None
+
+
+def _read_events(path: Path, kinds: Collection[str] | None = None) -> _Events:
+    """Parse and check every line of ``events.jsonl``, a line at a time; keep the events
+    whose kind is in ``kinds`` (every event when None)."""
     checked_file(path, path.parent, "event log", MAX_EVENTS_BYTES)
+    kept: list[dict[str, Any]] = []
+    furthest: dict[str, Any] | None = None
+    number, tail = 0, b""
     try:
-        raw = path.read_bytes()
+        with open(path, "rb") as handle:
+            for line in handle:
+                if not line.endswith(b"\n"):  # the last line, torn: ignored
+                    tail = line
+                    break
+                number += 1
+                event = _event(path, number, line[:-1])
+                index = event.get("index")
+                whole = isinstance(index, int) and not isinstance(index, bool)
+                if whole and (furthest is None or index > furthest["index"]):
+                    furthest = event
+                if kinds is None or event["kind"] in kinds:
+                    kept.append(event)
     except OSError as exc:
         raise RunFormatError(f"{path}: cannot read ({exc.strerror or exc})") from None
-    lines = raw.split(b"\n")
-    tail = lines.pop()  # bytes after the last newline: empty unless the last line is torn
-    events: list[dict[str, Any]] = []
-    for number, line in enumerate(lines, start=1):
-        try:
-            event = json.loads(line.decode("utf-8"))
-        except (UnicodeDecodeError, json.JSONDecodeError, RecursionError) as exc:
-            raise RunFormatError(
-                f"{path}: line {number} is not a JSON object ({exc}); the event log is corrupt"
-            ) from None
-        if not isinstance(event, dict) or not all(k in event for k in EVENT_RESERVED):
-            raise RunFormatError(
-                f"{path}: line {number} lacks one of {', '.join(EVENT_RESERVED)}; "
-                "the event log is corrupt"
-            )
-        events.append(event)
-    return events, bool(tail), len(tail)
+    return _Events(kept, number, bool(tail), len(tail), furthest)
+
+
+def _event(path: Path, number: int, line: bytes) -> dict[str, Any]:
+    try:
+        event = json.loads(line.decode("utf-8"))
+    except (UnicodeDecodeError, json.JSONDecodeError, RecursionError) as exc:
+        raise RunFormatError(
+            f"{path}: line {number} is not a JSON object ({exc}); the event log is corrupt"
+        ) from None
+    if not isinstance(event, dict) or not all(k in event for k in EVENT_RESERVED):
+        raise RunFormatError(
+            f"{path}: line {number} lacks one of {', '.join(EVENT_RESERVED)}; "
+            "the event log is corrupt"
+        )
+    return event
 
 
 def _closing_problems(info: RunInfo, event_lines: int | None, check_hash: bool) -> list[str]:
@@ -434,7 +461,11 @@ def _closing_problems(info: RunInfo, event_lines: int | None, check_hash: bool) 
 
 
 def read_run(
-    folder: str | os.PathLike[str], *, check_hash: bool = True, memmap: bool = True
+    folder: str | os.PathLike[str],
+    *,
+    check_hash: bool = True,
+    memmap: bool = True,
+    event_kinds: Collection[str] | None = None,
 ) -> RunData:
     """Read a run folder written by :class:`RunWriter`.
 
@@ -447,16 +478,23 @@ def read_run(
 
     With ``memmap`` True the streams are read-only memory maps (nothing is loaded until
     used); otherwise they are read into memory.
+
+    ``event_kinds``: keep only the events of these kinds in ``events`` (None: every
+    event). Every line is still read, checked and counted, and the loss check of an
+    unclosed run still sees every event; a caller that needs few kinds (``replay``: the
+    zeros) saves the memory of a long run's event log (a dict per event).
     """
     info = read_run_info(folder)
-    events, torn_line, torn_line_bytes = _read_events(info.folder / EVENTS_FILE)
-    problems = _closing_problems(info, len(events), check_hash)
+    log = _read_events(info.folder / EVENTS_FILE, event_kinds)
+    events, torn_line, torn_line_bytes = log.kept, log.torn, log.torn_bytes
+    problems = _closing_problems(info, log.lines, check_hash)
     if problems:
         raise RunFormatError("; ".join(problems))
     warnings: list[str] = []
     streams = {name: _load_stream(info, name, memmap) for name in info.dtypes}
     if info.closing is None:
-        lost = lost_data_problems(str(info.folder), info.flush_interval_s, streams, events)
+        furthest = [log.furthest] if log.furthest is not None else []
+        lost = lost_data_problems(str(info.folder), info.flush_interval_s, streams, furthest)
         warnings += lost or [
             f"{info.folder}: no {CLOSING_FILE}: the recording did not finish (crash or "
             "still running); everything flushed before that is read"

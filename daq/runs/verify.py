@@ -93,8 +93,9 @@ def verify_run(folder: str | os.PathLike[str]) -> VerifyReport:
     notes: list[str] = []
     event_lines: int | None = None
     try:
-        events, torn_line, torn_line_bytes = _read_events(info.folder / EVENTS_FILE)
-        event_lines = len(events)
+        log = _read_events(info.folder / EVENTS_FILE)
+        events, torn_line, torn_line_bytes = log.kept, log.torn, log.torn_bytes
+        event_lines = log.lines
         if torn_line:
             problems.append(
                 f"{info.folder / EVENTS_FILE}: torn last line ({torn_line_bytes} bytes)"

@@ -575,3 +575,18 @@ def test_csv_export_in_blocks_is_byte_identical_to_the_whole_table(
             out = tmp_path / f"{stream}-{block_rows}.csv"
             assert export_run_csv(r, out, stream=stream, block_rows=block_rows) == whole.size
             assert out.read_bytes() == ref.read_bytes()
+
+
+def test_keeping_few_event_kinds_still_counts_every_line(tmp_path: Path) -> None:
+    """A closed run's closing.json counts every event line: a run read keeping only the
+    alarms still matches it, and one line removed from the log is still caught."""
+    folder = tmp_path / "run"
+    write_run(folder)
+    every = read_run(folder)
+    alarms = read_run(folder, event_kinds=("alarm",))
+    assert alarms.events == [e for e in every.events if e["kind"] == "alarm"]
+    assert len(alarms.events) == 1 and len(every.events) == 5
+    log = folder / "events.jsonl"
+    log.write_bytes(b"".join(log.read_bytes().splitlines(keepends=True)[1:]))
+    with pytest.raises(RunFormatError, match="says 5 lines but the file holds 4"):
+        read_run(folder, event_kinds=("alarm",), check_hash=False)

@@ -86,3 +86,18 @@ def test_the_flush_interval_is_recorded_and_checked(tmp_path: Path) -> None:
         text.replace('"flush_interval_s": 0.25', '"flush_interval_s": 5')
     )
     assert any("flush_interval_s = 5" in p for p in verify_run(folder).problems)
+
+
+@pytest.mark.parametrize("kinds", [(), ("tare",), ("settling",), None])
+def test_keeping_few_event_kinds_loses_no_check(tmp_path: Path, kinds: tuple | None) -> None:
+    """read_run(event_kinds=...) (replay keeps only zeros, export none): the events kept
+    are those of read_run() of these kinds, and the loss check of an unclosed run still
+    sees every event (here the one naming sample 2999)."""
+    folder = _crashed_run(tmp_path / "run")
+    _cut(folder / "samples.bin", 1000, empty_block(0).dtype.itemsize)
+    _cut(folder / "estimates.bin", 1000, ESTIMATE_DTYPE.itemsize)
+    every = read_run(folder)
+    some = read_run(folder, event_kinds=kinds)
+    assert some.events == [e for e in every.events if kinds is None or e["kind"] in kinds]
+    assert any("names sample 2999" in w for w in some.warnings)
+    assert some.warnings == every.warnings

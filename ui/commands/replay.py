@@ -171,13 +171,13 @@ def _replay_run(args: argparse.Namespace, folder: Path, speed: float) -> int:
     from daq.runs import read_run
     from daq.runs.blocks import iter_stream_blocks
     from estimator.profile import load_profile
-    from ui.pipeline import ESTIMATE_STREAM, tares_from_events
+    from ui.pipeline import ESTIMATE_STREAM, TARE_EVENT, tares_from_events
     from ui.progress import bar
     from ui.replay_blocks import LiveComparison
     from ui.unverified import refuse_unverifiable
     from ui.wiring import profile_from_text
 
-    data = read_run(folder)
+    data = read_run(folder, event_kinds=(TARE_EVENT,))  # a long run's log is big; zeros only
     refuse_unverifiable(folder, data.warnings, args.unverified)
     for warning in data.warnings:
         print(f"warning: {warning}", file=sys.stderr)
