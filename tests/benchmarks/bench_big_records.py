@@ -136,7 +136,7 @@ from daq.runs import read_run
 from estimator.observer import ForceObserver
 from estimator.profile import default_demo_profile
 from daq.runs.blocks import iter_stream_blocks
-run = read_run(sys.argv[1])  # time and displacement into memory (16 bytes a sample)
+run = read_run(sys.argv[1], event_kinds=())  # time and displacement into memory (16 B a sample)
 t = np.empty(run.samples.shape[0]); x = np.empty_like(t); i = 0
 for b in iter_stream_blocks(run, "samples"):
     t[i : i + b.size] = b["device_time_s"]; x[i : i + b.size] = b["displacement_m"]; i += b.size
