@@ -7,7 +7,9 @@ displacement is exactly one of ``displacement_m`` / ``displacement_mm`` /
 ``displacement_um``. Other columns are ignored. An empty displacement field or ``nan``
 marks a missing sample. Time strictly increases: a row whose time is equal to or
 earlier than the one before is an error naming its line (a reordered or merged file
-would otherwise be estimated as a record that restarts at every row).
+would otherwise be estimated as a record that restarts at every row). A time 1e12 s or
+more from zero (`daq.samples.TIME_MAX_S`) and a displacement a metre or more from zero
+(`daq.samples.DISPLACEMENT_MAX_M`) are refused at their line: damage or a unit error.
 
 `iter_displacement_csv` gives the record in chunks (bounded memory for a record of any
 length; ``replay`` streams it), with the same checks across chunk boundaries;
@@ -25,7 +27,7 @@ import numpy as np
 
 from daq.csv_table import CHUNK_CHARS, CsvChunk, iter_csv_chunks, read_csv_header
 from daq.errors import FramingError
-from daq.samples import TIME_MAX_S
+from daq.samples import DISPLACEMENT_MAX_M, TIME_MAX_S
 
 __all__ = [
     "DISPLACEMENT_UNITS",
@@ -105,9 +107,16 @@ def iter_displacement_csv(
         t, x = chunk.columns[time_name], chunk.columns[found[0]]
         _check_times(p, time_name, chunk, t, before)
         before = (float(t[-1]), chunk)
-        yield DisplacementChunk(
-            t, x if scale == 1.0 else x * scale, chunk.first_row, chunk.bytes_read
-        )
+        x = x if scale == 1.0 else x * scale
+        far = np.abs(x) >= DISPLACEMENT_MAX_M  # NaN (a missing sample) is not far
+        if far.any():
+            row = int(np.nonzero(far)[0][0])
+            raise FramingError(
+                f"{p}:{chunk.line_of_row(row)}: {found[0]} = "
+                f"{float(chunk.columns[found[0]][row])!r} is a metre or more from zero: not "
+                "the displacement of a force cell (check the column's unit)"
+            )
+        yield DisplacementChunk(t, x, chunk.first_row, chunk.bytes_read)
 
 
 def _check_times(

@@ -24,6 +24,7 @@ from daq.errors import FramingError
 
 __all__ = [
     "DEVICE_STATUS_SHIFT",
+    "DISPLACEMENT_MAX_M",
     "FLAG_GAP_BEFORE",
     "FLAG_RECONNECT_BEFORE",
     "SAMPLE_DTYPE",
@@ -49,6 +50,11 @@ SAMPLE_DTYPE = np.dtype(
 #: Beyond it a time is damage, not a clock, and the arithmetic of a sample interval
 #: overflows (an interval of 1e308 s made the observer's discretisation fail).
 TIME_MAX_S = 1e12
+
+#: Largest magnitude of a displacement, m: a cell's transducer reads micrometres to
+#: millimetres, so a metre is a unit error or damage (the observer refuses it too), and
+#: squares of 1e308 overflow.
+DISPLACEMENT_MAX_M = 1.0
 
 #: Units of each field, as recorded in run descriptions and CSV headers.
 SAMPLE_UNITS = {

@@ -183,3 +183,30 @@ def test_unix_times_are_times_of_a_record(tmp_path: Path) -> None:
     p = _file(tmp_path, f"time_s,displacement_m\n{start!r},1e-6\n{start + 0.5!r},1e-6\n")
     t, _ = read_displacement_csv(p)
     np.testing.assert_array_equal(t, [start, start + 0.5])
+
+
+@pytest.mark.parametrize(
+    ("column", "value", "shown"),
+    [("displacement_m", "1e308", "1e+308"), ("displacement_mm", "-1000", "-1000.0")],
+)
+def test_a_displacement_of_a_metre_is_refused_at_its_line(
+    tmp_path: Path, column: str, value: str, shown: str
+) -> None:
+    # Found by the long fuzz run (issue 15): 'identify --test ringdown' on a record whose
+    # first displacement is 1e308 m overflowed squaring it (exit 3 under the suite's
+    # warnings-as-errors, Python warning lines on a terminal). The fuzz run's exact input:
+    from tests.fuzz.test_fuzz_inputs import CSV
+
+    if column == "displacement_m":
+        data = CSV.replace(b"0.000000,2.500000000e-05\n", b"0.000000,1e308\n", 1)
+        assert data != CSV
+        line = 2
+    else:  # invented: a metre in millimetres
+        data = f"time_s,{column}\n0.0,0.025\n0.0005,{value}\n".encode()
+        line = 3
+    p = tmp_path / "x.csv"
+    p.write_bytes(data)
+    with pytest.raises(
+        FramingError, match=re.escape(f"x.csv:{line}: {column} = {shown} is a metre or more")
+    ):
+        read_displacement_csv(p)
