@@ -36,7 +36,7 @@ DEMO_RUNS = sorted(p.parent for p in (REPO / "recordings").glob("*/run.json"))
 
 #: Examples left to the slow suite (``-m slow``), each with its reason (kept short).
 SLOW = {
-    "forcelens dashboard --screenshot docs/dashboard-live.png --after 11": (
+    "forcelens dashboard --screenshot docs/dashboard-live.png --after 11 --force": (
         "keeps the window open 11 s of the demo programme for the picture in docs/"
     ),
     "forcelens impact --profile recalibrated.toml --since 2026-01-01 --out impact-2026": (
