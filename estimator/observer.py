@@ -136,6 +136,11 @@ class ObserverTuning:
             as uniform and uses the nominal model.
         initial_force_sigma_n: prior standard deviation of the force at start-up (N);
             default: the rated range given to the observer.
+        restart_gap_s: a silence longer than this (s) between two samples starts the
+            observer afresh at the second one, as at the first sample of a record
+            (default: the longer of 60 s and 100 periods of the cell). Nothing of the
+            state is worth predicting across it, and the smooth-load priors' variance,
+            growing as the cube of the step, overflowed across silences of hours.
         constant_floor: see `ForceModels.constant_floor` (default bank only).
         models: the bank of force priors; default `ForceModels.for_cell`.
     """
@@ -151,6 +156,7 @@ class ObserverTuning:
     shown_tail: float = 0.02
     timing_tolerance: float = 0.01
     initial_force_sigma_n: float | None = None
+    restart_gap_s: float | None = None
     constant_floor: bool = True
     models: ForceModels | None = None
 
@@ -178,6 +184,8 @@ class ObserverTuning:
             )
         if self.initial_force_sigma_n is not None:
             _positive("initial_force_sigma_n", self.initial_force_sigma_n)
+        if self.restart_gap_s is not None:
+            _positive("restart_gap_s", self.restart_gap_s)
 
 
 def _positive(name: str, value: float) -> None:
@@ -208,6 +216,7 @@ class _Counters:
     missing: int = 0
     gaps: int = 0
     jumps: int = 0  # times the jump model became the most probable
+    restarts: int = 0  # fresh starts after a silence longer than restart_gap_s
 
 
 @dataclass
@@ -273,6 +282,10 @@ class ForceObserver:
         span = self.tuning.initial_force_sigma_n or force_range_n or 1e4 * k * math.sqrt(self.R)
         _positive("force span", span)
         self.force_span_n = float(span)
+        #: a silence longer than this (s) restarts the observer (ObserverTuning.restart_gap_s)
+        self.restart_gap_s = float(
+            self.tuning.restart_gap_s or max(60.0, 100.0 / plant.natural_freq_hz)
+        )
         #: the bank of force priors in use
         self.models = self.tuning.models or ForceModels.for_cell(
             plant,
@@ -415,6 +428,8 @@ class ForceObserver:
         np.subtract(t[1:], t[:-1], out=dt[1:])
         if not (dt.min() > 0 and math.isfinite(t[0]) and math.isfinite(t[-1])):
             self._raise_bad_times(t, dt, t_before)
+        if dt.max() > self.restart_gap_s:
+            return self._restart_across(t, z, int(np.argmax(dt > self.restart_gap_s)))
         if st.t_last is None:
             self._start(float(z[0]))
         table = self._table_rows(dt)
@@ -499,6 +514,19 @@ class ForceObserver:
         st.jump_last = bool(jump[-1])
         st.t_last = float(t[-1])
         return out
+
+    def _restart_across(self, t: np.ndarray, z: np.ndarray, k: int) -> np.ndarray:
+        """Samples ``t[k]`` on come after a silence longer than ``restart_gap_s``: estimate
+        the samples before it, then start afresh at sample k (flagged as after a gap)."""
+        head = self.process(t[:k], z[:k])
+        st = self._state
+        st.t_last = None
+        st.jump_last = False
+        self.counters.restarts += 1
+        tail = self.process(t[k:], z[k:])
+        tail["flags"][0] |= FLAG_GAP
+        self.counters.gaps += 1
+        return np.concatenate([head, tail])
 
     def _table_rows(self, dt: np.ndarray) -> np.ndarray:
         """Row of the model tables for each step: 0 for nominal, others added as met."""

@@ -36,6 +36,7 @@ record (an IMM smoother over the bank) is future work.
 from __future__ import annotations
 
 import dataclasses
+import itertools
 import math
 from dataclasses import dataclass
 
@@ -45,7 +46,13 @@ from estimator.force_models import FAMILY_HOLD, FAMILY_RATE, model_tables, scali
 from estimator.loggrid import ascend
 from estimator.mm_kernel import imm_block
 from estimator.mm_smooth_kernel import kim_backward
-from estimator.observer import FLAG_JUMP, FLAG_OUTLIER_BEFORE, FLAG_REJECTED, ForceObserver
+from estimator.observer import (
+    FLAG_GAP,
+    FLAG_JUMP,
+    FLAG_OUTLIER_BEFORE,
+    FLAG_REJECTED,
+    ForceObserver,
+)
 from estimator.smoother_sigma import smoother_variance
 
 __all__ = ["SmootherFit", "fit_prior", "smooth_record"]
@@ -157,6 +164,16 @@ def smooth_record(
     """
     t = np.ascontiguousarray(time_s, dtype=float)
     z = np.ascontiguousarray(displacement_m, dtype=float)
+    with np.errstate(invalid="ignore"):
+        silences = np.flatnonzero(np.diff(t) > observer.restart_gap_s) + 1
+    if silences.size:
+        # the live pass starts afresh after each long silence: each stretch between them
+        # is a record of its own, smoothed alone
+        cuts = [0, *silences.tolist(), t.size]
+        parts = [smooth_record(observer, t[a:b], z[a:b]) for a, b in itertools.pairwise(cuts)]
+        for part in parts[1:]:
+            part["flags"][0] |= FLAG_GAP
+        return np.concatenate(parts)
     observer.reset()
     live = observer.process(t, z)
     out = live.copy()

@@ -127,7 +127,7 @@ def _replay_csv(args: argparse.Namespace, source: Path, speed: float) -> int:
     c = replay.observer.counters
     print(
         f"{source}: {replay.samples} samples; rejected {c.rejected}, missing {c.missing}, "
-        f"gaps {c.gaps}, load jumps {c.jumps}"
+        f"gaps {c.gaps}, load jumps {c.jumps}{_restarted(replay.observer)}"
     )
     return 0
 
@@ -208,7 +208,7 @@ def _replay_run(args: argparse.Namespace, folder: Path, speed: float) -> int:
     c = replay.observer.counters
     print(
         f"replayed {replay.samples} samples; rejected {c.rejected}, gaps {c.gaps}, "
-        f"load jumps {c.jumps}, zero events {len(tares)}"
+        f"load jumps {c.jumps}, zero events {len(tares)}{_restarted(replay.observer)}"
     )
     if live is None:
         return 0
@@ -382,3 +382,13 @@ def _metadata(args: argparse.Namespace, profile: Any) -> dict[str, str]:
         "method": "smoother (offline)" if args.smooth else "observer (as live)",
         "software_version": software_version(),
     }
+
+
+def _restarted(observer: Any) -> str:
+    """The fresh starts after long silences, said when there were any."""
+    n = observer.counters.restarts
+    if not n:
+        return ""
+    return (
+        f"; observer started afresh after {n} silence(s) longer than {observer.restart_gap_s:g} s"
+    )
