@@ -31,6 +31,8 @@ _ALL_ONLY = ("since", "until", "cell", "tag", "status", "workers", "scheduler", 
 
 
 def register(subparsers: Any) -> None:
+    from ui.input_paths import input_path
+
     p = subparsers.add_parser(
         "audit",
         help="replay a run (or every catalogued run with --all) and check every stored "
@@ -46,7 +48,7 @@ def register(subparsers: Any) -> None:
             "the cause) or unreadable; exit status 1 when any run differs or cannot be read."
         ),
     )
-    p.add_argument("run_folder", metavar="RUN", nargs="?", help="run folder")
+    p.add_argument("run_folder", metavar="RUN", nargs="?", type=input_path, help="run folder")
     p.add_argument(
         "--report",
         metavar="DIR",

@@ -13,6 +13,7 @@ __all__ = ["open_dashboard", "register"]
 
 def register(subparsers: Any) -> None:
     from ui.commands.live import DEFAULT_RUNS_ROOT
+    from ui.input_paths import input_path
     from ui.outputs import add_force_option
     from ui.sim_help import FAULTS_HELP, PROGRAMME_HELP, SPEED_HELP
 
@@ -42,7 +43,9 @@ def register(subparsers: Any) -> None:
         help="folder for recordings (default: %(default)s)",
     )
     p.add_argument("--no-connect", action="store_true", help="wait for the Connect button")
-    p.add_argument("--open", metavar="RUN", help="start in replay mode on this run folder")
+    p.add_argument(
+        "--open", metavar="RUN", type=input_path, help="start in replay mode on this run folder"
+    )
     sim = p.add_argument_group("built-in simulated cell (used when no port is given)")
     sim.add_argument(
         "--sim-programme",

@@ -16,6 +16,8 @@ _SUFFIXES = {".csv": "csv", ".mat": "mat", ".h5": "hdf5", ".hdf5": "hdf5", ".he5
 
 
 def register(subparsers: Any) -> None:
+    from ui.input_paths import input_path
+
     p = subparsers.add_parser(
         "export",
         help="write a recorded run's samples (or live estimates) as CSV, MATLAB or HDF5",
@@ -28,7 +30,7 @@ def register(subparsers: Any) -> None:
             "See docs/csv-files.md and docs/run-format.md."
         ),
     )
-    p.add_argument("run_folder", metavar="RUN", help="run folder")
+    p.add_argument("run_folder", metavar="RUN", type=input_path, help="run folder")
     p.add_argument(
         "--out",
         metavar="FILE",

@@ -30,6 +30,8 @@ _PACED_BLOCK_S = 0.05  # device time per block when pacing, s
 
 
 def register(subparsers: Any) -> None:
+    from ui.input_paths import input_path
+
     p = subparsers.add_parser(
         "replay",
         help="estimate force again from a recorded run or a CSV of time and displacement",
@@ -42,7 +44,7 @@ def register(subparsers: Any) -> None:
             "...; force_u_n is the standard uncertainty, k = 1); see docs/csv-files.md."
         ),
     )
-    p.add_argument("source", metavar="RUN_OR_CSV", help="run folder or CSV file")
+    p.add_argument("source", metavar="RUN_OR_CSV", type=input_path, help="run folder or CSV file")
     p.add_argument(
         "--profile",
         metavar="FILE.toml",

@@ -20,6 +20,8 @@ __all__ = ["default_report_folder", "register"]
 
 
 def register(subparsers: Any) -> None:
+    from ui.input_paths import input_path
+
     p = subparsers.add_parser(
         "report",
         help="HTML and PDF report of a recorded run, with the figures an audit re-checks",
@@ -31,7 +33,7 @@ def register(subparsers: Any) -> None:
             "figures.json for forcelens audit."
         ),
     )
-    p.add_argument("run_folder", metavar="RUN", help="run folder")
+    p.add_argument("run_folder", metavar="RUN", type=input_path, help="run folder")
     p.add_argument(
         "--out", metavar="DIR", help="output folder (default: RUN-report beside the run)"
     )

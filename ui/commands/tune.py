@@ -24,6 +24,8 @@ __all__ = ["register"]
 
 
 def register(subparsers: Any) -> None:
+    from ui.input_paths import input_path
+
     p = subparsers.add_parser(
         "tune",
         help="noise and observer intensities by innovation likelihood on any record",
@@ -39,6 +41,7 @@ def register(subparsers: Any) -> None:
     p.add_argument(
         "record",
         metavar="RUN_OR_CSV",
+        type=input_path,
         help="run folder, or CSV with time_s and displacement_m/mm/um",
     )
     p.add_argument(

@@ -9,6 +9,8 @@ __all__ = ["register"]
 
 
 def register(subparsers: Any) -> None:
+    from ui.input_paths import input_path
+
     p = subparsers.add_parser(
         "verify",
         help="check a recorded run's completeness and SHA-256",
@@ -18,7 +20,7 @@ def register(subparsers: Any) -> None:
             "when any run has a problem."
         ),
     )
-    p.add_argument("runs", nargs="+", metavar="RUN", help="run folder(s)")
+    p.add_argument("runs", nargs="+", metavar="RUN", type=input_path, help="run folder(s)")
     p.set_defaults(run=run)
 
 
