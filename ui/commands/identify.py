@@ -114,6 +114,32 @@ def register(subparsers: Any) -> None:
     p.set_defaults(run=run)
 
 
+def _refuse_implausible(path: Path, samples: Any) -> None:
+    """A run's samples under the limits a CSV's rows meet (`daq.samples`): a time 1e12 s or
+    more from zero or a displacement a metre or more from zero is damage or a unit error."""
+    import numpy as np
+
+    from daq.errors import RunFormatError
+    from daq.samples import DISPLACEMENT_MAX_M, TIME_MAX_S
+
+    for field, limit, unit in (
+        ("device_time_s", TIME_MAX_S, "s"),
+        ("displacement_m", DISPLACEMENT_MAX_M, "m"),
+    ):
+        values = samples[field]
+        ok = np.abs(values) < limit
+        if field == "displacement_m":
+            ok |= np.isnan(values)  # a missing sample
+        bad = np.flatnonzero(~ok)
+        if bad.size:
+            i = int(bad[0])
+            raise RunFormatError(
+                f"{path}: sample {i} (seq {int(samples['seq'][i])}) has {field} = "
+                f"{float(values[i])!r}, {limit:g} {unit} or more from zero: damage or a unit "
+                "error; such a record cannot be identified"
+            )
+
+
 def _record(path: Path) -> tuple[Any, Any, str, Any]:
     """time (s), displacement (m), SHA-256 of the data, and the run's profile (or None)."""
     import numpy as np
@@ -128,6 +154,7 @@ def _record(path: Path) -> tuple[Any, Any, str, Any]:
         if digest is None:
             digest = hashlib.sha256(s.tobytes()).hexdigest()
         profile = profile_from_text(data.description["profile_toml"], str(path / "run.json"))
+        _refuse_implausible(path, s)
         return s["device_time_s"], s["displacement_m"], digest, profile
     from daq.csvfile import read_displacement_csv
 
