@@ -53,6 +53,7 @@ def replay_run(folder: str | Path, *, profile: Any = None, check_hash: bool = Tr
     from daq.runs import read_run
     from estimator.observer import concat_estimates
     from ui.pipeline import EstimationPipeline, tares_from_events
+    from ui.transducer_change import transducer_change
     from ui.wiring import profile_from_text
 
     folder = Path(folder)
@@ -60,8 +61,12 @@ def replay_run(folder: str | Path, *, profile: Any = None, check_hash: bool = Tr
     own = profile_from_text(data.description["profile_toml"], f"{folder / 'run.json'}")
     used = profile or own
     collector = _Collector()
-    pipe = EstimationPipeline(used, recorder=collector, tares=tares_from_events(data.events))
+    tares = tares_from_events(data.events)
     samples = np.asarray(data.samples)
+    change = transducer_change(own, used)
+    if change is not None:  # another transducer calibration: displacements from counts
+        samples, tares = change.samples(samples), change.tares(tares)
+    pipe = EstimationPipeline(used, recorder=collector, tares=tares)
     from ui.progress import bar, progress_wanted
 
     parts = []

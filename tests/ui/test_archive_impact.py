@@ -19,7 +19,7 @@ import numpy as np
 import pytest
 
 from daq.runs import read_run
-from estimator.profile import save_profile
+from estimator.profile import profile_to_toml, save_profile
 from tests.ui.invented_archive import PROFILE, record_run
 from ui.archive.impact import CHANGE, READING, assess_run, parse_tolerance
 from ui.cli import main
@@ -167,3 +167,52 @@ def test_tolerance_reads_newtons_and_percent() -> None:
     for bad in ("1%+2%", "0.1%+", "1+2+3", "0N"):
         with pytest.raises(ValueError, match="--tolerance"):
             parse_tolerance(bad)
+
+
+def test_a_transducer_sensitivity_corrected_by_half_a_percent_moves_every_value_by_as_much(
+    archive: dict[str, Path],
+) -> None:
+    # The runs keep their raw counts: a transducer recalibrated to 1.005 times the metres
+    # per volt reads the same counts as 1.005 times the displacement (the linear chain of
+    # daq.scaling, x = (counts·V/count − zero V)·m/V), hence 1.005 F at rest (F = k·x,
+    # Hooke's law, common practice), the run's zero carried through the same change.
+    tr = PROFILE.transducer
+    corrected = PROFILE.with_updates(
+        transducer=dataclasses.replace(tr, metres_per_volt=tr.metres_per_volt * (1 + SHIFT))
+    )
+    impact = assess_run(
+        str(archive["tared"]), corrected_toml=profile_to_toml(corrected), tolerance=None
+    )
+    assert any("derived again from the recorded counts" in n for n in impact.notes)
+    live = read_run(archive["tared"]).streams[ESTIMATE_STREAM]
+    readings = [r for r in impact.rows if r.kind == READING]
+    for row in readings:
+        u = float(np.median(live["force_u_n"][row.index : row.end_index]))
+        assert abs(row.diff_n - SHIFT * row.old_n) <= u, row
+    before = readings[0]  # before the zero at 0.3 s: k·x with x = 2 µm, then 2.01 µm
+    assert before.old_n == pytest.approx(0.8, abs=0.01)
+    assert before.new_n == pytest.approx(0.8 * (1 + SHIFT), abs=0.01)
+    at_50 = next(r for r in readings if 40 < r.old_n < 60)
+    assert at_50.new_n == pytest.approx(50.0 * (1 + SHIFT), abs=0.05)
+
+
+def test_replay_with_a_recalibrated_transducer_reads_the_counts_again(
+    archive: dict[str, Path], tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    tr = PROFILE.transducer
+    corrected = PROFILE.with_updates(
+        transducer=dataclasses.replace(tr, metres_per_volt=tr.metres_per_volt * (1 + SHIFT))
+    )
+    path = tmp_path / "recalibrated.toml"
+    save_profile(corrected, path)
+    out = tmp_path / "est.csv"
+    folder = archive["tared"]
+    assert main(["replay", str(folder), "--profile", str(path), "--out", str(out)]) == 0
+    assert "derived again from the recorded counts" in capsys.readouterr().out
+    rows = _rows(out)
+    force_key = next(k for k in rows[0] if k.startswith("force_n"))
+    force = np.array([float(r[force_key]) for r in rows])
+    old = read_run(folder).streams[ESTIMATE_STREAM]["force_n"]
+    held = np.abs(old - 50.0) < 0.2  # the invented programme's 50 N hold, as read live
+    # 1.005 times the displacement at rest reads 1.005 F (Hooke's law), within noise
+    assert np.median(force[held]) == pytest.approx(50.0 * (1 + SHIFT), abs=0.05)

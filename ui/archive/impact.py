@@ -236,8 +236,8 @@ def _notes(old: Any, corrected: Any) -> list[str]:
     notes = []
     if old.profile.transducer != corrected.transducer:
         notes.append(
-            "the corrected profile changes [transducer]; runs store displacement in metres, "
-            "so that change is not part of this assessment"
+            "the corrected profile changes [transducer]: the displacements were derived "
+            "again from the recorded counts, and the run's zeros with them"
         )
     if old.profile.cell.name != corrected.cell.name:
         notes.append(

@@ -176,6 +176,7 @@ def _replay_run(args: argparse.Namespace, folder: Path, speed: float) -> int:
     from ui.pipeline import ESTIMATE_STREAM, TARE_EVENT, tares_from_events
     from ui.progress import bar
     from ui.replay_blocks import LiveComparison
+    from ui.transducer_change import transducer_change
     from ui.unverified import refuse_unverifiable
     from ui.wiring import profile_from_text
 
@@ -191,6 +192,13 @@ def _replay_run(args: argparse.Namespace, folder: Path, speed: float) -> int:
     profile = load_profile(args.profile) if args.profile else recorded_profile
     own_profile = profile == recorded_profile
     tares = tares_from_events(data.events)
+    change = transducer_change(recorded_profile, profile)
+    if change is not None:
+        print(
+            "the profile's [transducer] table differs from the run's: displacements are "
+            "derived again from the recorded counts, and the zeros with them"
+        )
+        tares = change.tares(tares)
     state = "closed" if data.closed else "NOT closed (ended without its closing record)"
     n_samples = int(data.samples.shape[0])
     print(f"run {data.description['run_id']}: {n_samples} samples, {state}")
@@ -204,7 +212,7 @@ def _replay_run(args: argparse.Namespace, folder: Path, speed: float) -> int:
         else:  # a block at a time from the file: bounded memory
             blocks = iter_stream_blocks(data, "samples", _BLOCK)
         for block in blocks:
-            replay.feed(block)
+            replay.feed(block if change is None else change.samples(block))
             shown.update(block.size)
     replay.finish()
     c = replay.observer.counters
