@@ -158,11 +158,13 @@ class SettlingRule:
         """Half-width of the band, N, around ``mean_n`` for a standard uncertainty ``u_n``."""
         return max(self.band_fraction * abs(mean_n), self.k * u_n, self.band_floor_n)
 
-    def describe(self) -> str:
-        """The rule in one sentence, for the user."""
+    def describe(self, force_unit: tuple[str, float] = ("N", 1.0)) -> str:
+        """The rule in one sentence, for the user; its force floor in ``force_unit``
+        (symbol, newtons per unit), the unit the screen shows forces in."""
         parts = [f"{_number(self.band_fraction * 100)} % of the reading", f"U (k = {self.k:g})"]
         if self.band_floor_n > 0:
-            parts.append(f"{_number(self.band_floor_n)} N")
+            symbol, size = force_unit
+            parts.append(f"{_number(self.band_floor_n / size)} {symbol}")
         return (
             f"settled when every force estimate of the last {_number(self.hold_s * 1e3)} ms "
             f"stays within ±max({', '.join(parts)}) of their mean; the reading stays valid "
@@ -320,10 +322,11 @@ class SettlingMonitor:
         mean, u, t, index = self._last
         return Reading(mean, self.rule.k * u, self.rule.k, self._valid_since_s, t, index)
 
-    def describe(self) -> str:
-        """The rule as shown to the user, with the window length in samples."""
+    def describe(self, force_unit: tuple[str, float] = ("N", 1.0)) -> str:
+        """The rule as shown to the user, with the window length in samples; forces in
+        ``force_unit`` (symbol, newtons per unit)."""
         return (
-            f"{self.rule.describe()} ({self.hold_samples + 1} samples at "
+            f"{self.rule.describe(force_unit)} ({self.hold_samples + 1} samples at "
             f"{self.sample_rate_hz:g} Hz)"
         )
 

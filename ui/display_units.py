@@ -128,6 +128,11 @@ class CellUnits:
         )
 
     # ----------------------------------------------------------------- force
+    @property
+    def force_unit(self) -> tuple[str, float]:
+        """The force unit as ``(symbol, newtons per unit)``, for texts made outside ``ui``."""
+        return self.force.symbol, self.force.size
+
     def force_decimals(self, expanded_u_n: float) -> int:
         """Decimals of a force whose expanded uncertainty is `expanded_u_n` (N)."""
         return decimals_for(expanded_u_n, self.force)

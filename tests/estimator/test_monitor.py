@@ -102,6 +102,10 @@ def test_rule_band_and_description() -> None:
     # the demo range is −10 … 120 N: a 0.1 % floor is 0.13 N
     assert RULE.band_floor_n == pytest.approx(0.13)
     assert "41 samples at 2000 Hz" in _monitor().describe()
+    # the floor in the unit the screen shows forces in (issue 14: one unit per quantity):
+    # 0.13 N is 130 mN and 0.00013 kN (SI prefixes)
+    assert "130 mN" in RULE.describe(("mN", 1e-3)) and "0.13 N" not in RULE.describe(("mN", 1e-3))
+    assert "0.00013 kN" in _monitor().describe(("kN", 1e3))
 
 
 @pytest.mark.parametrize(

@@ -219,7 +219,8 @@ def _run(args: argparse.Namespace, profile: Any, port: str, cell: Any, recording
 
     session = LiveSession(profile, port, recording=recording)
     if session.pipeline.monitor is not None:
-        print(f"reading rule: {session.pipeline.monitor.describe()}", flush=True)
+        force_unit = CellUnits.for_profile(profile).force_unit
+        print(f"reading rule: {session.pipeline.monitor.describe(force_unit)}", flush=True)
     status = StatusLine(enabled=not args.quiet)
     budget = ForceUncertainty.from_profile(profile)
     units = CellUnits.for_profile(profile)  # the status line in the cell's units, as on screen

@@ -62,6 +62,7 @@ class RunPlayback:
         from estimator.alarms import AlarmSet
         from estimator.metrics import change_table
         from estimator.monitor import STATES, SettlingMonitor, SettlingRule
+        from ui.display_units import CellUnits
         from ui.pipeline import ESTIMATE_STREAM, estimate_samples, tares_from_events
         from ui.wiring import profile_from_text
 
@@ -88,7 +89,7 @@ class RunPlayback:
         )  # fmt: skip
         _, trace = monitor.update_with_trace(est)
         self.states = np.asarray(STATES, dtype=object)[trace.state]
-        self.rule_text = monitor.describe()
+        self.rule_text = monitor.describe(CellUnits.for_profile(self.profile).force_unit)
         self.rule, self.hold_samples = rule, monitor.hold_samples
         # The observer's model probabilities per sample (p_hold, p_rate, p_jump), (3, n).
         self.model_p = np.vstack([est["p_hold"], est["p_rate"], est["p_jump"]])

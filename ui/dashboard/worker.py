@@ -508,7 +508,7 @@ class _Acquisition:
         if monitor is None:
             return ""
         if self._rule is None:
-            self._rule = monitor.describe()
+            self._rule = monitor.describe(self.units.force_unit)
         return self._rule
 
     def _u_combined(self, est: np.ndarray) -> np.ndarray:
