@@ -11,8 +11,10 @@ uses every later sample, which removes the filter's lag.
    ``ℓ = Σ ln p(z_k | z_1..k−1)`` is found on a log grid widened while the best value
    sits on its edge (the prediction-error decomposition; Harvey, "Forecasting,
    structural time series models and the Kalman filter", 1989, from memory), and the
-   measurement noise is refined the same way. The prior with the larger likelihood is
-   kept.
+   measurement noise is refined the same way; then the intensity is refined between the
+   grid's neighbours by Brent's bounded search (the grid alone leaves it within a factor
+   of 2, which cost up to 1.17× the RMSE of the smoother fitted continuously on a
+   band-limited random load). The prior with the larger likelihood is kept.
 3. **Smoothing**: the Kalman filter of that model keeps every posterior and the
    Rauch–Tung–Striebel backward pass combines them with the later samples
    (:mod:`estimator.mm_smooth_kernel` with one model is exactly that recursion).
@@ -23,9 +25,13 @@ uses every later sample, which removes the filter's lag.
    enough for its steps, so on the holds between them it follows the noise: there the
    live multiple-model estimate states a smaller σ (on the stiff benchmark cell 0.005 N
    against the smoother's 0.09 N, both honest). Each row is taken from the live pass where
-   its σ is the smaller, except within ``_GUARD`` samples of a load change seen live (a
-   suspect sample then used, or a jump row: their first row may show the old level with
-   the old σ).
+   its σ is the smaller, except within ``_GUARD`` samples, before or after, of a row
+   where the live bank was not mostly in its hold model, or of a load change seen live (a
+   suspect sample then used, or a jump row). The live pass sees a change a few samples
+   late, and until then it shows the old level with the old σ: on the lightly damped
+   benchmark cell, the first 20 samples after each corner of a ramp taken from it made
+   the record 1.4–2.1 times worse than the fitted smoother, while the live rows far from
+   the corners were 10 times better than the smoother's.
 
 Innovation, NIS and flags are those of the live pass; force, its uncertainty,
 displacement, velocity and the model probabilities (1 for the prior kept) are smoothed,
@@ -38,9 +44,11 @@ from __future__ import annotations
 import dataclasses
 import itertools
 import math
+from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
+import scipy.optimize
 
 from estimator.force_models import FAMILY_HOLD, FAMILY_RATE, model_tables, scaling
 from estimator.loggrid import ascend
@@ -59,7 +67,8 @@ __all__ = ["SmootherFit", "fit_prior", "smooth_record"]
 
 _STEP = 4.0  # ratio between grid points of an intensity
 _WIDEN = 12  # times a grid may move past its edge
-_GUARD = 5  # samples on either side of a live suspect or jump row never taken from live
+_GUARD = 8  # samples either side of a live change or a row not mostly hold, never from live
+_HOLD = 0.5  # probability of the live hold model below which a row is not taken from live
 
 
 @dataclass(frozen=True)
@@ -133,11 +142,33 @@ def fit_prior(obs: ForceObserver, time_s: np.ndarray, displacement_m: np.ndarray
 
         # the intensity in coarse steps first (its optimum may be decades away)
         found = ascend(ll, (q0, 1.0), (_STEP**2, 1.1), widen=_WIDEN)
-        fit = SmootherFit(family, found.point[0], found.point[1], found.value)
+        q, noise = found.point
+        q, value = _refine(lambda q, noise=noise: ll((q, noise)), q, found.value)
+        fit = SmootherFit(family, q, noise, value)
         if best is None or fit.log_likelihood > best.log_likelihood:
             best = fit
     assert best is not None
     return best
+
+
+def _refine(f: Callable[[float], float], q: float, value: float) -> tuple[float, float]:
+    """The intensity that maximises ``f`` between ``q/_STEP`` and ``q·_STEP`` (Brent's
+    bounded search on ``ln q``) and its value; ``(q, value)`` when nothing there is better."""
+    worse = -value + 1e6 * (1.0 + abs(value))  # for a point whose likelihood is −∞
+
+    def cost(u: float) -> float:
+        v = f(math.exp(u))
+        return -v if math.isfinite(v) else worse
+
+    found = scipy.optimize.minimize_scalar(
+        cost,
+        bounds=(math.log(q / _STEP), math.log(q * _STEP)),
+        method="bounded",
+        options={"xatol": 0.01},
+    )
+    if found.success and -found.fun > value:
+        return math.exp(found.x), -float(found.fun)
+    return q, value
 
 
 def _steps(obs: ForceObserver, time_s: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -214,8 +245,9 @@ def smooth_record(
     # where the live bank states the smaller σ, away from load changes, it is the better
     # estimate (a held load: one fitted prior must be rough enough for the steps too)
     flags = live["flags"]
-    used = np.append(flags[1:] & FLAG_OUTLIER_BEFORE == 0, True)  # a suspect then used
-    busy = (flags & (FLAG_REJECTED | FLAG_JUMP) != 0) & used  # an outlier is no change
+    # a row is "used" unless it is a suspect then judged an outlier: an outlier is no change
+    used = np.append(flags[1:] & FLAG_OUTLIER_BEFORE == 0, True)
+    busy = ((flags & (FLAG_REJECTED | FLAG_JUMP) != 0) | (live["p_hold"] < _HOLD)) & used
     busy = np.convolve(busy, np.ones(2 * _GUARD + 1), "same") > 0
     use_live = (live["force_u_n"] < out["force_u_n"]) & ~busy
     out[use_live] = live[use_live]

@@ -455,10 +455,10 @@ def _shown_mixture(mu: np.ndarray, f: np.ndarray, var: np.ndarray, prune: np.nda
     return mean, float(w @ (var + (f - mean) ** 2))
 
 
-def test_stated_sigma_is_that_of_the_models_holding_98_percent() -> None:
+def test_stated_sigma_is_that_of_the_models_holding_96_percent() -> None:
     # Definition (GUM Supplement 1, JCGM 101:2008, 5.3: a coverage interval is a
     # statement about the bulk of the distribution): the shown mixture leaves out the
-    # least probable models up to 2 % in total; checked row by row against a direct
+    # least probable models up to 4 % in total; checked row by row against a direct
     # implementation, on a record with a step and a ramp.
     t, z, _ = step_run([10.0, 35.0], 0.3, seed=41)
     z = z + np.where(t > 0.45, (t - 0.45) * 40.0 / STIFF, 0.0)  # then a 40 N/s ramp
@@ -469,7 +469,7 @@ def test_stated_sigma_is_that_of_the_models_holding_98_percent() -> None:
     rows = np.flatnonzero(est["flags"] == 0)
     dropped = 0
     for i in rows:
-        mean, var = _shown_mixture(om[i], lx[i, :, 2], lP[i, :, 2, 2], obs._prune, 0.02)
+        mean, var = _shown_mixture(om[i], lx[i, :, 2], lP[i, :, 2, 2], obs._prune, 0.04)
         assert est["force_n"][i] == pytest.approx(mean, rel=1e-6, abs=1e-9)
         assert est["force_u_n"][i] == pytest.approx(math.sqrt(var), rel=1e-6)
         full = _shown_mixture(om[i], lx[i, :, 2], lP[i, :, 2, 2], obs._prune, 0.0)[1]
