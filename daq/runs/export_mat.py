@@ -12,6 +12,7 @@ d.displacement_m)``.
 from __future__ import annotations
 
 import os
+from collections.abc import Iterator
 
 import numpy as np
 
@@ -37,11 +38,10 @@ def export_run_mat(run: RunData, path: str | os.PathLike[str], *, stream: str = 
 
     data, units = stream_of(run, stream)
     names = list(data.dtype.names or ())
-    variables: dict[str, object] = {n: np.ascontiguousarray(data[n]) for n in names}
-    variables[UNITS_VARIABLE] = {n: units[n] for n in names}
     meta: dict[str, object] = dict(export_metadata(run, stream))
     meta["profile_toml"] = run.description["profile_toml"]
-    variables[RUN_VARIABLE] = meta
+    variables = _OneAtATime(data, names, {UNITS_VARIABLE: {n: units[n] for n in names},
+                                          RUN_VARIABLE: meta})  # fmt: skip
     try:
         scipy.io.savemat(
             os.fspath(path),
@@ -55,3 +55,19 @@ def export_run_mat(run: RunData, path: str | os.PathLike[str], *, stream: str = 
     except OSError as exc:
         raise SourceError(f"{path}: cannot write the MAT file ({exc.strerror or exc})") from exc
     return int(data.shape[0])
+
+
+class _OneAtATime:
+    """The variables for ``savemat``, each field's column copied out of the (memory-mapped)
+    stream only when it is written: ``savemat`` takes any object whose ``items()`` gives
+    (name, value) pairs and writes them in turn, so one column (80 MB at 10 M records of
+    doubles), not the whole stream, is in memory at a time.
+    """
+
+    def __init__(self, data: np.ndarray, names: list[str], tail: dict[str, object]) -> None:
+        self._data, self._names, self._tail = data, names, tail
+
+    def items(self) -> Iterator[tuple[str, object]]:
+        for name in self._names:
+            yield name, np.ascontiguousarray(self._data[name])
+        yield from self._tail.items()

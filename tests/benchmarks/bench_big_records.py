@@ -21,7 +21,8 @@ file, print beside them as ratios:
   `read_displacement_csv`, the whole arrays) against ``numpy.loadtxt`` on the whole file
   and against a plain read of its bytes (the I/O floor);
 * ``forcelens replay big.csv --out est.csv``, ``forcelens replay RUN --out est.csv`` and
-  ``forcelens export RUN`` against the observer alone on the same samples in memory
+  ``forcelens export RUN`` (CSV, ``--format mat``, ``--format hdf5``) against the
+  observer alone on the same samples in memory
   (``ForceObserver.process``, no file read or written): the pipeline's cost beyond the
   observer, which is being sped up separately.
 
@@ -275,6 +276,10 @@ def main() -> None:
              [*cli, "replay", str(folder), "--out", str(out), "--force"]),
             ("export RUN (samples, CSV)",
              [*cli, "export", str(folder), "--out", str(out), "--force"]),
+            ("export RUN --format mat",
+             [*cli, "export", str(folder), "--out", str(tmp / "run.mat"), "--force"]),
+            ("export RUN --format hdf5",
+             [*cli, "export", str(folder), "--out", str(tmp / "run.h5"), "--force"]),
         ):  # fmt: skip
             got[name] = repeated(argv, source, r)
             show(name, got[name], n)
