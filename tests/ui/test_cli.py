@@ -107,6 +107,10 @@ def test_demo_end_to_end(tmp_path: Path, capsys, monkeypatch) -> None:
     assert not any(" mm " in line for line in status)
     for name in ("estimates.csv", "truth.csv", "summary.txt", "demo.png"):
         assert (out / name).stat().st_size > 0
+    # the session's log beside them (issue 12: traceable sessions), as live writes one
+    log = (out / "session.log").read_text(encoding="utf-8")
+    assert "command: forcelens demo" in log and "source: the built-in simulated cell" in log
+    assert "connected: " in log and "samples 10200, samples_lost 0" in log
     # Every load step: observer within 2 % of the step of the applied force, and faster
     # to settle than k·x by at least 3 times (the issue's requirement).
     rows = [line.split() for line in (out / "summary.txt").read_text().splitlines()[3:8]]

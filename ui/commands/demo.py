@@ -29,8 +29,8 @@ def register(subparsers: Any) -> None:
         description=(
             "Start the built-in simulated cell (an invented cell and load programme) on a "
             "pseudo-terminal, connect to it through pyserial, estimate force live and print "
-            "a summary per load step. Writes estimates.csv, truth.csv, summary.txt and "
-            "demo.png to --out."
+            "a summary per load step. Writes estimates.csv, truth.csv, summary.txt, the "
+            "session's log session.log and demo.png to --out."
         ),
     )
     p.add_argument(
@@ -70,19 +70,20 @@ def register(subparsers: Any) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
+    import shlex
+
     import numpy as np
 
     from daq.programme import demo_programme
-    from daq.samples import concat_blocks
     from daq.scaling import Scaling
-    from daq.simulator import PtyCell, SimulatedCell, write_truth_csv
-    from estimator.observer import concat_estimates
+    from daq.simulator import SimulatedCell, write_truth_csv
     from estimator.profile import default_demo_profile, load_profile
     from estimator.uncertainty import ForceUncertainty
-    from ui.session import LiveSession
+    from ui.session_log import SessionLog, log_start
 
     out_dir = Path(args.out)
-    names = ["estimates.csv", "truth.csv", "summary.txt"] + ([] if args.no_plot else ["demo.png"])
+    names = ["estimates.csv", "truth.csv", "summary.txt", "session.log"]
+    names += [] if args.no_plot else ["demo.png"]
     inputs = [args.profile] if args.profile else []
     replaced = claim_folder(out_dir, names, inputs=inputs, force=args.force)
     profile = load_profile(args.profile) if args.profile else default_demo_profile()
@@ -102,41 +103,13 @@ def run(args: argparse.Namespace) -> int:
         f"{programme.duration_s:.1f} s of load steps."
     )
     k = pl.stiffness_n_per_m
-    samples, estimates = [], []
-    live = _StatusLine(profile)
-    # The same path as `forcelens live` and the dashboard: serial reader, decoder of the
-    # profile's framing, estimation pipeline with the settling monitor and the alarms.
-    with PtyCell(truth, speed=args.speed, framing=acq.framing) as pty:  # the port exists
-        print(f"simulated cell on {pty.port_name}; connecting through pyserial")
-        session = LiveSession(profile, pty.port_name).start()
-        try:
-            deadline = time.monotonic() + programme.duration_s / args.speed + 15.0
-            # Open the port before the cell starts sending: opening discards what
-            # arrived before, as with a real device.
-            while not session.connected_once and time.monotonic() < deadline:
-                session.poll()
-                time.sleep(0.01)
-            pty.start()
-            quiet_since = None
-            while time.monotonic() < deadline:
-                got = session.poll()
-                if got.samples.size:
-                    quiet_since = None
-                    samples.append(got.samples)
-                    estimates.append(got.estimates)
-                    live.maybe_show(got.estimates, session)
-                elif pty.finished:
-                    quiet_since = quiet_since or time.monotonic()
-                    if time.monotonic() - quiet_since > 0.3:
-                        break
-                time.sleep(0.02)
-        finally:
-            session.close()
-        live.finish()
-        if pty.error is not None:
-            raise OSError(f"simulated cell stopped: {pty.error}")
-    got = concat_blocks(samples)
-    est = concat_estimates(estimates)
+    # the session's log beside the outputs, as `live` logs into its run folder
+    with SessionLog("demo", run_folder=out_dir) as log:
+        command = "forcelens " + shlex.join(getattr(args, "argv", None) or ["demo"])
+        log_start(command, "the built-in simulated cell (invented data)", profile, args.profile)
+        got, est, session = _acquire(profile, truth, programme, args)
+        if log.problem:
+            print(f"session log: {log.problem}")
     decoded = session.reader.stats().decoder
     totals = session.pipeline.observer_totals()
     print(
@@ -159,7 +132,7 @@ def run(args: argparse.Namespace) -> int:
     )
     write_truth_csv(truth, out_dir / "truth.csv")
     write_text_atomic(out_dir / "summary.txt", table + "\n")
-    written = ["estimates.csv", "truth.csv", "summary.txt"]
+    written = ["estimates.csv", "truth.csv", "summary.txt", "session.log"]
     if not args.no_plot:
         from ui.plots import RunTraces, render_run_png
 
@@ -187,6 +160,55 @@ def run(args: argparse.Namespace) -> int:
 
         open_dashboard(profile, profile_path=args.profile or "")
     return 0
+
+
+def _acquire(profile: Any, truth: Any, programme: Any, args: argparse.Namespace) -> tuple:
+    """Run the simulated cell on a pseudo-terminal and read it through a live session;
+    returns the samples, the estimates and the (closed) session."""
+    from daq.samples import concat_blocks
+    from daq.simulator import PtyCell
+    from estimator.observer import concat_estimates
+    from ui.session import LiveSession
+
+    samples, estimates = [], []
+    live = _StatusLine(profile)
+    # The same path as `forcelens live` and the dashboard: serial reader, decoder of the
+    # profile's framing, estimation pipeline with the settling monitor and the alarms.
+    framing = profile.acquisition.framing
+    with PtyCell(truth, speed=args.speed, framing=framing) as pty:  # the port exists
+        print(f"simulated cell on {pty.port_name}; connecting through pyserial")
+        session = LiveSession(profile, pty.port_name).start()
+        ended = "stopped before the demo programme ended"
+        try:
+            deadline = time.monotonic() + programme.duration_s / args.speed + 15.0
+            # Open the port before the cell starts sending: opening discards what
+            # arrived before, as with a real device.
+            while not session.connected_once and time.monotonic() < deadline:
+                session.poll()
+                time.sleep(0.01)
+            pty.start()
+            quiet_since = None
+            while time.monotonic() < deadline:
+                got = session.poll()
+                if got.samples.size:
+                    quiet_since = None
+                    samples.append(got.samples)
+                    estimates.append(got.estimates)
+                    live.maybe_show(got.estimates, session)
+                elif pty.finished:
+                    quiet_since = quiet_since or time.monotonic()
+                    if time.monotonic() - quiet_since > 0.3:
+                        break
+                time.sleep(0.02)
+            ended = "the demo programme ended"
+        finally:
+            session.close(reason=ended)
+        live.finish()
+        if pty.error is not None:
+            raise OSError(f"simulated cell stopped: {pty.error}")
+    got = concat_blocks(samples)
+    est = concat_estimates(estimates)
+    return got, est, session
 
 
 def display_available() -> bool:
