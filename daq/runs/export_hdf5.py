@@ -5,8 +5,9 @@ The file holds one dataset per field of the stream at the root, named as the fie
 attribute ``unit`` (``'m'``, ``'s'``, ``'1'`` for a pure number); the root's attributes
 hold the facts of `daq.runs.export.export_metadata` (run id, start, cell, software and
 library versions, closed, stream), the run's cell profile (``profile_toml``) and
-``format = 'forcelens-export'``. Datasets are written in chunks, so a long run never
-needs a second copy in memory. In MATLAB: ``h5read('x.h5', '/displacement_m')`` and
+``format = 'forcelens-export'``. The stream is read and written a block of records at a
+time (`daq.runs.blocks`), so a run of any length is exported in bounded memory. In
+MATLAB: ``h5read('x.h5', '/displacement_m')`` and
 ``h5readatt('x.h5', '/displacement_m', 'unit')``.
 """
 
@@ -14,9 +15,8 @@ from __future__ import annotations
 
 import os
 
-import numpy as np
-
 from daq.errors import SourceError
+from daq.runs.blocks import iter_stream_blocks
 from daq.runs.export import export_metadata, stream_of
 from daq.runs.reader import RunData
 
@@ -24,7 +24,6 @@ __all__ = ["HDF5_FORMAT", "export_run_hdf5"]
 
 #: Value of the root attribute ``format``.
 HDF5_FORMAT = "forcelens-export"
-_CHUNK_ROWS = 1 << 20
 
 
 def export_run_hdf5(run: RunData, path: str | os.PathLike[str], *, stream: str = "samples") -> int:
@@ -44,13 +43,17 @@ def export_run_hdf5(run: RunData, path: str | os.PathLike[str], *, stream: str =
             for key, value in export_metadata(run, stream).items():
                 f.attrs[key] = value
             f.attrs["profile_toml"] = run.description["profile_toml"]
-            for name in data.dtype.names or ():
-                dtype = data.dtype[name]
-                ds = f.create_dataset(name, shape=(n,), dtype=dtype)
-                ds.attrs["unit"] = units[name]
-                for start in range(0, n, _CHUNK_ROWS):
-                    stop = min(n, start + _CHUNK_ROWS)
-                    ds[start:stop] = np.asarray(data[name][start:stop])
+            names = data.dtype.names or ()
+            datasets = {}
+            for name in names:
+                datasets[name] = f.create_dataset(name, shape=(n,), dtype=data.dtype[name])
+                datasets[name].attrs["unit"] = units[name]
+            start = 0
+            for block in iter_stream_blocks(run, stream):
+                stop = start + block.size
+                for name in names:
+                    datasets[name][start:stop] = block[name]
+                start = stop
     except OSError as exc:
         raise SourceError(f"{path}: cannot write the HDF5 file ({exc})") from exc
     return n

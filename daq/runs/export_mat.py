@@ -17,6 +17,7 @@ from collections.abc import Iterator
 import numpy as np
 
 from daq.errors import SourceError
+from daq.runs.blocks import iter_stream_blocks
 from daq.runs.export import export_metadata, stream_of
 from daq.runs.reader import RunData
 
@@ -40,7 +41,7 @@ def export_run_mat(run: RunData, path: str | os.PathLike[str], *, stream: str = 
     names = list(data.dtype.names or ())
     meta: dict[str, object] = dict(export_metadata(run, stream))
     meta["profile_toml"] = run.description["profile_toml"]
-    variables = _OneAtATime(data, names, {UNITS_VARIABLE: {n: units[n] for n in names},
+    variables = _OneAtATime(run, stream, {UNITS_VARIABLE: {n: units[n] for n in names},
                                           RUN_VARIABLE: meta})  # fmt: skip
     try:
         scipy.io.savemat(
@@ -58,16 +59,23 @@ def export_run_mat(run: RunData, path: str | os.PathLike[str], *, stream: str = 
 
 
 class _OneAtATime:
-    """The variables for ``savemat``, each field's column copied out of the (memory-mapped)
-    stream only when it is written: ``savemat`` takes any object whose ``items()`` gives
-    (name, value) pairs and writes them in turn, so one column (80 MB at 10 M records of
-    doubles), not the whole stream, is in memory at a time.
+    """The variables for ``savemat``, each field's column read from the stream file (a
+    block of records at a time, `daq.runs.blocks`) only when it is written: ``savemat``
+    takes any object whose ``items()`` gives (name, value) pairs and writes them in turn,
+    so one column (80 MB at 10 M records of doubles), not the whole stream, is in memory
+    at a time. The file is read once per field, from the page cache after the first.
     """
 
-    def __init__(self, data: np.ndarray, names: list[str], tail: dict[str, object]) -> None:
-        self._data, self._names, self._tail = data, names, tail
+    def __init__(self, run: RunData, stream: str, tail: dict[str, object]) -> None:
+        self._run, self._stream, self._tail = run, stream, tail
 
     def items(self) -> Iterator[tuple[str, object]]:
-        for name in self._names:
-            yield name, np.ascontiguousarray(self._data[name])
+        data = self._run.streams[self._stream]
+        for name in data.dtype.names or ():
+            column = np.empty(data.shape[0], dtype=data.dtype[name])
+            start = 0
+            for block in iter_stream_blocks(self._run, self._stream):
+                column[start : start + block.size] = block[name]
+                start += block.size
+            yield name, column
         yield from self._tail.items()

@@ -29,7 +29,7 @@ file, print beside them as ratios:
 It asserts nothing: these machines are shared and noisy.
 
     .venv/bin/python tests/benchmarks/bench_big_records.py [--rows N] [--repeat R]
-        [--only reader|pipeline] [--source DIR] [--tmp DIR]
+        [--only reader|pipeline|export] [--source DIR] [--tmp DIR]
 
 ``--source`` runs forcelens from another tree (``git archive HEAD | tar -x -C DIR``: a
 snapshot, so that edits in the working tree during the run change nothing).
@@ -221,7 +221,7 @@ def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     parser.add_argument("--rows", type=int, default=10_000_000)
     parser.add_argument("--repeat", type=int, default=3)
-    parser.add_argument("--only", choices=("reader", "pipeline"))
+    parser.add_argument("--only", choices=("reader", "pipeline", "export"))
     parser.add_argument("--source", type=Path, default=ROOT, help="tree to run forcelens from")
     parser.add_argument("--tmp", type=Path, help="folder for the invented files (default: temp)")
     args = parser.parse_args()
@@ -238,7 +238,7 @@ def main() -> None:
         # Numba compiles the observer's kernel once and caches it beside the source; a
         # process that compiles holds ~200 MB more. Warm the cache first (not measured).
         measure(["-c", _WARM_UP], source)
-        if args.only != "pipeline":
+        if args.only not in ("pipeline", "export"):
             print("CSV reader:")
             got = {}
             for name, code in (
@@ -281,6 +281,8 @@ def main() -> None:
             ("export RUN --format hdf5",
              [*cli, "export", str(folder), "--out", str(tmp / "run.h5"), "--force"]),
         ):  # fmt: skip
+            if args.only == "export" and not name.startswith(("observer", "export")):
+                continue
             got[name] = repeated(argv, source, r)
             show(name, got[name], n)
         base = got["observer alone, in memory (base)"]
