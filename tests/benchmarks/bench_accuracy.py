@@ -62,7 +62,7 @@ from collections.abc import Sequence
 from pathlib import Path
 
 from accuracy import ours
-from accuracy.cells import CELLS
+from accuracy.cells import CELLS, OTHER_CELLS
 from accuracy.loads import SHAPES, SMOOTH_SHAPES
 from accuracy.models import integrated_random_walk_model, random_walk_model
 from accuracy.records import START_UP_S, Record, build_records, wanted
@@ -361,7 +361,8 @@ def parse_args(argv: Sequence[str] | None) -> argparse.Namespace:
         default=[],
         metavar="SHAPE/CELL",
         help=f"keep matching records; SHAPE in {', '.join(SHAPES)}, CELL in "
-        f"{', '.join(c.name for c in CELLS)}; either part may be empty or '*'; repeatable",
+        f"{', '.join(c.name for c in CELLS + OTHER_CELLS)}; either part may be empty or '*'; "
+        "repeatable",
     )
     p.add_argument(
         "--seed",
@@ -370,6 +371,13 @@ def parse_args(argv: Sequence[str] | None) -> argparse.Namespace:
         metavar="N[,N...]",
         help="base seed, or several separated by commas: one summary over the records of "
         "every seed, the targets met (or not) by all of them (default 2024)",
+    )
+    p.add_argument(
+        "--cells",
+        choices=("tuned", "other", "all"),
+        default="tuned",
+        help="the three cells the observer's defaults were tuned on (default), three other "
+        "invented cells it never saw (crisp, floaty, critical), or all six",
     )
     p.add_argument("--csv", type=Path, metavar="OUT", help="write the per-record table here")
     return p.parse_args(argv)
@@ -386,7 +394,8 @@ def main(argv: Sequence[str] | None = None) -> int:
     # tree with an editable install, otherwise the copy made when the package was installed.
     spec = importlib.util.find_spec("estimator")
     print(f"  observer code from {Path(spec.origin).parent if spec and spec.origin else '?'}")
-    for cell in CELLS:
+    cells = {"tuned": CELLS, "other": OTHER_CELLS, "all": CELLS + OTHER_CELLS}[args.cells]
+    for cell in cells:
         if any(wanted(args.only, cell.name, s) for s in SHAPES):
             print("  " + cell.describe())
     print(
@@ -397,7 +406,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     records: list[Record] = []
     truth_s = 0.0
     for seed in args.seed:
-        some, secs = build_records(seed, duration, args.only, variants=variants)
+        some, secs = build_records(seed, duration, args.only, cells, variants)
         records += some
         truth_s += secs
     if not records:

@@ -123,3 +123,42 @@ CELLS: tuple[Cell, ...] = (
         force_range_n=100.0,
     ),
 )
+
+
+#: Three more invented cells, unlike the three above, to check that the observer's
+#: defaults carry over to cells it was not tuned on (``bench_accuracy.py --cells other``).
+OTHER_CELLS: tuple[Cell, ...] = (
+    Cell(
+        name="crisp",
+        regime="very stiff, moderately damped",
+        natural_freq_hz=800.0,
+        damping_ratio=0.3,
+        stiffness_n_per_m=5.0e6,
+        sample_rate_hz=5_000.0,
+        noise_m=20e-9,
+        resolution_m=5e-9,
+        force_range_n=2000.0,
+    ),
+    Cell(
+        name="floaty",
+        regime="very lightly damped, soft",
+        natural_freq_hz=40.0,
+        damping_ratio=0.01,
+        stiffness_n_per_m=5.0e3,
+        sample_rate_hz=2_000.0,
+        noise_m=200e-9,
+        resolution_m=50e-9,
+        force_range_n=20.0,
+    ),
+    Cell(
+        name="critical",
+        regime="critically damped",
+        natural_freq_hz=250.0,
+        damping_ratio=1.0,
+        stiffness_n_per_m=3.0e5,
+        sample_rate_hz=4_000.0,
+        noise_m=30e-9,
+        resolution_m=10e-9,
+        force_range_n=300.0,
+    ),
+)
