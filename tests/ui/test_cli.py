@@ -111,6 +111,9 @@ def test_demo_end_to_end(tmp_path: Path, capsys, monkeypatch) -> None:
     log = (out / "session.log").read_text(encoding="utf-8")
     assert "command: forcelens demo" in log and "source: the built-in simulated cell" in log
     assert "connected: " in log and "samples 10200, samples_lost 0" in log
+    # a demo run again over the same folder replaces the log, not appends to it
+    assert main(["demo", "--out", str(out), "--speed", "5", "--force", "--no-plot"]) == 0
+    assert (out / "session.log").read_text(encoding="utf-8").count("command: ") == 1
     # Every load step: observer within 2 % of the step of the applied force, and faster
     # to settle than k·x by at least 3 times (the requirement).
     rows = [line.split() for line in (out / "summary.txt").read_text().splitlines()[3:8]]

@@ -103,7 +103,9 @@ def run(args: argparse.Namespace) -> int:
         f"{programme.duration_s:.1f} s of load steps."
     )
     k = pl.stiffness_n_per_m
-    # the session's log beside the outputs, as `live` logs into its run folder
+    # the session's log beside the outputs, as `live` logs into its run folder (a log
+    # appends: the one of an earlier demo, which claim_folder let us replace, goes first)
+    (out_dir / "session.log").unlink(missing_ok=True)
     with SessionLog("demo", run_folder=out_dir) as log:
         command = "forcelens " + shlex.join(getattr(args, "argv", None) or ["demo"])
         log_start(command, "the built-in simulated cell (invented data)", profile, args.profile)
