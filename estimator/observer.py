@@ -14,7 +14,9 @@ transducer's white-noise variance plus the quantisation variance ``LSB²/12``.
 
 The reported force is the mean of the mixture of models and ``force_u_n`` its standard
 deviation: it contains each model's covariance *and the spread between the models*, so
-the lag of a prior that no longer fits shows as uncertainty. Models whose probability
+the lag of a prior that no longer fits shows as uncertainty, and, when one smooth-load
+model leads, how far the next faster one differs from it (the lag of the leading prior;
+docs/method-observer.md, section 7). Models whose probability
 is below ``ObserverTuning.prune`` are left out of that mixture and pass nothing on to
 the others (a standard reduction of Gaussian mixtures; with ``prune = 0`` the estimator
 is the textbook IMM).
