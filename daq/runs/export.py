@@ -74,8 +74,8 @@ def export_run_csv(
     The file is in forcelens's CSV dialect (docs/csv-files.md): ``# forcelens run ID``
     and ``# key: value`` lines from `export_metadata`, then a header with one column
     per field named by :func:`csv_column_name`, then one row per record. Floats are
-    written with :func:`repr`, so ``float(text)`` gives back the exact stored value
-    (``nan``, ``inf`` included). The file is written to a temporary name and renamed.
+    written as the shortest text that reads back exactly, so ``float(text)`` gives back the
+    stored value (``nan``, ``inf`` included). The file is written to a temporary name and renamed.
     The stream is read and written a block at a time (`daq.runs.blocks`): memory stays
     bounded for a run of any length (``block_rows`` records at a time); the text is the
     same, byte for byte, whatever the block size.

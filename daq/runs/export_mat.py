@@ -41,8 +41,8 @@ def export_run_mat(run: RunData, path: str | os.PathLike[str], *, stream: str = 
     names = list(data.dtype.names or ())
     meta: dict[str, object] = dict(export_metadata(run, stream))
     meta["profile_toml"] = run.description["profile_toml"]
-    variables = _OneAtATime(run, stream, {UNITS_VARIABLE: {n: units[n] for n in names},
-                                          RUN_VARIABLE: meta})  # fmt: skip
+    tail: dict[str, object] = {UNITS_VARIABLE: {n: units[n] for n in names}, RUN_VARIABLE: meta}
+    variables = _OneAtATime(run, stream, tail)
     try:
         scipy.io.savemat(
             os.fspath(path),
