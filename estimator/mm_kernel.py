@@ -23,8 +23,9 @@ probable model, or that would make the jump model the more probable half on its 
 noisy sample can do that), is held as *suspect*: two branches are kept, "used" (the IMM step above)
 and "outlier" (prediction only). The next sample runs the IMM step from both, and the
 branches are weighed by everything they predicted — prior probability ``ε`` of an
-outlier, the density of the suspect sample under each hypothesis (an outlier is spread
-with standard deviation ``outlier_sd``), the density of the next sample — and merged
+outlier, the density of the suspect sample under each hypothesis (`_outlier_log_density`:
+an outlier is spread about the prediction with scale ``outlier_sd``, Gaussian in its core
+with a Cauchy share ``outlier_tail``), the density of the next sample — and merged
 per model by moment matching. An isolated outlier is thus rejected, and a load change
 loses none of its samples. The row of a suspect sample shows both branches merged with
 the weights known then; its flag says so.
@@ -59,6 +60,7 @@ FLAG_OUT_SUSPECT = 2  #: innovation beyond the gate: held until the next sample 
 FLAG_OUT_REJECTED_BEFORE = 4  #: the previous (suspect) sample was judged an outlier
 
 _LOG_2PI = math.log(2.0 * math.pi)
+_LOG_PI = math.log(math.pi)
 _SHOW_USED = 0.5  # a suspect row shows the sample used only at these odds or better
 _DECIDED = 0.05  # two-sample odds of a suspect beyond which the decision is hard
 _LOWEST_LOG_DENSITY = -1e300  # of a sample no model gives any density
@@ -247,6 +249,23 @@ def _logaddexp(a, b):
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
+def _outlier_log_density(y, s2, tail):
+    """Log density of an outlier's innovation ``y``: ``(1 − tail)·N(y; 0, s2)`` plus
+    ``tail`` times a Cauchy density of scale ``√s2``.
+
+    The Gaussian core sets the odds against a load change for innovations of a few ``√s2``;
+    the Cauchy share keeps a density for a spike of any size. Without it a spike of
+    thousands of noise σ had none (``e^(−y²/2s2)`` underflows), and two load jumps, out and
+    back, explained it better: it was never rejected and moved the estimate by the span.
+    """
+    q = y * y / s2
+    core = math.log1p(-tail) - 0.5 * (_LOG_2PI + math.log(s2) + q)
+    if tail <= 0.0:
+        return core
+    return _logaddexp(core, math.log(tail) - _LOG_PI - 0.5 * math.log(s2) - math.log1p(q))
+
+
+@numba.njit(cache=True, nogil=True, inline="always")
 def _resolve(la, lb, pend, floor, x, P, PD, mu):
     """Decide the pending suspect from the log weights of its branches ("used", "an
     outlier"); merge them into branch 0; True when it was judged an outlier."""
@@ -379,6 +398,7 @@ def imm_block(
     gate2: float,  # squared gate for a suspect sample
     outlier_prob: float,  # prior probability ε that a sample is an outlier
     outlier_sd: float,  # spread of an outlier about the prediction (scaled units)
+    outlier_tail: float,  # share of the outliers' Cauchy tail, in [0, 1)
     prune: np.ndarray,  # (r,) a model less probable than its entry passes nothing on
     #                     and is not shown
     tail: float,  # the least probable models, up to this total, are not shown either
@@ -502,7 +522,7 @@ def imm_block(
                                 PDb[j, a, b] = PDa[j, a, b]
                     so2 = outlier_sd * outlier_sd + smix
                     yo = zk - zhat
-                    pend[2] = -0.5 * (_LOG_2PI + math.log(so2) + yo * yo / so2)
+                    pend[2] = _outlier_log_density(yo, so2, outlier_tail)
                     pend[1] = _apply(zk, R, floor, xa, Pa, PDa, mua, lj, lmax, total, d, T)
                     pend[0] = 1.0
                     flag |= FLAG_OUT_SUSPECT

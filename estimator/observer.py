@@ -118,8 +118,13 @@ class ObserverTuning:
         gate_sigma: innovation (in standard deviations of the most probable model)
             beyond which a sample is held as a possible outlier until the next sample.
         outlier_probability: prior probability that a sample is an outlier.
-        outlier_spread: spread of an outlier about the prediction, in standard
+        outlier_spread: spread (scale) of an outlier about the prediction, in standard
             deviations of the measurement noise.
+        outlier_tail: share of the outliers drawn from a Cauchy distribution of the same
+            scale (the rest Gaussian), so that a spike of any size keeps a density and is
+            rejected once the next sample is in. With a Gaussian alone a spike beyond
+            about ten times the spread had none, and two load jumps, out and back,
+            explained it better.
         prune: models less probable than this pass nothing on and are left out of the
             reported mixture (0: the textbook IMM).
         jump_prune: the same for the jump model. Its one-sample signature at high
@@ -154,7 +159,8 @@ class ObserverTuning:
     process_noise_n2_per_s: float | None = None
     gate_sigma: float = 5.0
     outlier_probability: float = 1e-3
-    outlier_spread: float = 100.0
+    outlier_spread: float = 50.0
+    outlier_tail: float = 0.1
     rate_scale: float = 1.0
     prune: float = 1e-2
     jump_prune: float = 0.05
@@ -172,6 +178,8 @@ class ObserverTuning:
         _positive("gate_sigma", self.gate_sigma)
         _positive("rate_scale", self.rate_scale)
         _positive("outlier_spread", self.outlier_spread)
+        if not (0.0 <= self.outlier_tail < 1.0):
+            raise ParameterError(f"outlier_tail = {self.outlier_tail!r}: must be in [0, 1)")
         if not (0.0 < self.outlier_probability < 0.5):
             raise ParameterError(
                 f"outlier_probability = {self.outlier_probability!r}: must be in (0, 0.5)"
@@ -462,6 +470,7 @@ class ForceObserver:
             tun.gate_sigma**2,
             tun.outlier_probability,
             tun.outlier_spread * k * math.sqrt(self.R),
+            tun.outlier_tail,
             self._prune,
             tun.shown_tail,
             self.models.regular if self.models.count > self.models.regular else -1,
