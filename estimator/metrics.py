@@ -28,8 +28,9 @@ from __future__ import annotations
 
 import itertools
 import math
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
+from functools import partial
 
 import numpy as np
 import scipy.ndimage
@@ -490,11 +491,16 @@ def _noise_sigma(y: np.ndarray, smooth: np.ndarray) -> float:
     return _MAD_TO_SIGMA * float(np.median(np.abs(y - smooth)))
 
 
-def _drop_small(y: np.ndarray, idx: list[int], min_step_n: float) -> list[int]:
-    """Drop the weakest boundary until every hold differs from the next by >= min_step_n."""
+def _drop_small(
+    hold_levels: Callable[[list[int]], list[float]], idx: list[int], min_step_n: float
+) -> list[int]:
+    """Drop the weakest boundary until every hold differs from the next by >= min_step_n.
+
+    ``hold_levels(bounds)`` gives the level of each hold between the bounds (`_hold_levels`).
+    """
     idx = list(idx)
     while idx:
-        lv = _hold_levels(y, idx)
+        lv = hold_levels(idx)
         steps = np.abs(np.diff(lv))
         weakest = int(np.argmin(steps))
         if steps[weakest] >= min_step_n:
@@ -587,7 +593,7 @@ def detect_changes(
     strength[:width] = 0.0
     strength[y.size - width :] = 0.0
     peaks, _ = scipy.signal.find_peaks(strength, height=0.5 * step, distance=2 * half)
-    idx = _drop_small(y, [int(p) for p in peaks], step)
+    idx = _drop_small(partial(_hold_levels, y), [int(p) for p in peaks], step)
 
     # Place each start, then re-check the holds between the refined starts.
     starts: list[int] = []
@@ -602,7 +608,7 @@ def detect_changes(
         if merged and t[s] - t[merged[-1]] < min_hold_s:
             continue  # closer than the hold: part of the previous change
         merged.append(s)
-    merged = _drop_small(y, merged, step)
+    merged = _drop_small(partial(_hold_levels, y), merged, step)
     lv = _hold_levels(y, merged)
     return [
         Change(
