@@ -371,6 +371,8 @@ class _Events:
     torn_bytes: int
     #: the event naming the highest sample index (kept or not), for the loss check
     furthest: dict[str, Any] | None
+    #: how many events of each kind (kept or not)
+    kinds: dict[str, int]
 
 
 def _read_events(path: Path, kinds: Collection[str] | None = None) -> _Events:
@@ -379,6 +381,7 @@ def _read_events(path: Path, kinds: Collection[str] | None = None) -> _Events:
     checked_file(path, path.parent, "event log", MAX_EVENTS_BYTES)
     kept: list[dict[str, Any]] = []
     furthest: dict[str, Any] | None = None
+    counts: dict[str, int] = {}
     number, tail = 0, b""
     try:
         with open(path, "rb") as handle:
@@ -392,11 +395,13 @@ def _read_events(path: Path, kinds: Collection[str] | None = None) -> _Events:
                 whole = isinstance(index, int) and not isinstance(index, bool)
                 if whole and (furthest is None or index > furthest["index"]):
                     furthest = event
-                if kinds is None or event["kind"] in kinds:
+                kind = str(event["kind"])
+                counts[kind] = counts.get(kind, 0) + 1
+                if kinds is None or kind in kinds:
                     kept.append(event)
     except OSError as exc:
         raise RunFormatError(f"{path}: cannot read ({exc.strerror or exc})") from None
-    return _Events(kept, number, bool(tail), len(tail), furthest)
+    return _Events(kept, number, bool(tail), len(tail), furthest, counts)
 
 
 def _event(path: Path, number: int, line: bytes) -> dict[str, Any]:

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import os
 from dataclasses import dataclass
+from pathlib import Path
 
 import numpy as np
 
@@ -18,6 +19,8 @@ from daq.runs.reader import (
     read_run_info,
 )
 from daq.samples import FLAG_GAP_BEFORE, FLAG_RECONNECT_BEFORE
+
+_BLOCK = 65_536  # sample records read at a time
 
 
 @dataclass(frozen=True)
@@ -49,29 +52,45 @@ class VerifyReport:
         return "\n".join(lines)
 
 
-def _sequence_findings(seq: np.ndarray, flags: np.ndarray) -> tuple[list[str], list[str]]:
-    """Problems and notes about sample sequence numbers; arrays of shape (n,)."""
+def _sequence_findings(path: Path, dtype: np.dtype, n: int) -> tuple[list[str], list[str]]:
+    """Problems and notes about the sample sequence numbers and flags of the first ``n``
+    records of ``path``, read a block at a time."""
     problems: list[str] = []
     notes: list[str] = []
-    if seq.size < 2:
-        return problems, notes
-    step = np.diff(seq)
-    flagged = (flags[1:] & FLAG_GAP_BEFORE) != 0
-    odd = step != 1
-    unflagged = np.flatnonzero(odd & ~flagged)
-    if unflagged.size:
-        i = int(unflagged[0]) + 1
+    unflagged = gaps = lost = restarts = reconnects = 0
+    first: tuple[int, int, int] | None = None  # record, seq before, seq
+    prev_seq: np.ndarray = np.zeros(0, np.int64)
+    with open(path, "rb") as handle:
+        for start in range(0, n, _BLOCK):
+            block = np.fromfile(handle, dtype=dtype, count=min(_BLOCK, n - start))
+            flags = block["flags"]
+            reconnects += int(np.count_nonzero(flags & FLAG_RECONNECT_BEFORE))
+            seq = np.concatenate([prev_seq, block["seq"]])
+            step = np.diff(seq)
+            flagged = (flags[block.size - step.size :] & FLAG_GAP_BEFORE) != 0
+            odd = step != 1
+            bad = np.flatnonzero(odd & ~flagged)
+            if bad.size and first is None:
+                i = int(bad[0]) + 1
+                first = (start - prev_seq.size + i, int(seq[i - 1]), int(seq[i]))
+            unflagged += int(bad.size)
+            gap = odd & flagged & (step > 1)
+            gaps += int(np.count_nonzero(gap))
+            lost += int(np.sum(step[gap] - 1))
+            restarts += int(np.count_nonzero(odd & flagged & (step <= 0)))
+            prev_seq = seq[-1:]
+    if first is not None:
+        i, before, after = first
         problems.append(
-            f"samples: {unflagged.size} unflagged break(s) in seq, first at record {i} "
-            f"(seq {int(seq[i - 1])} -> {int(seq[i])}) without FLAG_GAP_BEFORE"
+            f"samples: {unflagged} unflagged break(s) in seq, first at record {i} "
+            f"(seq {before} -> {after}) without FLAG_GAP_BEFORE"
         )
-    gaps = odd & flagged & (step > 1)
-    if gaps.any():
-        lost = int(np.sum(step[gaps] - 1))
-        notes.append(f"samples: {int(gaps.sum())} flagged gap(s), {lost} sample(s) lost in them")
-    restarts = odd & flagged & (step <= 0)
-    if restarts.any():
-        notes.append(f"samples: seq restarted {int(restarts.sum())} time(s) (flagged)")
+    if gaps:
+        notes.append(f"samples: {gaps} flagged gap(s), {lost} sample(s) lost in them")
+    if restarts:
+        notes.append(f"samples: seq restarted {restarts} time(s) (flagged)")
+    if reconnects:
+        notes.append(f"samples: {reconnects} reconnection(s) flagged")
     return problems, notes
 
 
@@ -93,16 +112,15 @@ def verify_run(folder: str | os.PathLike[str]) -> VerifyReport:
     notes: list[str] = []
     event_lines: int | None = None
     try:
-        log = _read_events(info.folder / EVENTS_FILE)
+        # the events themselves only for the loss check of an unclosed run
+        log = _read_events(info.folder / EVENTS_FILE, None if info.closing is None else ())
         events, torn_line, torn_line_bytes = log.kept, log.torn, log.torn_bytes
         event_lines = log.lines
         if torn_line:
             problems.append(
                 f"{info.folder / EVENTS_FILE}: torn last line ({torn_line_bytes} bytes)"
             )
-        kinds: dict[str, int] = {}
-        for event in events:
-            kinds[str(event["kind"])] = kinds.get(str(event["kind"]), 0) + 1
+        kinds = log.kinds
         if kinds:
             notes.append("events: " + ", ".join(f"{k} {n}" for k, n in sorted(kinds.items())))
     except RunFormatError as exc:
@@ -116,18 +134,14 @@ def verify_run(folder: str | os.PathLike[str]) -> VerifyReport:
     for name, extra in info.torn_bytes.items():
         if extra:
             problems.append(f"{_stream_path(info, name)}: {extra} bytes of a torn last record")
-    samples = _load_stream(info, "samples", use_memmap=True)
     if info.closing is None and event_lines is not None:
         streams = {name: _load_stream(info, name, use_memmap=True) for name in info.dtypes}
         problems += lost_data_problems(str(info.folder), info.flush_interval_s, streams, events)
     seq_problems, seq_notes = _sequence_findings(
-        np.asarray(samples["seq"]), np.asarray(samples["flags"])
+        _stream_path(info, "samples"), info.dtypes["samples"], info.records["samples"]
     )
     problems += seq_problems
     notes += seq_notes
-    reconnects = int(np.count_nonzero(np.asarray(samples["flags"]) & FLAG_RECONNECT_BEFORE))
-    if reconnects:
-        notes.append(f"samples: {reconnects} reconnection(s) flagged")
     if os.path.lexists(info.folder / LOG_FILE):  # not opened: it may be anything
         notes.append(f"{LOG_FILE}: the session's log, outside the seal (not checked)")
     return VerifyReport(

@@ -32,7 +32,7 @@ from daq.runs import (
     read_run,
     verify_run,
 )
-from daq.samples import FLAG_GAP_BEFORE, SAMPLE_DTYPE, empty_block
+from daq.samples import FLAG_GAP_BEFORE, FLAG_RECONNECT_BEFORE, SAMPLE_DTYPE, empty_block
 
 REPO = Path(__file__).resolve().parents[2]
 CRASH_WRITER = Path(__file__).with_name("crash_writer.py")
@@ -429,6 +429,31 @@ def test_verify_reports_unflagged_seq_breaks(tmp_path: Path) -> None:
     assert any("seq 2 -> 5" in p for p in report.problems)
     assert any("aborted" in n for n in report.notes)
     assert read_run(folder).closing["summary"] == {"lost": 3}
+
+
+@pytest.mark.parametrize("block", [1, 2, 3, 4, 100])
+def test_verify_reads_the_samples_in_blocks_with_the_same_findings(
+    tmp_path: Path, block: int, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    """Gaps, restarts, breaks and reconnections across block boundaries count once each,
+    at the right record (hand-made sequence: the expected counts by inspection)."""
+    import daq.runs.verify as verify
+
+    monkeypatch.setattr(verify, "_BLOCK", block)
+    g, r = FLAG_GAP_BEFORE, FLAG_RECONNECT_BEFORE
+    seq = [0, 1, 2, 5, 6, 0, 1, 4, 5, 9, 10]
+    flags = [0, 0, 0, g, r, g, 0, 0, 0, g | r, 0]
+    _run_with_seq(tmp_path / "run", seq, flags)
+    report = verify_run(tmp_path / "run")
+    assert report.problems == [
+        "samples: 1 unflagged break(s) in seq, first at record 7 (seq 1 -> 4) without "
+        "FLAG_GAP_BEFORE"
+    ]
+    assert report.notes[-3:] == [
+        "samples: 2 flagged gap(s), 5 sample(s) lost in them",
+        "samples: seq restarted 1 time(s) (flagged)",
+        "samples: 2 reconnection(s) flagged",
+    ]
 
 
 # --------------------------------------------------------------------------- writer rules
