@@ -15,7 +15,6 @@ altered) has no label of its own.
 
 from __future__ import annotations
 
-import json
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -111,10 +110,13 @@ def audit_run(
             message names the problem), or ``report`` names a folder without
             ``figures.json``.
     """
+    import numpy as np
+
     from daq.runs import verify_run
     from ui.commands.report import default_report_folder
     from ui.figures import compute_figures, replay_run
-    from ui.pipeline import ESTIMATE_STREAM
+    from ui.figures_file import read_figures
+    from ui.transitions import comparable, first_difference, logged_transitions
     from ui.version import library_changes, platform_changes, software_version
 
     folder = Path(folder)
@@ -126,12 +128,17 @@ def audit_run(
     if not verified.closed:
         notes.append("note: the run was not closed; only what was flushed can be checked")
     try:
-        replayed = replay_run(folder, profile=profile, check_hash=False)
+        replayed = replay_run(folder, profile=profile, check_hash=False, compare_live=True)
     except ValueError as exc:
         if not found.items:
             raise
         found.add(f"the run cannot be replayed: {exc}", "see the differences above", None)
         return AuditResult(str(folder), None, tuple(found.items), tuple(notes), "")
+    try:  # the rest needs no more than the figures, the comparison and the transitions
+        figures = compute_figures(replayed)
+        again = comparable(replayed.events)
+    finally:
+        replayed.close()
     version = replayed.data.description["software_version"]
     newer = version != software_version()
     if profile is not None and not replayed.own_profile:
@@ -166,54 +173,49 @@ def audit_run(
         label = "other library" if libraries else "other platform"
         likely = (f"{likely[0]}; also {said}", likely[1]) if newer else (said, label)
     explained = newer and replayed.own_profile and not problems
-    live = replayed.data.streams.get(ESTIMATE_STREAM)
+    live = replayed.live
+    n = live.compared if live is not None else 0
     if live is not None:
-        n = min(live.size, replayed.estimates.size)
-        a = live[:n].view("u1").reshape(n, -1)
-        b = replayed.estimates[:n].view("u1").reshape(n, -1)
-        bad = (a != b).any(axis=1)
-        if crashed and not bad.any():
+        if crashed and live.identical:
             notes.append(
                 f"note: data intact up to the last flush: {n} samples replay bit for bit "
-                f"({live.size} live estimates on disk)"
+                f"({live.live_rows} live estimates on disk)"
             )
-        elif bad.any() or live.size != replayed.estimates.size:
-            first = int(bad.argmax()) if bad.any() else n
+        elif not live.identical or live.live_rows != replayed.rows:
+            first = live.first_difference if live.first_difference is not None else n
             found.add(
-                f"replayed estimates differ from those computed live: {int(bad.sum())} of "
+                f"replayed estimates differ from those computed live: {live.differing} of "
                 f"{n} samples, first at sample {first}"
                 + (
-                    f"; {live.size} live against {replayed.estimates.size} replayed"
-                    if live.size != replayed.estimates.size
+                    f"; {live.live_rows} live against {replayed.rows} replayed"
+                    if live.live_rows != replayed.rows
                     else ""
                 ),
                 *likely,
                 explained=explained,
             )
-    logged = _strip([e for e in replayed.data.events if e["kind"] in ("settling", "alarm")])
-    again = _strip([_as_logged(e) for e in replayed.events])
+    logged = comparable(logged_transitions(folder, ("settling", "alarm")))
     if crashed:  # what was logged after the last flushed sample cannot be recomputed
-        after = [e for e in logged if e.get("index", -1) >= n_samples]
-        logged = [e for e in logged if e.get("index", -1) < n_samples]
-        again = [e for e in again if e.get("index", -1) < n_samples]
-        if after:
+        after = logged[logged["index"] >= n_samples]
+        logged = logged[logged["index"] < n_samples]
+        again = again[again["index"] < n_samples]
+        if after.size:
             notes.append(
                 f"note: {len(after)} transition(s) logged after the last flushed sample "
                 "cannot be checked"
             )
-    if logged != again:
+    if not np.array_equal(logged, again):
         found.add(
             f"settling and alarm transitions differ from those logged live "
             f"({len(logged)} logged, {len(again)} recomputed; first difference at "
-            f"transition {_first_difference(logged, again)})",
+            f"transition {first_difference(logged, again)})",
             *likely,
             explained=explained,
         )
-    figures = compute_figures(replayed)
     report_folder = Path(report) if report else default_report_folder(folder)
     stored_path = report_folder / "figures.json"
     if stored_path.exists():
-        stored = json.loads(stored_path.read_text(encoding="utf-8"))
+        stored = read_figures(stored_path)
         _compare_figures(stored, figures, found, data_changed=bool(problems))
         notes.append(f"compared with the report in {report_folder}")
     elif report:
@@ -227,30 +229,6 @@ def audit_run(
         f"identical: run {figures['run_id']} reproduces exactly ({figures['samples']} "
         f"samples, estimates, settling states, alarms{what})",
     )
-
-
-def _as_logged(event: dict[str, Any]) -> dict[str, Any]:
-    """A recomputed event as the run writer stores it (JSON round trip, no host time)."""
-    return json.loads(json.dumps(event))
-
-
-def _strip(events: list[dict[str, Any]]) -> list[dict[str, Any]]:
-    """Transitions without their wall-clock stamps, in stream order.
-
-    A stall found live by a clock tick during the silence is logged before the
-    transitions of the next samples; a replay finds it with those samples. Both carry
-    the same stream position, so transitions are compared in the order of position,
-    then content.
-    """
-    kept = [{k: v for k, v in e.items() if k not in ("utc", "host_time_s")} for e in events]
-    return sorted(kept, key=lambda e: (e.get("index", -1), json.dumps(e, sort_keys=True)))
-
-
-def _first_difference(a: list[Any], b: list[Any]) -> int:
-    for i, (x, y) in enumerate(zip(a, b, strict=False)):
-        if x != y:
-            return i
-    return min(len(a), len(b))
 
 
 def _crash_symptom(problem: str) -> bool:
@@ -300,6 +278,10 @@ def _likely(
 def _compare_figures(
     stored: dict[str, Any], now: dict[str, Any], found: _Findings, *, data_changed: bool
 ) -> None:
+    import numpy as np
+
+    from ui.transitions import comparable
+
     causes = []
     if stored.get("samples_sha256") != now["samples_sha256"]:
         causes.append("the samples differ from those the report was made from")
@@ -322,10 +304,10 @@ def _compare_figures(
         label = "unexplained"
     for key in ("samples", "estimates_sha256", "changes", "uncertainty", "settling", "alarms"):
         if key in ("settling", "alarms"):
-            a, b = _strip(stored.get(key, [])), _strip(now[key])
+            same = np.array_equal(comparable(stored.get(key, [])), comparable(now[key]))
         else:
-            a, b = stored.get(key), now[key]
-        if a != b:
+            same = stored.get(key) == now[key]
+        if not same:
             found.add(
                 f"report figure '{key}' differs from the recomputed one",
                 cause,

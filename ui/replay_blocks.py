@@ -52,6 +52,7 @@ class LiveComparison:
         compared: how many rows have been compared (at most ``live_rows``).
         replayed: how many replayed rows were fed.
         first_difference: index of the first row whose bytes differ, or None.
+        differing: how many compared rows differ.
     """
 
     def __init__(self, run: RunData, stream: str, block_rows: int) -> None:
@@ -59,6 +60,7 @@ class LiveComparison:
         self.compared = 0
         self.replayed = 0
         self.first_difference: int | None = None
+        self.differing = 0
         self._blocks = iter_stream_blocks(run, stream, block_rows)
         self._pending = np.zeros(0, run.streams[stream].dtype)
 
@@ -69,15 +71,19 @@ class LiveComparison:
         if want <= 0:
             return
         live = self._take(want)
-        if self.first_difference is None:
-            mine = np.ascontiguousarray(estimates[:want])
-            if live.dtype != mine.dtype:
-                self.first_difference = self.compared
-            elif live.tobytes() != mine.tobytes():
-                rows_a = live.view(np.uint8).reshape(want, -1)
-                rows_b = mine.view(np.uint8).reshape(want, -1)
-                first = int(np.flatnonzero((rows_a != rows_b).any(axis=1))[0])
-                self.first_difference = self.compared + first
+        mine = np.ascontiguousarray(estimates[:want])
+        if live.dtype != mine.dtype:
+            bad = np.ones(want, dtype=bool)
+        elif live.tobytes() == mine.tobytes():
+            bad = np.zeros(0, dtype=bool)
+        else:
+            rows_a = live.view(np.uint8).reshape(want, -1)
+            rows_b = mine.view(np.uint8).reshape(want, -1)
+            bad = (rows_a != rows_b).any(axis=1)
+        if bad.any():
+            self.differing += int(np.count_nonzero(bad))
+            if self.first_difference is None:
+                self.first_difference = self.compared + int(np.argmax(bad))
         self.compared += want
 
     @property

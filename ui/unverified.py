@@ -32,7 +32,8 @@ def check_verifiable(folder: str | os.PathLike[str], allow: bool) -> list[str]:
     """
     from daq.runs import read_run
 
-    return refuse_unverifiable(folder, read_run(folder, check_hash=False).warnings, allow)
+    data = read_run(folder, check_hash=False, event_kinds=())  # the warnings only
+    return refuse_unverifiable(folder, data.warnings, allow)
 
 
 def refuse_unverifiable(

@@ -185,28 +185,32 @@ def assess_run(folder: str, *, corrected_toml: str, tolerance: Tolerance | None)
     Raises ValueError (``daq.errors.RunFormatError``) when the run cannot be read: a
     missing or torn file, a SHA-256 that does not match the closing record.
     """
-    import numpy as np
-
     from ui.figures import compute_figures, replay_run
-    from ui.pipeline import ESTIMATE_STREAM
     from ui.wiring import profile_from_text
 
     corrected = profile_from_text(corrected_toml, "the corrected profile")
-    old = replay_run(folder)  # the SHA-256 of every file is checked here
-    new = replay_run(folder, profile=corrected, check_hash=False)
-    old_fig, new_fig = compute_figures(old), compute_figures(new)
-    budget = _budget(old.profile)
-    notes = _notes(old, corrected)
-    live = old.data.streams.get(ESTIMATE_STREAM)
-    if live is not None and np.asarray(live).tobytes() != old.estimates.tobytes():
-        notes.append(
-            "the replay with the run's own profile differs from the estimates computed live "
-            f"(recorded with {old.data.description['software_version']}); old values are "
-            "the replay's"
+    old = replay_run(folder, compare_live=True)  # the SHA-256 of every file is checked here
+    try:
+        new = replay_run(folder, profile=corrected, check_hash=False)
+    except BaseException:
+        old.close()
+        raise
+    try:
+        old_fig, new_fig = compute_figures(old), compute_figures(new)
+        budget = _budget(old.profile)
+        notes = _notes(old, corrected)
+        if old.live is not None and (not old.live.identical or old.live.live_rows != old.rows):
+            notes.append(
+                "the replay with the run's own profile differs from the estimates computed "
+                f"live (recorded with {old.data.description['software_version']}); old values "
+                "are the replay's"
+            )
+        rows = _readings(old, new, budget, tolerance) + _changes(
+            old, old_fig, new_fig, budget, tolerance
         )
-    rows = _readings(old, new, budget, tolerance) + _changes(
-        old, old_fig, new_fig, budget, tolerance
-    )
+    finally:
+        old.close()
+        new.close()
     d = old.data.description
     return RunImpact(
         run_id=str(d["run_id"]),
@@ -254,16 +258,17 @@ def _readings(old: Any, new: Any, budget: Any, tolerance: Tolerance | None) -> l
     from estimator.monitor import SETTLED, SETTLING_EVENT
 
     changes = [e for e in old.events if e["kind"] == SETTLING_EVENT]
-    n = old.estimates.size
+    n = old.rows
+    old_force, new_force = old.column("force_n"), new.column("force_n")
+    old_u = old.column("force_u_n")
     rows = []
     for i, event in enumerate(changes):
         if event["new"] != SETTLED:
             continue
         start = int(event["index"])
         stop = next((int(e["index"]) for e in changes[i + 1 :] if e["index"] > start), n)
-        a = old.estimates["force_n"][start:stop]
-        b = new.estimates["force_n"][start:stop]
-        u = old.estimates["force_u_n"][start:stop]
+        a, b = old_force.read(start, stop), new_force.read(start, stop)
+        u = old_u.read(start, stop)
         ok = np.isfinite(a) & np.isfinite(b) & np.isfinite(u)
         if not ok.any():
             continue
@@ -273,7 +278,7 @@ def _readings(old: Any, new: Any, budget: Any, tolerance: Tolerance | None) -> l
             ImpactRow(
                 READING,
                 start,
-                float(old.estimates["time_s"][start]),
+                float(old.column("time_s").read(start, start + 1)[0]),
                 old_n,
                 new_n,
                 expanded,
@@ -290,10 +295,19 @@ def _changes(
     """One row per load change of the old replay, paired with the corrected replay's."""
     import numpy as np
 
-    u_all = old.estimates["force_u_n"]
-    ok = np.isfinite(old.estimates["force_n"]) & np.isfinite(u_all)
-    u_obs = float(np.median(u_all[ok])) if ok.any() else math.nan
-    times = old.estimates["time_s"]
+    from estimator import exact_quantiles
+    from estimator.columns import blocks
+    from ui.column_files import searchsorted
+
+    force, u_all = old.column("force_n"), old.column("force_u_n")
+
+    def finite() -> Any:
+        for a, f in blocks(force):
+            u = u_all.read(a, a + f.size)
+            yield u[np.isfinite(f) & np.isfinite(u)]
+
+    u_obs = exact_quantiles.median(finite) if any(v.size for v in finite()) else math.nan
+    times = old.column("time_s")
     unused = list(new_fig["changes"])
     rows = []
     for change in old_fig["changes"]:
@@ -308,7 +322,7 @@ def _changes(
         rows.append(
             ImpactRow(
                 CHANGE,
-                int(np.searchsorted(times, t0)),
+                searchsorted(times, t0),
                 float(t0),
                 float(old_n),
                 float(match["after_n"]) if match else math.nan,

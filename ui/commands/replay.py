@@ -248,7 +248,8 @@ def _replay_run(args: argparse.Namespace, folder: Path, speed: float) -> int:
 
 class _Replay:
     """Sample blocks in, in stream order; estimates out to ``--out`` (written as they
-    come), to the live comparison and, with ``--steps``, kept for the change table."""
+    come), to the live comparison and, with ``--steps``, kept in temporary column files for
+    the change table (``estimator.changes_in_blocks``: bounded memory)."""
 
     def __init__(
         self, args: argparse.Namespace, profile: Any, tares: list, speed: float, live: Any = None
@@ -264,7 +265,11 @@ class _Replay:
         self.units = CellUnits.for_profile(profile)  # the status line in the cell's units
         self.samples = 0
         self._out: Any = None
-        self._kept: list[tuple[Any, Any]] = []  # (estimates, displacement) for --steps
+        self._steps: Any = None  # ui.column_files.ColumnFiles of the finite rows, --steps
+        if args.steps:
+            from ui.column_files import ColumnFiles
+
+            self._steps = ColumnFiles(_STEP_COLUMNS)
         self._status: Any = None
         self._clock: tuple[float, float] | None = None  # (monotonic, device time) at start
 
@@ -345,39 +350,45 @@ class _Replay:
             self._out.write([est[name] for name in est.dtype.names])
         if self.live is not None:
             self.live.add(est)
-        if self.args.steps:
-            self._kept.append((est, samples["displacement_m"].copy()))
+        if self._steps is not None:
+            import numpy as np
+
+            ok = np.isfinite(est["force_n"])
+            static = self.profile.plant.stiffness_n_per_m * samples["displacement_m"]
+            self._steps.append(
+                t=est["time_s"][ok], f=est["force_n"][ok], u=est["force_u_n"][ok], s=static[ok]
+            )
 
     def finish(self) -> None:
         """End the status line; print the change table with ``--steps``."""
         if self._status is not None:
             self._status.finish()
-        if self.args.steps:
-            import numpy as np
-
-            from estimator.observer import concat_estimates
-
-            est = concat_estimates([e for e, _ in self._kept]) if self._kept else None
-            if est is None:
-                est = self.pipeline.process(_samples_of(np.zeros(0), np.zeros(0)))
-            x = np.concatenate([x for _, x in self._kept]) if self._kept else np.zeros(0)
-            _print_steps(self.profile, x, est)
+        if self._steps is not None:
+            try:
+                self._steps.finish()
+                _print_steps(*(self._steps.column(name) for name in _STEP_COLUMNS))
+            finally:
+                self._steps.close()
 
 
-def _print_steps(profile: Any, displacement: Any, estimates: Any) -> None:
-    """The change table of the estimate and of the static conversion k·x."""
-    import numpy as np
+_STEP_COLUMNS = ("t", "f", "u", "s")  # time, force, its u and k·x of the rows with a force
 
-    from estimator.metrics import change_table, format_change_table
 
-    ok = np.isfinite(estimates["force_n"])
-    t = estimates["time_s"][ok]
-    k = profile.plant.stiffness_n_per_m
-    static = k * displacement[ok]
+def _print_steps(t: Any, force: Any, force_u: Any, static: Any) -> None:
+    """The change table of the estimate and of the static conversion k·x (columns)."""
+    from estimator import exact_quantiles
+    from estimator.changes_in_blocks import change_table_in_blocks
+    from estimator.columns import blocks
+    from estimator.metrics import format_change_table
+
     # The band is 2 % of each step, never narrower than twice the steady force
     # uncertainty (so noise alone cannot hold the reading "unsettled").
-    floor = 4.0 * float(np.median(estimates["force_u_n"][ok])) if ok.any() else 0.0
-    rows = change_table(t, estimates["force_n"][ok], static, band_floor_n=floor)
+    floor = (
+        4.0 * exact_quantiles.median(lambda: (b for _, b in blocks(force_u)))
+        if force_u.size
+        else 0.0
+    )
+    rows = change_table_in_blocks(t, force, static, band_floor_n=floor)
     print(format_change_table(rows) if rows else "no load change found")
 
 

@@ -9,11 +9,11 @@ multi-page A4 PDF drawn by matplotlib) and ``figures.json`` (every number shown,
 from __future__ import annotations
 
 import argparse
-import json
+from collections.abc import Iterator
 from pathlib import Path
-from typing import Any
+from typing import Any, TextIO
 
-from ui.outputs import add_force_option, claim_folder, replacing, write_text_atomic
+from ui.outputs import add_force_option, claim_folder, replacing
 from ui.unverified import add_unverified_option
 
 __all__ = ["default_report_folder", "register"]
@@ -49,16 +49,8 @@ def default_report_folder(run_folder: Path) -> Path:
 
 
 def run(args: argparse.Namespace) -> int:
-    import numpy as np
-
-    from daq.runs import verify_run
-    from estimator.uncertainty import ForceUncertainty
-    from ui.figures import compute_figures, replay_run
-    from ui.progress import bar, wanted
-    from ui.report import plots
-    from ui.report.html import page
-    from ui.report.pdf import write_pdf
-    from ui.report.summary import summarise
+    from ui.figures import replay_run
+    from ui.progress import wanted
     from ui.unverified import check_verifiable
 
     folder = Path(args.run_folder)
@@ -70,25 +62,38 @@ def run(args: argparse.Namespace) -> int:
         print("UNVERIFIED run (--unverified): the report rests on what is left of it")
     with wanted():
         replayed = replay_run(folder)
+    try:
+        written = _write(replayed, folder, out)
+    finally:
+        replayed.close()
+    print(f"wrote {', '.join(written)} to {out}")
+    for note_line in replaced:
+        print(note_line)
+    return 0
+
+
+def _write(replayed: Any, folder: Path, out: Path) -> list[str]:
+    """Write figures.json, report.pdf and report.html; the names written, in that order."""
+    import itertools
+
+    from daq.runs import verify_run
+    from estimator.uncertainty import ForceUncertainty
+    from ui.figures import compute_figures
+    from ui.figures_file import write_figures
+    from ui.progress import bar
+    from ui.report import plots
+    from ui.report.html import NO_CLOSEUPS, figure, page
+    from ui.report.pdf import write_pdf
+    from ui.report.summary import summarise
+    from ui.report.traces import expanded_u_floor, lines, rows_between
+
     figures = compute_figures(replayed)
     out.mkdir(parents=True, exist_ok=True)
     summary = summarise(replayed, figures, folder, out, verify_run(folder))
     figures["command"] = summary.reproduce
-    text = json.dumps(figures, indent=2, ensure_ascii=False, allow_nan=False)
-    write_text_atomic(out / "figures.json", text + "\n")
-    est = replayed.estimates
-    x = np.asarray(replayed.data.samples["displacement_m"])
+    write_figures(out / "figures.json", figures)
     budget = ForceUncertainty.from_profile(replayed.profile)
-    traces = plots.Traces(
-        time_s=est["time_s"],
-        displacement_m=x,
-        force_n=est["force_n"],
-        expanded_u_n=budget.expanded_n(est["force_n"], est["force_u_n"]),
-        static_force_n=replayed.profile.plant.stiffness_n_per_m * x,
-        title=f"run {summary.run_id}: displacement and force ± U (k = 2)",
-    )
     changes = figures["changes"]
-    floor = 2.0 * float(np.median(traces.expanded_u_n[np.isfinite(traces.expanded_u_n)]))
     shown = plots.closeup_changes(changes)
     note = (
         ""
@@ -96,28 +101,40 @@ def run(args: argparse.Namespace) -> int:
         else f"The {len(shown)} largest of {len(changes)} load changes are shown; every one "
         "is in the table at the end."
     )
-    with bar(1 + (len(shown) + 5) // 6, "drawing", unit="figures") as drawn:
-        figs = [plots.overview(traces)]
-        drawn.update(1)
-        for fig in plots.closeups(traces, changes, floor):
-            figs.append(fig)
-            drawn.update(1)
-        svgs = [plots.svg_text(f) for f in figs]
-    write_text_atomic(
-        out / "report.html", page(summary, figures, replayed, svgs[0], svgs[1:], note)
-    )
-    written = ["report.html", "figures.json"]
-    try:
-        with replacing(out / "report.pdf") as tmp:
-            write_pdf(tmp, summary, figures, figs, _provenance(replayed, figures, summary))
-        written.append("report.pdf")
-    finally:
-        for fig in figs:
-            plots.close(fig)
-    print(f"wrote {', '.join(written)} to {out}")
-    for note_line in replaced:
-        print(note_line)
-    return 0
+
+    def window(t_from: float, t_to: float) -> Any:
+        lo, hi = rows_between(replayed, t_from, t_to)
+        return lines(replayed, budget, lo, hi, plots.OVERVIEW_BINS)
+
+    before, between, after = page(summary, figures, replayed, note)
+
+    def drawn(html: TextIO) -> Iterator[Any]:
+        """Each figure drawn, written into the page as SVG, given to the PDF, closed."""
+        title = f"run {summary.run_id}: displacement and force ± U (k = 2)"
+        whole = lines(replayed, budget, 0, replayed.rows, plots.OVERVIEW_BINS)
+        floor = expanded_u_floor(replayed, budget)
+        html.write(before)
+        with bar(1 + (len(shown) + 5) // 6, "drawing", unit="figures") as done:
+            for n, fig in enumerate(
+                itertools.chain(
+                    [plots.overview(whole, title)], plots.closeups(window, changes, floor)
+                )
+            ):
+                try:
+                    html.write(figure(plots.svg_text(fig)) + (between if n == 0 else ""))
+                    yield fig
+                finally:
+                    plots.close(fig)
+                done.update(1)
+        html.write((NO_CLOSEUPS if not shown else "") + after)
+
+    with (
+        replacing(out / "report.html") as html_tmp,
+        open(html_tmp, "w", encoding="utf-8") as html,
+        replacing(out / "report.pdf") as pdf_tmp,
+    ):
+        write_pdf(pdf_tmp, summary, figures, drawn(html), _provenance(replayed, figures, summary))
+    return ["report.html", "figures.json", "report.pdf"]
 
 
 def _provenance(replayed: Any, figures: dict[str, Any], summary: Any) -> list[str]:

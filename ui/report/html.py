@@ -10,7 +10,9 @@ from ui.report.summary import ReportSummary
 from ui.report.tables import CHANGE_COLUMNS, budget_lines, cell, change_rows
 from ui.version import platform_text
 
-__all__ = ["page"]
+__all__ = ["NO_CLOSEUPS", "figure", "page"]
+
+NO_CLOSEUPS = "<p>no load change found</p>"
 
 _MAX_LISTED = 12  # readings and alarms listed on the first screen
 _STYLE = (
@@ -25,6 +27,11 @@ _STYLE = (
 )
 
 
+def figure(svg: str) -> str:
+    """One figure of the page."""
+    return f"<figure>{svg}</figure>"
+
+
 def _head(words: str, unit: str) -> str:
     return f"{html.escape(words)}<br>{html.escape(unit)}"
 
@@ -33,11 +40,12 @@ def page(
     s: ReportSummary,
     figures: dict[str, Any],
     replayed: Any,
-    overview_svg: str,
-    closeup_svgs: list[str],
     closeup_note: str,
-) -> str:
-    """The whole page as text."""
+) -> tuple[str, str, str]:
+    """The page around its figures, so that each figure's SVG can be written as it is
+    drawn: ``(text, text, text)`` to be written with the overview between the first two
+    and the close-ups between the last two (each in ``<figure>``; `NO_CLOSEUPS` when
+    there are none)."""
     e = html.escape
     d = replayed.data.description
     prof = replayed.profile
@@ -69,8 +77,7 @@ def page(
         "<tr>" + "".join(f"<td>{v}</td>" for v in row) + "</tr>"
         for row in change_rows(figures["changes"])
     )
-    closeups = "".join(f"<figure>{svg}</figure>" for svg in closeup_svgs)
-    body = f"""
+    before = f"""
 <h1>forcelens run report</h1>
 <p class="caution">Force testing can hurt people: stay within the cell's rated capacity and
 follow your laboratory's procedures and local codes. This report does not replace an
@@ -97,11 +104,13 @@ accredited calibration.</p>
 <p>Force with its expanded uncertainty band U = 2u_c (k = 2, about 95 %; u_c combines the
 observer, the calibration and the resolution by the GUM law of propagation); the static
 conversion k·x for comparison.</p>
-<figure>{overview_svg}</figure>
+"""
+    between = f"""
 <h2>Close-up of each load change</h2>
 <p>Vertical scale on the arrival: the final value ± 6 settling bands (amber: ±2 % of the
 step, never narrower than 2U; dashed: the settling time). {e(closeup_note)}</p>
-{closeups or "<p>no load change found</p>"}
+"""
+    after = f"""
 <h2>Uncertainty of a settled reading</h2>
 <p>GUM law of propagation (JCGM 100:2008) at the largest settled level, standard
 uncertainties (k = 1) unless stated:</p>
@@ -132,5 +141,7 @@ the start of the change, "settle50" from its 50 % crossing (IEEE Std 181).</p>
     return (
         "<!DOCTYPE html><html lang='en'><head><meta charset='utf-8'>"
         f"<title>forcelens run report {e(s.run_id)}</title><style>{_STYLE}</style></head>"
-        f"<body>{body}</body></html>\n"
+        f"<body>{before}",
+        between,
+        f"{after}</body></html>\n",
     )

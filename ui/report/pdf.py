@@ -4,6 +4,7 @@ monospaced text pages (a table never wraps inside a word)."""
 
 from __future__ import annotations
 
+from collections.abc import Iterable
 from pathlib import Path
 from typing import Any
 
@@ -77,10 +78,11 @@ def write_pdf(
     path: Path,
     s: ReportSummary,
     figures: dict[str, Any],
-    figs: list[Any],
+    figs: Iterable[Any],
     provenance: list[str],
 ) -> None:
-    """Write the PDF to ``path`` (a temporary name; the caller renames it)."""
+    """Write the PDF to ``path`` (a temporary name; the caller renames it); the figures
+    are saved in turn as ``figs`` yields them."""
     import matplotlib
 
     matplotlib.use("Agg", force=False)

@@ -2,26 +2,27 @@
 
 * `overview`: displacement and force over the whole run, the force with its ±U band
   (k = 2) and the static k·x. A long run is reduced to the minimum and maximum of each of
-  at most `OVERVIEW_BINS` time bins, so time and memory do not grow with its length
-  beyond one pass over the arrays, and no peak is lost.
+  at most `OVERVIEW_BINS` bins (``ui.report.traces``), so memory does not grow with its
+  length and no peak is lost.
 * `closeups`: one panel per load change (the largest `MAX_CLOSEUPS` when there are more),
   six to a figure: the estimate with its ±U band, k·x, the settling band and the
   settling time, the vertical scale on the arrival (final value ± 6 settling bands) so the
-  band is visible whatever the size of the step.
+  band is visible whatever the size of the step; a long stretch reduced as the overview.
 """
 
 from __future__ import annotations
 
 import io
-from dataclasses import dataclass
+from collections.abc import Callable, Iterator
 from typing import Any
 
 import numpy as np
 
+from ui.report.traces import Lines
+
 __all__ = [
     "MAX_CLOSEUPS",
     "OVERVIEW_BINS",
-    "Traces",
     "close",
     "closeup_changes",
     "closeups",
@@ -41,38 +42,6 @@ _DISPLACEMENT = "#3c3c96"
 _SETTLE = "#d78c00"
 
 
-@dataclass(frozen=True)
-class Traces:
-    """What the figures show; arrays of shape (n,), SI units."""
-
-    time_s: np.ndarray
-    displacement_m: np.ndarray
-    force_n: np.ndarray
-    expanded_u_n: np.ndarray  # U = 2u_c (k = 2)
-    static_force_n: np.ndarray  # k·x
-    title: str
-
-
-def _bins(n: int, bins: int) -> np.ndarray:
-    return np.linspace(0, n, min(n, bins) + 1).astype(np.int64)
-
-
-def _reduce(values: np.ndarray, edges: np.ndarray, fn: Any) -> np.ndarray:
-    """``fn`` (np.fmin or np.fmax) of ``values`` over each bin; NaN-tolerant."""
-    return fn.reduceat(values, edges[:-1]) if values.size else values
-
-
-def _envelope(t: np.ndarray, y: np.ndarray, bins: int) -> tuple[np.ndarray, np.ndarray]:
-    """(t, y) of a line through each bin's minimum then maximum: every peak stays."""
-    if t.size <= 2 * bins:
-        return t, y
-    edges = _bins(t.size, bins)
-    lo, hi = _reduce(y, edges, np.fmin), _reduce(y, edges, np.fmax)
-    tt = np.repeat(t[edges[:-1]], 2)
-    yy = np.column_stack([lo, hi]).ravel()
-    return tt, yy
-
-
 def _pyplot() -> Any:
     import matplotlib
 
@@ -82,24 +51,18 @@ def _pyplot() -> Any:
     return plt
 
 
-def overview(tr: Traces) -> Any:
+def overview(tr: Lines, title: str) -> Any:
     """The whole run: displacement (µm) above, force (N) with ±U and k·x below."""
     plt = _pyplot()
     fig, (ax1, ax2) = plt.subplots(2, 1, figsize=(10, 6.2), sharex=True, layout="constrained")
-    fig.suptitle(tr.title)
-    t = tr.time_s
-    ax1.plot(*_envelope(t, tr.displacement_m * 1e6, OVERVIEW_BINS), color=_DISPLACEMENT, lw=0.8)
+    fig.suptitle(title)
+    ax1.plot(tr.time_s, tr.displacement_m * 1e6, color=_DISPLACEMENT, lw=0.8)
     ax1.set_ylabel("displacement / µm")
-    if t.size > 2 * OVERVIEW_BINS:
-        edges = _bins(t.size, OVERVIEW_BINS)
-        low = _reduce(tr.force_n - tr.expanded_u_n, edges, np.fmin)
-        high = _reduce(tr.force_n + tr.expanded_u_n, edges, np.fmax)
-        tb = t[edges[:-1]]
-    else:
-        low, high, tb = tr.force_n - tr.expanded_u_n, tr.force_n + tr.expanded_u_n, t
-    ax2.fill_between(tb, low, high, color=_BAND, lw=0, label="± U (k = 2)")
-    ax2.plot(*_envelope(t, tr.static_force_n, OVERVIEW_BINS), color=_STATIC, lw=0.7, label="k·x")
-    ax2.plot(*_envelope(t, tr.force_n, OVERVIEW_BINS), color=_ESTIMATE, lw=1.0, label="estimate")
+    ax2.fill_between(
+        tr.band_time_s, tr.band_low_n, tr.band_high_n, color=_BAND, lw=0, label="± U (k = 2)"
+    )
+    ax2.plot(tr.time_s, tr.static_force_n, color=_STATIC, lw=0.7, label="k·x")
+    ax2.plot(tr.time_s, tr.force_n, color=_ESTIMATE, lw=1.0, label="estimate")
     ax2.set_ylabel("force / N")
     ax2.set_xlabel("time / s")
     ax2.legend(loc="upper right", fontsize="small")
@@ -117,12 +80,13 @@ def closeup_changes(changes: list[dict[str, Any]]) -> list[int]:
     return sorted(np.argsort(size)[::-1][:MAX_CLOSEUPS].tolist())
 
 
-def closeups(tr: Traces, changes: list[dict[str, Any]], band_floor_n: float) -> list[Any]:
-    """Figures of six close-ups each, one per load change chosen by `closeup_changes`."""
+def closeups(
+    window: Callable[[float, float], Lines], changes: list[dict[str, Any]], band_floor_n: float
+) -> Iterator[Any]:
+    """Figures of six close-ups each, one per load change chosen by `closeup_changes`,
+    drawn one at a time; ``window(t_from, t_to)`` gives the traces of a stretch of time."""
     plt = _pyplot()
     chosen = closeup_changes(changes)
-    figures = []
-    t = tr.time_s
     for first in range(0, len(chosen), _PER_FIGURE):
         group = chosen[first : first + _PER_FIGURE]
         rows = (len(group) + 1) // 2
@@ -139,18 +103,17 @@ def closeups(tr: Traces, changes: list[dict[str, Any]], band_floor_n: float) -> 
             static_s = (c["static_settle_ms"] or 0.0) * 1e-3
             t0 = c["t_start_s"]
             span = max(0.02, 2.0 * settle_s, 1.2 * static_s)
-            lo, hi = np.searchsorted(t, [t0 - 0.2 * span, t0 + span])
-            s = slice(int(lo), int(hi))
+            tr = window(t0 - 0.2 * span, t0 + span)
             ax.fill_between(
-                t[s],
-                tr.force_n[s] - tr.expanded_u_n[s],
-                tr.force_n[s] + tr.expanded_u_n[s],
+                tr.band_time_s,
+                tr.band_low_n,
+                tr.band_high_n,
                 color=_BAND,
                 lw=0,
                 label="± U (k = 2)",
             )
-            ax.plot(t[s], tr.static_force_n[s], color=_STATIC, lw=0.8, label="k·x")
-            ax.plot(t[s], tr.force_n[s], color=_ESTIMATE, lw=1.2, label="estimate")
+            ax.plot(tr.time_s, tr.static_force_n, color=_STATIC, lw=0.8, label="k·x")
+            ax.plot(tr.time_s, tr.force_n, color=_ESTIMATE, lw=1.2, label="estimate")
             ax.axhspan(c["after_n"] - band, c["after_n"] + band, color=_SETTLE, alpha=0.12)
             if settle_s > 0:
                 ax.axvline(t0 + settle_s, color=_SETTLE, lw=1.0, ls="--")
@@ -165,8 +128,7 @@ def closeups(tr: Traces, changes: list[dict[str, Any]], band_floor_n: float) -> 
             ax.tick_params(labelsize="x-small")
             ax.grid(alpha=0.25)
         axes.ravel()[0].legend(loc="lower right", fontsize="x-small")
-        figures.append(fig)
-    return figures
+        yield fig
 
 
 def svg_text(fig: Any) -> str:
@@ -178,5 +140,10 @@ def svg_text(fig: Any) -> str:
 
 
 def close(fig: Any) -> None:
-    """Free a figure once it is saved."""
+    """Free a figure once it is saved. A figure is a web of reference cycles; with many
+    long-lived objects about (a long run's transitions) Python's collector would leave a
+    few figures' worth of them behind, so they are collected here."""
+    import gc
+
     _pyplot().close(fig)
+    gc.collect()

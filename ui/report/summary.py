@@ -58,8 +58,8 @@ def summarise(
     from estimator.uncertainty import ForceUncertainty
 
     d = replayed.data.description
-    est = replayed.estimates
-    t = est["time_s"]
+    t = replayed.column("time_s")
+    n = replayed.rows
     budget = ForceUncertainty.from_profile(replayed.profile)
     u_obs = figures["uncertainty"]["observer_n"] or 0.0
     readings = [
@@ -83,8 +83,8 @@ def summarise(
         run_id=d["run_id"],
         cell=replayed.profile.cell.name,
         started_utc=d["started_utc"],
-        duration_s=float(t[-1] - t[0]) if t.size > 1 else 0.0,
-        samples=int(est.size),
+        duration_s=float(t.read(n - 1, n)[0] - t.read(0, 1)[0]) if n > 1 else 0.0,
+        samples=int(n),
         note=d["operator_note"],
         readings=readings,
         final_state=states[-1] if states else "never settled",
