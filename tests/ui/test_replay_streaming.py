@@ -128,3 +128,24 @@ def test_a_bad_row_late_in_a_csv_leaves_no_output(tmp_path: Path) -> None:
     out = tmp_path / "est.csv"
     assert main(["replay", str(source), "--profile", str(prof), "--out", str(out)]) == 1
     assert not out.exists() and not list(tmp_path.glob(".est.csv.*"))
+
+
+def test_audit_counts_every_differing_row_across_tiny_blocks(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch, capsys: pytest.CaptureFixture[str]
+) -> None:
+    import ui.figures
+
+    folder = _record(tmp_path / "runs", tare=False)
+    original = EstimationPipeline._estimate
+    altered = {5, 6, 703, 704, 1100}  # sample indices; seq equals the index here
+
+    def changed(self: EstimationPipeline, part: np.ndarray) -> np.ndarray:
+        est = original(self, part)
+        est["force_n"][np.isin(part["seq"], list(altered))] += 1e-9
+        return est
+
+    monkeypatch.setattr(EstimationPipeline, "_estimate", changed)
+    monkeypatch.setattr(ui.figures, "_BLOCK", 7)  # the replay and the live rows in blocks of 7
+    assert main(["audit", str(folder)]) == 1
+    out = capsys.readouterr().out
+    assert "differ from those computed live: 5 of 1200 samples, first at sample 5" in out
