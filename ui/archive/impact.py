@@ -253,20 +253,23 @@ def _notes(old: Any, corrected: Any) -> list[str]:
 
 def _readings(old: Any, new: Any, budget: Any, tolerance: Tolerance | None) -> list[ImpactRow]:
     """One row per entry into ``settled`` in the old replay (see the module docstring)."""
+    import itertools
+
     import numpy as np
 
     from estimator.monitor import SETTLED, SETTLING_EVENT
 
-    changes = [e for e in old.events if e["kind"] == SETTLING_EVENT]
+    # (sample, new state) of each transition: small however many there are
+    changes = [(int(e["index"]), e["new"]) for e in old.events if e["kind"] == SETTLING_EVENT]
     n = old.rows
     old_force, new_force = old.column("force_n"), new.column("force_n")
     old_u = old.column("force_u_n")
     rows = []
-    for i, event in enumerate(changes):
-        if event["new"] != SETTLED:
+    for i, (start, state) in enumerate(changes):
+        if state != SETTLED:
             continue
-        start = int(event["index"])
-        stop = next((int(e["index"]) for e in changes[i + 1 :] if e["index"] > start), n)
+        later = itertools.islice(changes, i + 1, None)
+        stop = next((index for index, _ in later if index > start), n)
         a, b = old_force.read(start, stop), new_force.read(start, stop)
         u = old_u.read(start, stop)
         ok = np.isfinite(a) & np.isfinite(b) & np.isfinite(u)
