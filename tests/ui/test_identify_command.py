@@ -126,3 +126,52 @@ def test_ringdown_without_a_usable_decay_is_refused_in_one_line(
     err = capsys.readouterr().err
     assert why in err and "--from S --to S" in err
     assert len(err.strip().splitlines()) == 1 and "Traceback" not in err
+
+
+def test_step_on_a_whole_run_finds_the_load_step(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    # Issue 12: identify --test step on a whole run (rest, load, release) fitted the
+    # whole record and refused it ("no step found": it ends where it began). Reference as
+    # in the step test above: the simulated cell integrates the invented demo plant
+    # exactly (k = 4e5 N/m, m = 0.4 kg, ζ = 0.12); tolerances 1e-3 on k and m, 1e-2 on ζ;
+    # and the result of a hand-picked window.
+    record = _whole_run_csv(tmp_path, "hold 0.3 0; hold 0.5 50; hold 0.5 0")
+    out = tmp_path / "found.toml"
+    assert main(["identify", str(record), "--test", "step", "--step-force-n", "50",
+                 "--profile", str(DEMO), "--out", str(out)]) == 0  # fmt: skip
+    text = capsys.readouterr().out
+    found_line = next(line for line in text.splitlines() if line.startswith("window found"))
+    start, end = (float(v) for v in found_line.split(": ")[1].split(",")[0][:-2].split(" s to "))
+    assert start < 0.3 < end < 0.8  # the loading at 0.3 s, not the release at 0.8 s
+    assert "residual check passed" in text
+    found = load_profile(out).plant
+    truth = default_demo_profile().plant
+    assert found.stiffness_n_per_m == pytest.approx(truth.stiffness_n_per_m, rel=1e-3)
+    assert found.mass_kg == pytest.approx(truth.mass_kg, rel=1e-3)
+    assert found.damping_ratio == pytest.approx(truth.damping_ratio, rel=1e-2)
+    picked = tmp_path / "picked.toml"
+    hand_args = ["identify", str(record), "--test", "step", "--from", "0.25", "--to", "0.75"]
+    hand_args += ["--step-force-n", "50", "--profile", str(DEMO), "--out", str(picked)]
+    assert main(hand_args) == 0
+    hand = load_profile(picked).plant
+    assert found.natural_freq_hz == pytest.approx(hand.natural_freq_hz, rel=1e-3)
+    assert found.damping_ratio == pytest.approx(hand.damping_ratio, rel=1e-2)
+
+
+@pytest.mark.parametrize(
+    ("programme", "why"),
+    [
+        ("hold 1 0", "nothing moves"),  # rest only
+        ("hold 0.3 0; hold 0.01 50", "at rest both before and after"),  # cut short
+        ("hold 0.3 0; hold 0.5 0.3; hold 0.3 0", "the largest level change, 0.2"),  # 16σ
+    ],
+)
+def test_step_without_a_usable_step_is_refused_in_one_line(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str], programme: str, why: str
+) -> None:
+    record = _whole_run_csv(tmp_path, programme)
+    assert main(["identify", str(record), "--test", "step"]) == 1
+    err = capsys.readouterr().err
+    assert why in err and "--from S --to S" in err
+    assert len(err.strip().splitlines()) == 1 and "Traceback" not in err

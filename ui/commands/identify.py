@@ -1,11 +1,11 @@
 """``forcelens identify``: natural frequency and damping from a ring-down or a step record.
 
-The record is a run folder (its raw displacement; ``--from``/``--to`` pick the stretch)
-or a plain CSV of ``time_s`` and ``displacement_m`` (or mm, um). The scale (stiffness or
-mass) comes from whatever is known: the moving mass, a stiffness from a static
-calibration (by default the profile's), or the force of the step. With ``--profile`` an
-updated copy of the profile is written with the identified plant, the date and the
-SHA-256 of the data used.
+The record is a run folder (its raw displacement; ``--from``/``--to`` pick the stretch,
+else the free decay or the step is found in the whole record) or a plain CSV of
+``time_s`` and ``displacement_m`` (or mm, um). The scale (stiffness or mass) comes from
+whatever is known: the moving mass, a stiffness from a static calibration (by default
+the profile's), or the force of the step. With ``--profile`` an updated copy of the
+profile is written with the identified plant, the date and the SHA-256 of the data used.
 """
 
 from __future__ import annotations
@@ -52,9 +52,10 @@ def register(subparsers: Any) -> None:
         type=float,
         metavar="S",
         help="start of the part used, s, on the record's own clock: a run's device time (as "
-        "replay and the dashboard show it) or a CSV's time_s (default: the record's start; "
-        "ring-down without --from/--to: the free decay is found in the whole record, from "
-        "the release until the ringing reaches the noise)",
+        "replay and the dashboard show it) or a CSV's time_s (without --from/--to the test "
+        "is found in the whole record and the window used is printed: for a ring-down the "
+        "free decay from the release until the ringing reaches the noise, for a step the "
+        "largest level change with rest before and after it)",
     )
     p.add_argument(
         "--to",
@@ -181,9 +182,9 @@ def run(args: argparse.Namespace) -> int:
     if args.t_to is not None:
         keep &= t <= args.t_to
     t, x = t[keep], x[keep]
+    if args.t_from is None and args.t_to is None:
+        t, x = _window(t, x, args.record, args.test)
     if args.test == "ringdown":
-        if args.t_from is None and args.t_to is None:
-            t, x = _ringdown_window(t, x, args.record)
         with busy(f"identifying on {t.size} samples"):
             result = identify_ringdown(t, x)
     else:
@@ -225,16 +226,23 @@ def run(args: argparse.Namespace) -> int:
     return 0
 
 
-def _ringdown_window(t: Any, x: Any, record: str) -> tuple[Any, Any]:
-    """The free decay of a whole record (estimator.ringdown_window), said in one line; a record
-    where none can be found is refused in one line that says to give --from/--to."""
-    from estimator.ringdown_window import RingdownNotFoundError, find_ringdown_window
+def _window(t: Any, x: Any, record: str, test: str) -> tuple[Any, Any]:
+    """The free decay or the load step of a whole record (estimator.record_windows), said in
+    one line; a record where none can be found is refused in one line that says to give
+    --from/--to."""
+    from estimator.record_windows import (
+        WindowNotFoundError,
+        find_ringdown_window,
+        find_step_window,
+    )
 
+    find = find_ringdown_window if test == "ringdown" else find_step_window
+    what = "the free decay's" if test == "ringdown" else "the step's"
     try:
-        window = find_ringdown_window(t, x)
-    except RingdownNotFoundError as exc:
+        window = find(t, x)
+    except WindowNotFoundError as exc:
         raise ValueError(
-            f"{record}: {exc}; give the free decay's start and end with --from S --to S"
+            f"{record}: {exc}; give {what} start and end with --from S --to S"
         ) from None
     print(window.text())
     keep = (t >= window.start_s) & (t <= window.end_s)
