@@ -21,15 +21,16 @@ file, print beside them as ratios:
   `read_displacement_csv`, the whole arrays) against ``numpy.loadtxt`` on the whole file
   and against a plain read of its bytes (the I/O floor);
 * ``forcelens replay big.csv --out est.csv``, ``forcelens replay RUN --out est.csv`` and
-  ``forcelens export RUN`` (CSV, ``--format mat``, ``--format hdf5``) against the
-  observer alone on the same samples in memory
+  ``forcelens export RUN`` (CSV, ``--format mat``, ``--format hdf5``), and (``--only
+  report``) ``forcelens report RUN`` and ``forcelens audit RUN`` (against that report)
+  against the observer alone on the same samples in memory
   (``ForceObserver.process``, no file read or written): the pipeline's cost beyond the
   observer, which is being sped up separately.
 
 It asserts nothing: these machines are shared and noisy.
 
     .venv/bin/python tests/benchmarks/bench_big_records.py [--rows N] [--repeat R]
-        [--only reader|pipeline|export] [--source DIR] [--tmp DIR]
+        [--only reader|pipeline|export|report] [--source DIR] [--tmp DIR]
 
 ``--source`` runs forcelens from another tree (``git archive HEAD | tar -x -C DIR``: a
 snapshot, so that edits in the working tree during the run change nothing).
@@ -221,7 +222,7 @@ def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     parser.add_argument("--rows", type=int, default=10_000_000)
     parser.add_argument("--repeat", type=int, default=3)
-    parser.add_argument("--only", choices=("reader", "pipeline", "export"))
+    parser.add_argument("--only", choices=("reader", "pipeline", "export", "report"))
     parser.add_argument("--source", type=Path, default=ROOT, help="tree to run forcelens from")
     parser.add_argument("--tmp", type=Path, help="folder for the invented files (default: temp)")
     args = parser.parse_args()
@@ -230,15 +231,16 @@ def main() -> None:
     with tempfile.TemporaryDirectory(dir=args.tmp) as tmp_name:
         tmp = Path(tmp_name)
         big = tmp / "big.csv"
-        t0 = time.perf_counter()
-        make_csv(big, n)
-        mb = big.stat().st_size / 2**20
-        print(f"invented CSV: {n} rows, {mb:.0f} MB, made in {time.perf_counter() - t0:.0f} s")
+        if args.only != "report":  # the report needs the run only
+            t0 = time.perf_counter()
+            make_csv(big, n)
+            mb = big.stat().st_size / 2**20
+            print(f"invented CSV: {n} rows, {mb:.0f} MB, made in {time.perf_counter() - t0:.0f} s")
         print(f"forcelens from {source}; {r} repeats; python {sys.version.split()[0]}")
         # Numba compiles the observer's kernel once and caches it beside the source; a
         # process that compiles holds ~200 MB more. Warm the cache first (not measured).
         measure(["-c", _WARM_UP], source)
-        if args.only not in ("pipeline", "export"):
+        if args.only not in ("pipeline", "export", "report"):
             print("CSV reader:")
             got = {}
             for name, code in (
@@ -280,8 +282,18 @@ def main() -> None:
              [*cli, "export", str(folder), "--out", str(tmp / "run.mat"), "--force"]),
             ("export RUN --format hdf5",
              [*cli, "export", str(folder), "--out", str(tmp / "run.h5"), "--force"]),
+            ("report RUN",
+             [*cli, "report", str(folder), "--out", str(tmp / "report"), "--force"]),
+            ("audit RUN (against the report)",
+             [*cli, "audit", str(folder), "--report", str(tmp / "report")]),
         ):  # fmt: skip
-            if args.only == "export" and not name.startswith(("observer", "export")):
+            wanted = {
+                None: ("observer", "replay", "export"),
+                "pipeline": ("observer", "replay", "export"),
+                "export": ("observer", "export"),
+                "report": ("observer", "report", "audit"),
+            }[args.only]
+            if not name.startswith(wanted):
                 continue
             got[name] = repeated(argv, source, r)
             show(name, got[name], n)
