@@ -1,6 +1,6 @@
 """A column of float64 values read a slice at a time (`Column`), and one held in memory.
 
-Functions that must not hold a whole record (``estimator.changes_in_blocks``) take
+Functions that must not hold a whole record (``estimator.metrics.changes_in_blocks``) take
 columns: the caller decides where the values live (an array, a file read slice by
 slice). `blocks` cuts a stretch of a column into `BLOCK` values at a time.
 """

@@ -4,7 +4,7 @@
 zero events, unless another profile is given) a block at a time, hashing the samples and
 estimates as they pass and keeping the `COLUMNS` in temporary files and the transitions in
 a temporary file (``ui.transitions``); `compute_figures` gathers what a report shows and an
-audit checks: the hashes, the load-change table (``estimator.changes_in_blocks``: the
+audit checks: the hashes, the load-change table (``estimator.metrics.changes_in_blocks``: the
 numbers of the whole-array rules, bit for bit) and the settling and alarm transitions. The
 result (`FIGURES_FORMAT`) is written beside a report (``ui.figures_file``) so that a later
 audit can compare. Memory does not grow with the record (issue 12, big records).
@@ -198,8 +198,8 @@ def compute_figures(replayed: Replayed, *, block: int | None = None) -> dict[str
     numbers as the whole-array rules of ``estimator.metrics``, whatever ``block`` (values
     read at a time; None: ``estimator.columns.BLOCK``)."""
     from estimator import exact_quantiles
-    from estimator.changes_in_blocks import iter_change_table_in_blocks
     from estimator.columns import BLOCK, blocks
+    from estimator.metrics.changes_in_blocks import iter_change_table_in_blocks
     from estimator.profile import profile_to_toml
     from ui.version import software_version
 

@@ -1,4 +1,4 @@
-"""Tests of estimator.changes_in_blocks: the same changes and change table as the
+"""Tests of estimator.metrics.changes_in_blocks: the same changes and change table as the
 whole-array rules of estimator.metrics, bit for bit, whatever the block size.
 
 Sources: ``estimator.metrics.detect_changes`` / ``change_table`` on the whole arrays (the
@@ -15,15 +15,15 @@ import pytest
 import scipy.signal
 
 from estimator import exact_quantiles
-from estimator.changes_in_blocks import (
+from estimator.columns import ArrayColumn
+from estimator.errors import EstimatorError
+from estimator.metrics import change_table, detect_changes
+from estimator.metrics.changes_in_blocks import (
     _by_distance,
     _PeakScan,
     change_table_in_blocks,
     detect_changes_in_blocks,
 )
-from estimator.columns import ArrayColumn
-from estimator.errors import EstimatorError
-from estimator.metrics import change_table, detect_changes
 
 FS_HZ = 2000.0
 

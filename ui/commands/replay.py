@@ -249,7 +249,7 @@ def _replay_run(args: argparse.Namespace, folder: Path, speed: float) -> int:
 class _Replay:
     """Sample blocks in, in stream order; estimates out to ``--out`` (written as they
     come), to the live comparison and, with ``--steps``, kept in temporary column files for
-    the change table (``estimator.changes_in_blocks``: bounded memory)."""
+    the change table (``estimator.metrics.changes_in_blocks``: bounded memory)."""
 
     def __init__(
         self, args: argparse.Namespace, profile: Any, tares: list, speed: float, live: Any = None
@@ -377,9 +377,9 @@ _STEP_COLUMNS = ("t", "f", "u", "s")  # time, force, its u and k·x of the rows 
 def _print_steps(t: Any, force: Any, force_u: Any, static: Any) -> None:
     """The change table of the estimate and of the static conversion k·x (columns)."""
     from estimator import exact_quantiles
-    from estimator.changes_in_blocks import change_table_in_blocks
     from estimator.columns import blocks
     from estimator.metrics import format_change_table
+    from estimator.metrics.changes_in_blocks import change_table_in_blocks
 
     # The band is 2 % of each step, never narrower than twice the steady force
     # uncertainty (so noise alone cannot hold the reading "unsettled").

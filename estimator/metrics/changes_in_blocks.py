@@ -33,7 +33,7 @@ import scipy.ndimage
 from estimator import exact_quantiles
 from estimator.columns import BLOCK, Column, blocks
 from estimator.errors import EstimatorError, ParameterError
-from estimator.metrics import (
+from estimator.metrics.changes import (
     _MAD_TO_SIGMA,
     _START_FRACTION,
     _START_SIGMAS,
@@ -44,14 +44,14 @@ from estimator.metrics import (
     _drop_small,
     _start_index,
     _tail_start,
-    step_metrics,
 )
+from estimator.metrics.step import step_metrics
 
 __all__ = ["change_table_in_blocks", "detect_changes_in_blocks", "iter_change_table_in_blocks"]
 
 
 def _check(t: Column, y: Column, value_name: str, block: int) -> None:
-    """The checks (and messages) of ``estimator.metrics._trace``, block by block."""
+    """The checks (and messages) of ``estimator.metrics.step._trace``, block by block."""
     if not (isinstance(block, int) and block >= 1):
         raise ParameterError(
             f"block = {block!r}; give the values read at a time, a whole number >= 1"
