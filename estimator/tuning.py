@@ -29,6 +29,8 @@ from estimator.observer import ForceObserver, ObserverTuning
 from estimator.plant import Plant
 from estimator.settling import time_to_settle
 
+_BLOCK = 65_536  # samples per observer call while fitting (the estimates are not kept)
+
 __all__ = [
     "NoiseEstimate",
     "ObserverFit",
@@ -133,7 +135,8 @@ def fit_observer(
             constant_floor=False,
         )
         obs = ForceObserver(plant, sample_period_s, noise, resolution_m, tuning, force_range_n)
-        obs.process(t, z)
+        for i in range(0, t.size, _BLOCK):  # only the likelihood is kept: memory per block
+            obs.process(t[i : i + _BLOCK], z[i : i + _BLOCK])
         return obs.log_likelihood
 
     start = (q_hold_n2_per_s, rate_scale, 1.0)
