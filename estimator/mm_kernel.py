@@ -310,46 +310,33 @@ def _merge_cov(j, fa, fb, xa, Pa, xb, Pb):
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
-def _drop_tail(ca, cb, budget, order):
+def _drop_tail(ca, cb, budget):
     """Zero the smallest weights of ``ca`` and ``cb`` while their sum stays within
-    ``budget``; the largest weight always stays.
-
-    The positive weights are sorted once (insertion sort of at most ``2r``, ties in index
-    order) into ``order``, then dropped from the smallest: the same weights, summed in
-    the same order, as picking the smallest again after each drop (measured on a quiet
-    machine: 1.5 % faster over the whole step; a first measurement under load had
-    suggested far more).
-    """
+    ``budget``; the largest weight always stays."""
     r = ca.shape[0]
-    m = 0
-    for j in range(2 * r):
-        v = ca[j] if j < r else cb[j - r]
-        if v > 0.0:
-            p = m
-            while p > 0:
-                q = order[p - 1]
-                if (ca[q] if q < r else cb[q - r]) > v:
-                    order[p] = q
-                    p -= 1
-                else:
-                    break
-            order[p] = j
-            m += 1
     spent = 0.0
-    for s in range(m - 1):
-        j = order[s]
-        v = ca[j] if j < r else cb[j - r]
-        if spent + v > budget:
+    while True:
+        smallest = np.inf
+        at = -1
+        count = 0
+        for j in range(2 * r):
+            v = ca[j] if j < r else cb[j - r]
+            if v > 0.0:
+                count += 1
+                if v < smallest:
+                    smallest = v
+                    at = j
+        if count <= 1 or spent + smallest > budget:
             return
-        spent += v
-        if j < r:
-            ca[j] = 0.0
+        spent += smallest
+        if at < r:
+            ca[at] = 0.0
         else:
-            cb[j - r] = 0.0
+            cb[at - r] = 0.0
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
-def _combine(k, wa, xa, Pa, mua, xb, Pb, mub, prune, tail, ca, cb, order, out_x, out_var):
+def _combine(k, wa, xa, Pa, mua, xb, Pb, mub, prune, tail, ca, cb, out_x, out_var):
     """Mean and variance (per component) of the two-branch, r-model mixture.
 
     Models below their ``prune`` entry are left out, then the least probable of the
@@ -362,7 +349,7 @@ def _combine(k, wa, xa, Pa, mua, xb, Pb, mub, prune, tail, ca, cb, order, out_x,
         ca[j] = wa * mua[j] if wa * mua[j] >= prune[j] else 0.0
         cb[j] = wb * mub[j] if wb * mub[j] >= prune[j] else 0.0
         tot += ca[j] + cb[j]
-    _drop_tail(ca, cb, tail * tot, order)
+    _drop_tail(ca, cb, tail * tot)
     tot = 0.0
     for j in range(r):
         tot += ca[j] + cb[j]
@@ -449,7 +436,6 @@ def imm_block(
     lj = np.empty(r)
     ca = np.empty(r)
     cb = np.empty(r)
-    order = np.empty(2 * r, np.int64)
     xa, Pa, PDa, mua = x[0], P[0], PD[0], mu[0]
     xb, Pb, PDb, mub = x[1], P[1], PD[1], mu[1]
     log_eps = math.log(outlier_prob)
@@ -550,17 +536,15 @@ def imm_block(
             # the estimate without the sample (an isolated outlier must not move it),
             # with a variance that spans both branches about it.
             wa = 1.0 / (1.0 + math.exp(log_eps + pend[2] - log_1m_eps - pend[1]))
-            _combine(k, wa, xa, Pa, mua, xb, Pb, mub, prune, tail, ca, cb, order, out_x, out_var)
+            _combine(k, wa, xa, Pa, mua, xb, Pb, mub, prune, tail, ca, cb, out_x, out_var)
             if pend[3] == 0.0 and wa < _SHOW_USED:
                 for a in range(4):
                     d[a] = out_x[k, a]
-                _combine(
-                    k, 0.0, xa, Pa, mua, xb, Pb, mub, prune, tail, ca, cb, order, out_x, out_var
-                )
+                _combine(k, 0.0, xa, Pa, mua, xb, Pb, mub, prune, tail, ca, cb, out_x, out_var)
                 for a in range(4):
                     out_var[k, a] += (d[a] - out_x[k, a]) ** 2
         else:
-            _combine(k, 1.0, xa, Pa, mua, xb, Pb, mub, prune, tail, ca, cb, order, out_x, out_var)
+            _combine(k, 1.0, xa, Pa, mua, xb, Pb, mub, prune, tail, ca, cb, out_x, out_var)
         if jump > 1:
             _add_lag(xa, mua, jump, k, out_var)
         out_flag[k] = flag
