@@ -336,7 +336,7 @@ def _drop_tail(ca, cb, budget):
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
-def _combine(k, wa, xa, Pa, mua, xb, Pb, mub, prune, tail, ca, cb, out_x, out_var):
+def _combine(k, wa, xa, Pa, mua, xb, Pb, mub, prune, tail, ca, cb, keep, out_x, out_var):
     """Mean and variance (per component) of the two-branch, r-model mixture.
 
     Models below their ``prune`` entry are left out, then the least probable of the
@@ -353,18 +353,25 @@ def _combine(k, wa, xa, Pa, mua, xb, Pb, mub, prune, tail, ca, cb, out_x, out_va
     tot = 0.0
     for j in range(r):
         tot += ca[j] + cb[j]
+    # only the models kept take part (a zero weight adds exactly nothing)
+    n = 0
     for j in range(r):
         ca[j] /= tot
         cb[j] /= tot
+        if ca[j] != 0.0 or cb[j] != 0.0:
+            keep[n] = j
+            n += 1
     for a in range(4):
         s = 0.0
-        for j in range(r):
+        for i in range(n):
+            j = keep[i]
             s += ca[j] * xa[j, a] + cb[j] * xb[j, a]
         out_x[k, a] = s
     for a in range(4):
         s = 0.0
         m = out_x[k, a]
-        for j in range(r):
+        for i in range(n):
+            j = keep[i]
             s += ca[j] * (Pa[j, a, a] + (xa[j, a] - m) ** 2)
             s += cb[j] * (Pb[j, a, a] + (xb[j, a] - m) ** 2)
         out_var[k, a] = s
@@ -436,6 +443,7 @@ def imm_block(
     lj = np.empty(r)
     ca = np.empty(r)
     cb = np.empty(r)
+    keep = np.empty(r, np.int64)
     xa, Pa, PDa, mua = x[0], P[0], PD[0], mu[0]
     xb, Pb, PDb, mub = x[1], P[1], PD[1], mu[1]
     log_eps = math.log(outlier_prob)
@@ -536,15 +544,17 @@ def imm_block(
             # the estimate without the sample (an isolated outlier must not move it),
             # with a variance that spans both branches about it.
             wa = 1.0 / (1.0 + math.exp(log_eps + pend[2] - log_1m_eps - pend[1]))
-            _combine(k, wa, xa, Pa, mua, xb, Pb, mub, prune, tail, ca, cb, out_x, out_var)
+            _combine(k, wa, xa, Pa, mua, xb, Pb, mub, prune, tail, ca, cb, keep, out_x, out_var)
             if pend[3] == 0.0 and wa < _SHOW_USED:
                 for a in range(4):
                     d[a] = out_x[k, a]
-                _combine(k, 0.0, xa, Pa, mua, xb, Pb, mub, prune, tail, ca, cb, out_x, out_var)
+                _combine(
+                    k, 0.0, xa, Pa, mua, xb, Pb, mub, prune, tail, ca, cb, keep, out_x, out_var
+                )
                 for a in range(4):
                     out_var[k, a] += (d[a] - out_x[k, a]) ** 2
         else:
-            _combine(k, 1.0, xa, Pa, mua, xb, Pb, mub, prune, tail, ca, cb, out_x, out_var)
+            _combine(k, 1.0, xa, Pa, mua, xb, Pb, mub, prune, tail, ca, cb, keep, out_x, out_var)
         if jump > 1:
             _add_lag(xa, mua, jump, k, out_var)
         out_flag[k] = flag
