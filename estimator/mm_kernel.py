@@ -18,17 +18,18 @@ Bar-Shalom:
 outlier from the first sample of a sudden load change: both are a large innovation. The
 next sample can: after a load change the data keep moving, after an outlier they come
 back. So a sample whose innovation is beyond ``gate`` standard deviations of the most
-probable model, or that would make the jump model the more probable half on its own
-(at high sample rates one sample of a jump is barely above the noise, so a single
-noisy sample can do that), is held as *suspect*: two branches are kept, "used" (the IMM step above)
-and "outlier" (prediction only). The next sample runs the IMM step from both, and the
-branches are weighed by everything they predicted — prior probability ``ε`` of an
-outlier, the density of the suspect sample under each hypothesis (`_outlier_log_density`:
-an outlier is spread about the prediction with scale ``outlier_sd``, Gaussian in its core
-with a Cauchy share ``outlier_tail``), the density of the next sample — and merged
-per model by moment matching. An isolated outlier is thus rejected, and a load change
-loses none of its samples. The row of a suspect sample shows both branches merged with
-the weights known then; its flag says so.
+probable model, or that on its own would give the force-jump models more than
+``_JUMP_SUSPECT`` of the probability (at high sample rates one sample of a jump is barely
+above the noise, so a single noisy sample can do that; a kink model, whose first sample
+looks like no change, does not count), is held as *suspect*: two branches are kept,
+"used" (the IMM step above) and "outlier" (prediction only). The next sample runs the
+IMM step from both, and the branches are weighed by everything they predicted — prior
+probability ``ε`` of an outlier, the density of the suspect sample under each hypothesis
+(`_outlier_log_density`: an outlier is spread about the prediction with scale
+``outlier_sd``, Gaussian in its core with a Cauchy share ``outlier_tail``), the density
+of the next sample — and merged per model by moment matching. An isolated outlier is
+thus rejected, and a load change loses none of its samples. The row of a suspect sample
+shows both branches merged with the weights known then; its flag says so.
 
 Sources: H. A. P. Blom, Y. Bar-Shalom, "The interacting multiple model algorithm for
 systems with Markovian switching coefficients", IEEE Trans. Automatic Control 33(8),
@@ -409,8 +410,9 @@ def imm_block(
     prune: np.ndarray,  # (r,) a model less probable than its entry passes nothing on
     #                     and is not shown
     tail: float,  # the least probable models, up to this total, are not shown either
-    jump: int,  # index of the first jump model (the jump models are the last ones; their
-    #             taking over makes a sample suspect), or -1
+    jump: int,  # index of the first jump model (the jump family is last), or -1
+    jump_end: int,  # one past the last force-jump model: their taking over makes a
+    #                 sample suspect; a kink model after them does not
     floor: np.ndarray,  # (r,) bool: models whose gain comes from QD (see the module notes)
     x: np.ndarray,  # (2, r, 4) posterior states: branch "used", branch "outlier"
     P: np.ndarray,  # (2, r, 4, 4) posterior covariances of both branches
@@ -516,7 +518,7 @@ def imm_block(
                 jumpy = False
                 if jump >= 0:
                     lsum = 0.0
-                    for j in range(jump, r):
+                    for j in range(jump, jump_end):
                         lsum += lj[j]
                     jumpy = lsum > _JUMP_SUSPECT * total
                 if y * y > gate2 * s_best or jumpy:

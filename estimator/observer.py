@@ -474,6 +474,7 @@ class ForceObserver:
             self._prune,
             tun.shown_tail,
             self.models.regular if self.models.count > self.models.regular else -1,
+            self.models.regular + len(self.models.jump_timing),
             self._floors,
             st.x,
             st.P,

@@ -117,7 +117,7 @@ def _filter(
                             np.empty((n, 1)), np.empty(n))  # fmt: skip
     lx = np.empty((n if log else 0, 1, 4))
     lP = np.empty((n if log else 0, 1, 4, 4))
-    imm_block(zs, rows, PHI, Q, Q, PI, R, 1e12, 1e-3, 1.0, 0.0, np.zeros(1), 0.0, -1,
+    imm_block(zs, rows, PHI, Q, Q, PI, R, 1e12, 1e-3, 1.0, 0.0, np.zeros(1), 0.0, -1, -1,
               np.zeros(1, np.bool_), x, P, np.zeros_like(P), mu, np.zeros(4),
               ox, ov, oy, os_, of, om, oll, lx, lP)  # fmt: skip
     return float(oll.sum()), (PHI, Q, PI, lx, lP, om)
