@@ -35,7 +35,14 @@ _log = session_logger()
 #: Reader events worth a warning in the session log (the others are information).
 _WARN_KINDS = frozenset({"disconnected", "open-failed", "unread-dropped"})
 
-__all__ = ["LiveSession", "PollResult"]
+__all__ = ["POLL_PERIOD_S", "LiveSession", "PollResult"]
+
+#: The live command polls its session at most this often: each block has a fixed cost
+#: (estimator call, monitor, alarms, recorder), and polling as soon as anything arrived
+#: made blocks of ~24 samples at 50 kHz. Blocks of 10 ms (500 samples) took 50 kHz binary
+#: with recording from 38.0 to 35.7 % of a core (`tests/benchmarks/bench_live.py`, the
+#: same hour); the dashboard polls every 20 ms.
+POLL_PERIOD_S = 0.01
 
 
 @dataclass(frozen=True)

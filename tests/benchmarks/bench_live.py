@@ -35,7 +35,7 @@ from pathlib import Path
 
 from estimator.profile import default_demo_profile, save_profile
 from ui.recording import open_recording
-from ui.session import LiveSession
+from ui.session import POLL_PERIOD_S, LiveSession
 
 # Invented load programme, 10 s, repeated with fresh noise.
 PROGRAMME = "hold 1 0; hold 2 30; hold 2 90; ramp 1 50; hold 2 50; hold 2 0"
@@ -82,6 +82,7 @@ def one_pass(rate_hz: float, seconds: float, *, full: bool, soak: bool, framing:
             next_report = 30.0
             rss = [(0.0, rss_mb())]
             while (elapsed := time.monotonic() - t0) < seconds:
+                polled = time.monotonic()
                 if full:
                     n = session.poll().samples.size
                 else:
@@ -92,8 +93,8 @@ def one_pass(rate_hz: float, seconds: float, *, full: bool, soak: bool, framing:
                     rss.append((elapsed, rss_mb()))
                     print(f"  {elapsed:6.0f} s  RSS {rss[-1][1]:7.1f} MB  received {received}")
                     next_report += 30.0
-                if n == 0:
-                    time.sleep(0.005)
+                # paced as `forcelens live` polls (ui.session.POLL_PERIOD_S)
+                time.sleep(max(0.0, POLL_PERIOD_S - (time.monotonic() - polled)))
             cpu = time.process_time() - cpu0
             wall = time.monotonic() - t0
             backlog = session.reader.stats().samples_unread

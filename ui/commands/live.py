@@ -214,7 +214,7 @@ def _run(args: argparse.Namespace, profile: Any, port: str, cell: Any, recording
     from ui.console import HELP, Console, start_line_reader
     from ui.dashboard.wording import rejected_word
     from ui.display_units import CellUnits
-    from ui.session import LiveSession
+    from ui.session import POLL_PERIOD_S, LiveSession
     from ui.status import StatusLine, format_status
 
     session = LiveSession(profile, port, recording=recording)
@@ -243,6 +243,7 @@ def _run(args: argparse.Namespace, profile: Any, port: str, cell: Any, recording
         try:
             session.start()
             while True:
+                polled = time.monotonic()
                 was_connected = session.connected_once
                 got = session.poll()
                 if session.connected_once and not was_connected:
@@ -296,8 +297,7 @@ def _run(args: argparse.Namespace, profile: Any, port: str, cell: Any, recording
                 ):
                     reason = "simulated programme finished"
                     break
-                if not got.samples.size:
-                    time.sleep(0.01)
+                time.sleep(max(0.0, POLL_PERIOD_S - (time.monotonic() - polled)))
         except KeyboardInterrupt:  # a second Ctrl-C: the block being handled is lost
             outcome, reason = "aborted", "interrupted twice"
         except BaseException:
