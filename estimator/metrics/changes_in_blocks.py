@@ -1,7 +1,7 @@
 """Load changes and their change table read a block at a time from columns, so that a
 record of any length is measured in bounded memory (issue 12, big records).
 
-`detect_changes_in_blocks` and `change_table_in_blocks` give the very rows that
+`detect_changes_in_blocks` and `iter_change_table_in_blocks` give the very rows that
 ``estimator.metrics.detect_changes`` and ``change_table`` give on the whole arrays, bit for
 bit (tests compare them on records cut into blocks of several sizes), because each step
 of the rule is either local or exact:
@@ -47,7 +47,7 @@ from estimator.metrics.changes import (
 )
 from estimator.metrics.step import step_metrics
 
-__all__ = ["change_table_in_blocks", "detect_changes_in_blocks", "iter_change_table_in_blocks"]
+__all__ = ["detect_changes_in_blocks", "iter_change_table_in_blocks"]
 
 
 def _check(t: Column, y: Column, value_name: str, block: int) -> None:
@@ -271,41 +271,6 @@ def _at(column: Column, i: int) -> float:
     return float(column.read(i, i + 1)[0])
 
 
-def change_table_in_blocks(
-    time_s: Column,
-    force_n: Column,
-    static_force_n: Column | None = None,
-    *,
-    changes: Sequence[Change] | None = None,
-    noise_n: float | None = None,
-    min_step_n: float | None = None,
-    min_hold_s: float = 0.5,
-    band: float = 0.02,
-    band_floor_n: float = 0.0,
-    convention: str = "interpolated",
-    levels: str = "median",
-    block: int = BLOCK,
-) -> list[ChangeRow]:
-    """``estimator.metrics.change_table`` on columns read a block at a time (same rows);
-    each change's window is read whole."""
-    return list(
-        iter_change_table_in_blocks(
-            time_s,
-            force_n,
-            static_force_n,
-            changes=changes,
-            noise_n=noise_n,
-            min_step_n=min_step_n,
-            min_hold_s=min_hold_s,
-            band=band,
-            band_floor_n=band_floor_n,
-            convention=convention,
-            levels=levels,
-            block=block,
-        )
-    )
-
-
 def iter_change_table_in_blocks(
     time_s: Column,
     force_n: Column,
@@ -321,7 +286,8 @@ def iter_change_table_in_blocks(
     levels: str = "median",
     block: int = BLOCK,
 ) -> Iterator[ChangeRow]:
-    """The rows of `change_table_in_blocks` one at a time (the changes are found first)."""
+    """``estimator.metrics.change_table`` on columns read a block at a time (the same rows,
+    one at a time; the changes are found first, and each change's window is read whole)."""
     t, y, ys = time_s, force_n, static_force_n
     _check(t, y, "force_n", block)
     if ys is not None:

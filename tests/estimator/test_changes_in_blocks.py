@@ -21,8 +21,8 @@ from estimator.metrics import change_table, detect_changes
 from estimator.metrics.changes_in_blocks import (
     _by_distance,
     _PeakScan,
-    change_table_in_blocks,
     detect_changes_in_blocks,
+    iter_change_table_in_blocks,
 )
 
 FS_HZ = 2000.0
@@ -63,7 +63,7 @@ def test_change_table_in_blocks_equals_the_whole_array_table(
     whole = change_table(t, y, s, band_floor_n=0.2)
     assert len(whole) >= 4  # several load changes to compare
     cols = ArrayColumn(t), ArrayColumn(y), ArrayColumn(s)
-    got = change_table_in_blocks(*cols, band_floor_n=0.2, block=block)
+    got = list(iter_change_table_in_blocks(*cols, band_floor_n=0.2, block=block))
     assert _same(got, whole)
     assert _same(detect_changes_in_blocks(cols[0], cols[1], block=block), detect_changes(t, y))
 

@@ -379,7 +379,7 @@ def _print_steps(t: Any, force: Any, force_u: Any, static: Any) -> None:
     from estimator import exact_quantiles
     from estimator.columns import blocks
     from estimator.metrics import format_change_table
-    from estimator.metrics.changes_in_blocks import change_table_in_blocks
+    from estimator.metrics.changes_in_blocks import iter_change_table_in_blocks
 
     # The band is 2 % of each step, never narrower than twice the steady force
     # uncertainty (so noise alone cannot hold the reading "unsettled").
@@ -388,7 +388,7 @@ def _print_steps(t: Any, force: Any, force_u: Any, static: Any) -> None:
         if force_u.size
         else 0.0
     )
-    rows = change_table_in_blocks(t, force, static, band_floor_n=floor)
+    rows = list(iter_change_table_in_blocks(t, force, static, band_floor_n=floor))
     print(format_change_table(rows) if rows else "no load change found")
 
 
