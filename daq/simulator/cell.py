@@ -32,6 +32,7 @@ from daq.csv_dialect import write_csv_table
 from daq.errors import FramingError
 from daq.lines import encode_lines
 from daq.programme import LoadProgramme
+from daq.samples import empty_block
 from daq.scaling import Scaling
 
 #: Integration steps one `SimulatedCell.generate` may make (about 2 GB of arrays): beyond,
@@ -84,6 +85,20 @@ class SimulatedRun:
 
     def __len__(self) -> int:
         return int(self.seq.size)
+
+    def sample_block(
+        self, scaling: Scaling, host_time_s: float | np.ndarray = math.nan
+    ) -> np.ndarray:
+        """The run as the reader delivers it: a `daq.samples` block (sequence numbers,
+        device times, counts and their displacement by ``scaling``), received at
+        ``host_time_s`` (one time for all, or one per sample; default unknown)."""
+        block = empty_block(len(self))
+        block["seq"] = self.seq
+        block["device_time_s"] = self.time_s
+        block["host_time_s"] = host_time_s
+        block["counts"] = self.counts
+        block["displacement_m"] = scaling.to_metres(self.counts)
+        return block
 
 
 def foh_matrices(

@@ -51,6 +51,23 @@ def underdamped_step(t: np.ndarray, force_n: float, m: float, k: float, z: float
     )
 
 
+def test_a_run_as_the_reader_delivers_it() -> None:
+    # The block's fields against the run's own arrays and the scaling's definition
+    # (counts × V/count × m/V, no offset here): device time = device µs × 1e-6.
+    run = make_cell(noise_m=1e-8, seed=2).generate(parse_programme("hold 0.01 0; hold 0.01 40"))
+    block = run.sample_block(SCALING)
+    assert block.size == len(run) == 40
+    np.testing.assert_array_equal(block["seq"], run.seq)
+    np.testing.assert_array_equal(block["counts"], run.counts)
+    np.testing.assert_array_equal(block["device_time_s"], run.device_time_us * 1e-6)
+    want_m = run.counts * (20.0 / 2**24) * 5e-5
+    np.testing.assert_allclose(block["displacement_m"], want_m, rtol=1e-15, atol=0.0)
+    assert np.isnan(block["host_time_s"]).all()  # not received by any host
+    np.testing.assert_array_equal(
+        run.sample_block(SCALING, host_time_s=run.time_s + 5.0)["host_time_s"], run.time_s + 5.0
+    )
+
+
 def test_step_response_matches_closed_form() -> None:
     run = make_cell().generate(LoadProgramme((Hold(0.25, 100.0),)))
     x_ref = underdamped_step(run.time_s, 100.0, M_KG, K_N_PER_M, ZETA)

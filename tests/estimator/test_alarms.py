@@ -10,7 +10,6 @@ import numpy as np
 import pytest
 
 from daq.programme import parse_programme
-from daq.samples import empty_block
 from daq.simulator import SimulatedCell
 from estimator.alarms import (
     ALARM_IDS,
@@ -59,13 +58,7 @@ def _samples(programme: str, seed: int = 3, *, zeta: float | None = None) -> np.
         seed=seed,
     )
     run = cell.generate(parse_programme(programme))
-    block = empty_block(len(run))
-    block["seq"] = run.seq
-    block["device_time_s"] = run.device_time_us * 1e-6
-    block["counts"] = run.counts
-    block["displacement_m"] = scaling.to_metres(run.counts)
-    block["host_time_s"] = _host_times(block["device_time_s"])
-    return block
+    return run.sample_block(scaling, host_time_s=_host_times(run.time_s))
 
 
 def _host_times(device_time_s: np.ndarray) -> np.ndarray:

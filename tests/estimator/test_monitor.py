@@ -8,7 +8,6 @@ import numpy as np
 import pytest
 
 from daq.programme import parse_programme
-from daq.samples import empty_block
 from daq.simulator import SimulatedCell
 from estimator.errors import ParameterError
 from estimator.monitor import (
@@ -45,11 +44,7 @@ def _simulate(levels: tuple[float, ...], seed: int) -> tuple[np.ndarray, np.ndar
         pl.mass_kg, pl.stiffness_n_per_m, pl.damping_ratio, tr.noise_m, scaling, RATE, seed=seed
     )
     run = cell.generate(parse_programme("; ".join(f"hold {SEGMENT_S} {v}" for v in levels)))
-    block = empty_block(len(run))
-    block["seq"] = run.seq
-    block["device_time_s"] = run.device_time_us * 1e-6
-    block["counts"] = run.counts
-    block["displacement_m"] = scaling.to_metres(run.counts)
+    block = run.sample_block(scaling)
     return estimate_samples(PROFILE, block), np.asarray(run.true_force_n)
 
 

@@ -9,12 +9,10 @@ test.
 
 from __future__ import annotations
 
-import math
 from collections.abc import Sequence
 from pathlib import Path
 
 from daq.programme import parse_programme
-from daq.samples import empty_block
 from daq.simulator import SimulatedCell
 from estimator.profile import CellProfile, default_demo_profile
 from ui.pipeline import EstimationPipeline
@@ -58,12 +56,7 @@ def record_run(
         zero_offset_m=zero_offset_m,
     )
     run = cell.generate(parse_programme(programme))
-    samples = empty_block(len(run))
-    samples["seq"] = run.seq
-    samples["device_time_s"] = run.device_time_us * 1e-6
-    samples["host_time_s"] = math.nan
-    samples["counts"] = run.counts
-    samples["displacement_m"] = scaling_for(profile).to_metres(run.counts)
+    samples = run.sample_block(scaling_for(profile))
     rec = open_recording(root, profile, note=note, tags=tags)
     pipe = EstimationPipeline(profile, recorder=rec.writer)
     tare_index = (

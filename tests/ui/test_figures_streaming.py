@@ -22,7 +22,6 @@ import pytest
 
 from daq.programme import parse_programme
 from daq.runs import read_run
-from daq.samples import empty_block
 from estimator.metrics import change_table
 from estimator.profile import default_demo_profile
 from ui.figures import compute_figures, replay_run
@@ -40,12 +39,7 @@ PROGRAMME = "hold 0.6 0; hold 0.6 20; hold 0.6 55; hold 0.6 10; hold 0.6 40; hol
 def run_folder(tmp_path_factory: pytest.TempPathFactory) -> Path:
     """3.6 s of an invented programme with five load changes, recorded as live does."""
     run = simulated_cell_for(PROFILE, seed=12).generate(parse_programme(PROGRAMME))
-    samples = empty_block(len(run))
-    samples["seq"] = run.seq
-    samples["device_time_s"] = run.device_time_us * 1e-6
-    samples["host_time_s"] = math.nan
-    samples["counts"] = run.counts
-    samples["displacement_m"] = scaling_for(PROFILE).to_metres(run.counts)
+    samples = run.sample_block(scaling_for(PROFILE))
     rec = open_recording(tmp_path_factory.mktemp("runs"), PROFILE, note="invented data")
     pipe = EstimationPipeline(PROFILE, recorder=rec.writer)
     pipe.process(samples)

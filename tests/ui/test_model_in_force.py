@@ -7,7 +7,6 @@ import math
 import numpy as np
 
 from daq.programme import parse_programme
-from daq.samples import empty_block
 from daq.simulator import SimulatedCell
 from estimator.profile import default_demo_profile
 from ui.model_in_force import model_in_force
@@ -26,12 +25,7 @@ def _estimates(programme: str) -> np.ndarray:
         PROFILE.acquisition.sample_rate_hz, seed=5,
     )  # fmt: skip
     run = cell.generate(parse_programme(programme))
-    block = empty_block(len(run))
-    block["seq"] = run.seq
-    block["device_time_s"] = run.device_time_us * 1e-6
-    block["counts"] = run.counts
-    block["displacement_m"] = scaling.to_metres(run.counts)
-    block["host_time_s"] = block["device_time_s"]
+    block = run.sample_block(scaling, host_time_s=run.time_s)
     return estimate_samples(PROFILE, block)
 
 

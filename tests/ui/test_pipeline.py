@@ -40,11 +40,7 @@ def _samples(programme: str, *, seed: int = 3, offset_m: float = 0.0) -> tuple[n
         zero_offset_m=offset_m,
     )
     run = cell.generate(parse_programme(programme))
-    block = empty_block(len(run))
-    block["seq"] = run.seq
-    block["device_time_s"] = run.device_time_us * 1e-6
-    block["counts"] = run.counts
-    block["displacement_m"] = scaling_for(PROFILE).to_metres(run.counts)
+    block = run.sample_block(scaling_for(PROFILE))
     return block, run
 
 

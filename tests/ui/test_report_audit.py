@@ -3,13 +3,11 @@
 from __future__ import annotations
 
 import json
-import math
 from pathlib import Path
 
 import pytest
 
 from daq.programme import parse_programme
-from daq.samples import empty_block
 from estimator.profile import default_demo_profile
 from ui.cli import main
 from ui.pipeline import EstimationPipeline
@@ -23,12 +21,7 @@ def _record(root: Path) -> Path:
     """2 s of an invented 0 → 30 → 0 N programme, recorded like forcelens live does."""
     programme = parse_programme("hold 0.6 0; hold 0.8 30; hold 0.6 0")
     run = simulated_cell_for(PROFILE, seed=6).generate(programme)
-    samples = empty_block(len(run))
-    samples["seq"] = run.seq
-    samples["device_time_s"] = run.device_time_us * 1e-6
-    samples["host_time_s"] = math.nan
-    samples["counts"] = run.counts
-    samples["displacement_m"] = scaling_for(PROFILE).to_metres(run.counts)
+    samples = run.sample_block(scaling_for(PROFILE))
     rec = open_recording(root, PROFILE, note="report test (invented data)")
     pipe = EstimationPipeline(PROFILE, recorder=rec.writer)
     for i in range(0, samples.size, 113):

@@ -8,7 +8,6 @@ from __future__ import annotations
 
 import csv
 import dataclasses
-import math
 from pathlib import Path
 
 import numpy as np
@@ -17,7 +16,6 @@ import pytest
 from daq.ports import PortInfo
 from daq.programme import parse_programme
 from daq.runs import read_run
-from daq.samples import empty_block
 from estimator.profile import default_demo_profile, save_profile
 from ui.cli import main
 from ui.pipeline import EstimationPipeline
@@ -30,12 +28,7 @@ PROFILE = default_demo_profile()
 def _record(root: Path, *, note: str = "", tags: tuple[str, ...] = (), tare: bool = True) -> Path:
     """Record 0.6 s of an invented load step, with one zero, in blocks of 97 samples."""
     run = simulated_cell_for(PROFILE, seed=4).generate(parse_programme("hold 0.2 0; hold 0.4 30"))
-    samples = empty_block(len(run))
-    samples["seq"] = run.seq
-    samples["device_time_s"] = run.device_time_us * 1e-6
-    samples["host_time_s"] = math.nan
-    samples["counts"] = run.counts
-    samples["displacement_m"] = scaling_for(PROFILE).to_metres(run.counts)
+    samples = run.sample_block(scaling_for(PROFILE))
     rec = open_recording(root, PROFILE, note=note, tags=tags)
     pipe = EstimationPipeline(PROFILE, recorder=rec.writer)
     for i in range(0, samples.size, 97):
