@@ -314,4 +314,8 @@ def model_tables(
             PHI[t, r - 1] = phi_r * ratio
             Q[t, r - 1] = models.kink_rate_sd_n_per_s**2 / dt * qr_r * outer
         PI[t] = models.transitions(dt)
+    # exp(A·dt) of a block-triangular A: the force depends on no state of the cell and
+    # its rate not on the force. Written as exact zeros, which the kernel relies on.
+    PHI[:, :, 2:, :2] = 0.0
+    PHI[:, :, 3, 2] = 0.0
     return PHI, Q, PI

@@ -69,11 +69,13 @@ _JUMP_SUSPECT = 0.05  # posterior of the jump model from one sample that makes i
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
-def _interact_predict(it, PHI, Q, QD, PI, prune, floor, x, P, PD, mu, cbar, x0, P0, PD0, w, d, T):
+def _interact_predict(it, PHI, Q, QD, PI, prune, floor, x, P, PD, mu, cbar, x0, P0, PD0, w, src):
     """Steps 1 and 2: mixed priors, then each model's prediction, in place in x, P (and
     PD of the floor models).
 
-    A model whose probability is below its ``prune`` entry passes nothing on.
+    A model whose probability is below its ``prune`` entry passes nothing on: each
+    model's sources (``src[:n]``, ascending, weights ``w[:n]``) are the models kept and
+    itself.
     """
     r = mu.shape[0]
     for j in range(r):
@@ -83,29 +85,34 @@ def _interact_predict(it, PHI, Q, QD, PI, prune, floor, x, P, PD, mu, cbar, x0, 
         cbar[j] = c
     for j in range(r):
         tot = 0.0
+        n = 0
         for i in range(r):
-            w[i] = PI[it, i, j] * mu[i] if (i == j or mu[i] >= prune[i]) else 0.0
-            tot += w[i]
+            if i == j or mu[i] >= prune[i]:
+                w[n] = PI[it, i, j] * mu[i]
+                src[n] = i
+                tot += w[n]
+                n += 1
         if tot <= 0.0:  # every source pruned: the model keeps its own state
-            for i in range(r):
-                w[i] = 1.0 if i == j else 0.0
+            n = 1
+            src[0] = j
+            w[0] = 1.0
             tot = 1.0
-        for i in range(r):
-            w[i] /= tot
+        for m in range(n):
+            w[m] /= tot
         for a in range(4):
             s = 0.0
-            for i in range(r):
-                s += w[i] * x[i, a]
+            for m in range(n):
+                s += w[m] * x[src[m], a]
             x0[j, a] = s
-        _mix_cov(j, w, x, x0, P, PD, floor, False, P0, d)
+        _mix_cov(j, n, w, src, x, x0, P, PD, floor, False, P0)
         if floor[j]:
             # the gain's design covariance: the same mixture of the sources' design
             # covariances (a regular model's is its own)
-            _mix_cov(j, w, x, x0, P, PD, floor, True, PD0, d)
+            _mix_cov(j, n, w, src, x, x0, P, PD, floor, True, PD0)
     for j in range(r):
-        _predict_cov(it, j, PHI, Q, P0, P, T)
+        _predict_cov(it, j, PHI, Q, P0, P)
         if floor[j]:
-            _predict_cov(it, j, PHI, QD, PD0, PD, T)
+            _predict_cov(it, j, PHI, QD, PD0, PD)
         for a in range(4):
             s = 0.0
             for b in range(4):
@@ -116,43 +123,84 @@ def _interact_predict(it, PHI, Q, QD, PI, prune, floor, x, P, PD, mu, cbar, x0, 
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
-def _mix_cov(j, w, x, x0, P, PD, floor, design, P0, d):
-    """``P0[j] = Σ_i w_i (P_i + (x_i − x0_j)(x_i − x0_j)ᵀ)``; with ``design``, the floor
-    sources contribute their design covariance ``PD_i`` instead of ``P_i``."""
-    r = w.shape[0]
-    for a in range(4):
-        for b in range(a, 4):
-            P0[j, a, b] = 0.0
-    for i in range(r):
-        if w[i] == 0.0:
+def _mix_cov(j, n, w, src, x, x0, P, PD, floor, design, P0):
+    """``P0[j] = Σ_m w_m (P_i + (x_i − x0_j)(x_i − x0_j)ᵀ)`` over the sources ``i =
+    src[m]``; with ``design``, the floor sources contribute their design covariance
+    ``PD_i`` instead of ``P_i``."""
+    c00 = c01 = c02 = c03 = c11 = c12 = c13 = c22 = c23 = c33 = 0.0
+    m0, m1, m2, m3 = x0[j, 0], x0[j, 1], x0[j, 2], x0[j, 3]
+    for m in range(n):
+        wm = w[m]
+        if wm == 0.0:
             continue
-        src = PD if (design and floor[i]) else P
-        for a in range(4):
-            d[a] = x[i, a] - x0[j, a]
-        for a in range(4):
-            for b in range(a, 4):
-                P0[j, a, b] += w[i] * (src[i, a, b] + d[a] * d[b])
-    for a in range(4):
-        for b in range(a):
-            P0[j, a, b] = P0[j, b, a]
+        i = src[m]
+        S = PD[i] if (design and floor[i]) else P[i]
+        d0 = x[i, 0] - m0
+        d1 = x[i, 1] - m1
+        d2 = x[i, 2] - m2
+        d3 = x[i, 3] - m3
+        c00 += wm * (S[0, 0] + d0 * d0)
+        c01 += wm * (S[0, 1] + d0 * d1)
+        c02 += wm * (S[0, 2] + d0 * d2)
+        c03 += wm * (S[0, 3] + d0 * d3)
+        c11 += wm * (S[1, 1] + d1 * d1)
+        c12 += wm * (S[1, 2] + d1 * d2)
+        c13 += wm * (S[1, 3] + d1 * d3)
+        c22 += wm * (S[2, 2] + d2 * d2)
+        c23 += wm * (S[2, 3] + d2 * d3)
+        c33 += wm * (S[3, 3] + d3 * d3)
+    o = P0[j]
+    o[0, 0] = c00
+    o[0, 1] = o[1, 0] = c01
+    o[0, 2] = o[2, 0] = c02
+    o[0, 3] = o[3, 0] = c03
+    o[1, 1] = c11
+    o[1, 2] = o[2, 1] = c12
+    o[1, 3] = o[3, 1] = c13
+    o[2, 2] = c22
+    o[2, 3] = o[3, 2] = c23
+    o[3, 3] = c33
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
-def _predict_cov(it, j, PHI, Q, P0, out, T):
-    """``out[j] = Φ_j P0_j Φ_jᵀ + Q_j``."""
-    for a in range(4):
-        for b in range(4):
-            s = 0.0
-            for c in range(4):
-                s += PHI[it, j, a, c] * P0[j, c, b]
-            T[a, b] = s
-    for a in range(4):
-        for b in range(a, 4):
-            s = Q[it, j, a, b]
-            for c in range(4):
-                s += T[a, c] * PHI[it, j, b, c]
-            out[j, a, b] = s
-            out[j, b, a] = s
+def _predict_cov(it, j, PHI, Q, P0, out):
+    """``out[j] = Φ_j P0_j Φ_jᵀ + Q_j``, written out term by term (each sum in the
+    order of the matrix product). Φ's lower left block (the force does not depend on the
+    cell's state) and ``Φ[3, 2]`` (nor its rate on the force) are zero, `_check_structure`
+    makes sure, and their terms are left out: a third of the products, and the largest
+    share of a step."""
+    F = PHI[it, j]
+    p = P0[j]
+    f00, f01, f02, f03 = F[0, 0], F[0, 1], F[0, 2], F[0, 3]
+    f10, f11, f12, f13 = F[1, 0], F[1, 1], F[1, 2], F[1, 3]
+    f22, f23, f33 = F[2, 2], F[2, 3], F[3, 3]
+    p00, p01, p02, p03 = p[0, 0], p[0, 1], p[0, 2], p[0, 3]
+    p11, p12, p13 = p[1, 1], p[1, 2], p[1, 3]
+    p22, p23, p33 = p[2, 2], p[2, 3], p[3, 3]
+    # T = Φ P0 (the rows and columns needed)
+    t00 = f00 * p00 + f01 * p01 + f02 * p02 + f03 * p03
+    t01 = f00 * p01 + f01 * p11 + f02 * p12 + f03 * p13
+    t02 = f00 * p02 + f01 * p12 + f02 * p22 + f03 * p23
+    t03 = f00 * p03 + f01 * p13 + f02 * p23 + f03 * p33
+    t10 = f10 * p00 + f11 * p01 + f12 * p02 + f13 * p03
+    t11 = f10 * p01 + f11 * p11 + f12 * p12 + f13 * p13
+    t12 = f10 * p02 + f11 * p12 + f12 * p22 + f13 * p23
+    t13 = f10 * p03 + f11 * p13 + f12 * p23 + f13 * p33
+    t22 = f22 * p22 + f23 * p23
+    t23 = f22 * p23 + f23 * p33
+    t33 = f33 * p33
+    q = Q[it, j]
+    o = out[j]
+    o[0, 0] = q[0, 0] + t00 * f00 + t01 * f01 + t02 * f02 + t03 * f03
+    o[0, 1] = o[1, 0] = q[0, 1] + t00 * f10 + t01 * f11 + t02 * f12 + t03 * f13
+    o[1, 1] = q[1, 1] + t10 * f10 + t11 * f11 + t12 * f12 + t13 * f13
+    o[0, 2] = o[2, 0] = q[0, 2] + t02 * f22 + t03 * f23
+    o[1, 2] = o[2, 1] = q[1, 2] + t12 * f22 + t13 * f23
+    o[2, 2] = q[2, 2] + t22 * f22 + t23 * f23
+    o[0, 3] = o[3, 0] = q[0, 3] + t03 * f33
+    o[1, 3] = o[3, 1] = q[1, 3] + t13 * f33
+    o[2, 3] = o[3, 2] = q[2, 3] + t23 * f33
+    o[3, 3] = q[3, 3] + t33 * f33
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
@@ -432,6 +480,7 @@ def imm_block(
     log_P: np.ndarray,  # (n or 0, r, 4, 4) per-model posterior covariances
 ) -> int:
     """Run the block; returns the number of samples judged outliers in it."""
+    _check_structure(PHI)
     n = z.shape[0]
     r = mu.shape[1]
     keep_log = log_x.shape[0] > 0
@@ -440,6 +489,7 @@ def imm_block(
     PD0 = np.empty((r, 4, 4))
     cbar = np.empty(r)
     w = np.empty(r)
+    src = np.empty(r, np.int64)
     d = np.empty(4)
     T = np.empty((4, 4))
     lj = np.empty(r)
@@ -457,11 +507,11 @@ def imm_block(
         flag = 0
         pending = pend[0] != 0.0
         _interact_predict(
-            it, PHI, Q, QD, PI, prune, floor, xa, Pa, PDa, mua, cbar, x0, P0, PD0, w, d, T
+            it, PHI, Q, QD, PI, prune, floor, xa, Pa, PDa, mua, cbar, x0, P0, PD0, w, src
         )
         if pending:
             _interact_predict(
-                it, PHI, Q, QD, PI, prune, floor, xb, Pb, PDb, mub, cbar, x0, P0, PD0, w, d, T
+                it, PHI, Q, QD, PI, prune, floor, xb, Pb, PDb, mub, cbar, x0, P0, PD0, w, src
             )
         # prediction of the measurement (branch "used" only: the suspect is undecided)
         # (models below ``prune`` left out, as in the reported mixture)
@@ -569,3 +619,16 @@ def imm_block(
                     for b in range(4):
                         log_P[k, j, a, b] = Pa[j, a, b]
     return rejected
+
+
+@numba.njit(cache=True, nogil=True)
+def _check_structure(PHI):
+    """Refuse transition matrices `_predict_cov` would get wrong: ``Φ[2:, :2]`` and
+    ``Φ[3, 2]`` must be exactly zero, as in every table of `force_models.model_tables`."""
+    for t in range(PHI.shape[0]):
+        for j in range(PHI.shape[1]):
+            F = PHI[t, j]
+            if F[2, 0] != 0.0 or F[2, 1] != 0.0 or F[3, 0] != 0.0 or F[3, 1] != 0.0:
+                raise ValueError("imm_block: Φ[2:, :2] must be zero (force from the cell's state)")
+            if F[3, 2] != 0.0:
+                raise ValueError("imm_block: Φ[3, 2] must be zero (force rate from the force)")

@@ -359,6 +359,23 @@ def test_one_model_kernel_is_the_kalman_filter() -> None:
     np.testing.assert_allclose(ox[:, 0] / D[0], ref_x, rtol=1e-9)
 
 
+def test_the_kernel_refuses_a_transition_it_would_get_wrong() -> None:
+    # The kernel leaves out Φ's structural zeros (the force depends on no state of the
+    # cell, its rate not on the force): a table without them is refused, not mis-used.
+    models = ForceModels.for_cell(CELL, SPAN, Q_HOLD)
+    PHI, Q, _ = model_tables(CELL, models, np.array([DT, 1e-6, 5.0]))
+    assert not PHI[:, :, 2:, :2].any() and not PHI[:, :, 3, 2].any()
+    phi1, q1 = np.ascontiguousarray(PHI[:1, :1]), np.ascontiguousarray(Q[:1, :1])
+    z = np.full(3, 1.0)
+    x0, P0 = np.array([1.0, 0.0, 1.0, 0.0]), np.diag([R_SCALED, 1.0, 1.0, 1.0])
+    run_kernel(z, phi1, q1, np.ones((1, 1, 1)), x0, P0, np.ones(1))  # accepted
+    for at in [(2, 0), (3, 1), (3, 2)]:
+        bad = phi1.copy()
+        bad[0, 0][at] = 1e-12
+        with pytest.raises(ValueError, match="must be zero"):
+            run_kernel(z, bad, q1, np.ones((1, 1, 1)), x0, P0, np.ones(1))
+
+
 def test_imm_agrees_with_filterpy_imm_estimator() -> None:
     # Reference: filterpy's IMMEstimator (reference library; Blom & Bar-Shalom 1988;
     # Bar-Shalom, Li & Kirubarajan 2001, 11.6.6) with three filterpy KalmanFilters.
