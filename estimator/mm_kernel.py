@@ -134,32 +134,31 @@ def _mix_cov(j, n, w, src, x, x0, P, PD, floor, design, P0):
         if wm == 0.0:
             continue
         i = src[m]
-        S = PD[i] if (design and floor[i]) else P[i]
+        S = PD if (design and floor[i]) else P
         d0 = x[i, 0] - m0
         d1 = x[i, 1] - m1
         d2 = x[i, 2] - m2
         d3 = x[i, 3] - m3
-        c00 += wm * (S[0, 0] + d0 * d0)
-        c01 += wm * (S[0, 1] + d0 * d1)
-        c02 += wm * (S[0, 2] + d0 * d2)
-        c03 += wm * (S[0, 3] + d0 * d3)
-        c11 += wm * (S[1, 1] + d1 * d1)
-        c12 += wm * (S[1, 2] + d1 * d2)
-        c13 += wm * (S[1, 3] + d1 * d3)
-        c22 += wm * (S[2, 2] + d2 * d2)
-        c23 += wm * (S[2, 3] + d2 * d3)
-        c33 += wm * (S[3, 3] + d3 * d3)
-    o = P0[j]
-    o[0, 0] = c00
-    o[0, 1] = o[1, 0] = c01
-    o[0, 2] = o[2, 0] = c02
-    o[0, 3] = o[3, 0] = c03
-    o[1, 1] = c11
-    o[1, 2] = o[2, 1] = c12
-    o[1, 3] = o[3, 1] = c13
-    o[2, 2] = c22
-    o[2, 3] = o[3, 2] = c23
-    o[3, 3] = c33
+        c00 += wm * (S[i, 0, 0] + d0 * d0)
+        c01 += wm * (S[i, 0, 1] + d0 * d1)
+        c02 += wm * (S[i, 0, 2] + d0 * d2)
+        c03 += wm * (S[i, 0, 3] + d0 * d3)
+        c11 += wm * (S[i, 1, 1] + d1 * d1)
+        c12 += wm * (S[i, 1, 2] + d1 * d2)
+        c13 += wm * (S[i, 1, 3] + d1 * d3)
+        c22 += wm * (S[i, 2, 2] + d2 * d2)
+        c23 += wm * (S[i, 2, 3] + d2 * d3)
+        c33 += wm * (S[i, 3, 3] + d3 * d3)
+    P0[j, 0, 0] = c00
+    P0[j, 0, 1] = P0[j, 1, 0] = c01
+    P0[j, 0, 2] = P0[j, 2, 0] = c02
+    P0[j, 0, 3] = P0[j, 3, 0] = c03
+    P0[j, 1, 1] = c11
+    P0[j, 1, 2] = P0[j, 2, 1] = c12
+    P0[j, 1, 3] = P0[j, 3, 1] = c13
+    P0[j, 2, 2] = c22
+    P0[j, 2, 3] = P0[j, 3, 2] = c23
+    P0[j, 3, 3] = c33
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
