@@ -34,6 +34,7 @@ __all__ = [
     "CsvTableWriter",
     "column_header",
     "number_texts",
+    "rows_text",
     "split_column_header",
     "write_csv_table",
 ]
@@ -85,6 +86,51 @@ def number_texts(values: np.ndarray) -> list[bytes]:
     return orjson.dumps(values, option=orjson.OPT_SERIALIZE_NUMPY)[1:-1].split(b",")
 
 
+def rows_text(columns: Sequence[np.ndarray]) -> bytes:
+    """The rows of a table (one array per column, all of one length) as dialect text,
+    each row ending in ``\\n``: the fields of `number_texts`, joined by commas.
+
+    When every value is finite and every integer column is below 2⁵³, the whole block is
+    one orjson dump of a 2-D float array (``[[a,b],[c,d]]``), rewritten in one compiled
+    pass (`daq.csv_rows_kernel`): the same bytes, several times faster than joining each
+    row's fields in Python. Otherwise each row's fields are joined.
+    """
+    n = len(columns[0]) if columns else 0
+    if n == 0:
+        return b""
+    arrays = [np.asarray(v) for v in columns]
+    fast = _block_text(arrays, n)
+    if fast is not None:
+        return fast
+    texts = [number_texts(v) for v in arrays]
+    return b"".join(_SEP.join(row) + b"\n" for row in zip(*texts, strict=True))
+
+
+def _block_text(arrays: list[np.ndarray], n: int) -> bytes | None:
+    """`rows_text` by one 2-D dump, or None when the block does not allow it."""
+    width = len(arrays)
+    table = np.empty((n, width))
+    whole = []  # the integer columns
+    for k, v in enumerate(arrays):
+        if v.dtype.kind in "iub":
+            if v.dtype.kind != "b" and (v.max() >= 2**53 or v.min() <= -(2**53)):
+                return None
+            whole.append(k)
+        elif v.dtype.kind != "f":
+            return None
+        table[:, k] = v
+    if not np.isfinite(table).all():
+        return None  # orjson writes null for nan and inf
+    from daq.csv_rows_kernel import dump_to_rows  # numba: only when a table is written
+
+    dump = np.frombuffer(orjson.dumps(table, option=orjson.OPT_SERIALIZE_NUMPY), np.uint8)
+    out = np.empty_like(dump)
+    flags = np.zeros(width, np.bool_)
+    flags[whole] = True
+    size = dump_to_rows(dump, flags, out)
+    return None if size < 0 else out[:size].tobytes()
+
+
 class CsvTableWriter:
     """Write a table in the dialect block by block (a record of any length in bounded
     memory); the file appears under ``path`` only when the writer is closed without an
@@ -134,9 +180,7 @@ class CsvTableWriter:
         n = lengths.pop() if lengths else 0
         try:
             for start in range(0, n, _CHUNK_ROWS):
-                stop = start + _CHUNK_ROWS
-                texts = [number_texts(v[start:stop]) for v in values]
-                self._handle.writelines(_SEP.join(row) + b"\n" for row in zip(*texts, strict=True))
+                self._handle.write(rows_text([v[start : start + _CHUNK_ROWS] for v in values]))
         except OSError as exc:
             self._fail(exc)
         self.rows += n
