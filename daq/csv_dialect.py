@@ -82,7 +82,9 @@ def number_texts(values: np.ndarray) -> list[bytes]:
         for i in bad.tolist():
             texts[i] = repr(float(values[i])).encode("ascii")
         return texts
-    values = np.ascontiguousarray(values, dtype=np.int64)
+    values = np.ascontiguousarray(
+        values, dtype=np.uint64 if values.dtype.kind == "u" else np.int64
+    )
     return orjson.dumps(values, option=orjson.OPT_SERIALIZE_NUMPY)[1:-1].split(b",")
 
 

@@ -28,6 +28,7 @@ def test_non_finite_floats_are_spelled_as_python_does() -> None:
 
 def test_integers_flags_and_float32_columns(tmp_path: Path) -> None:
     assert number_texts(np.array([0, 7, 2**40], dtype=np.uint64)) == [b"0", b"7", b"1099511627776"]
+    assert number_texts(np.array([2**64 - 1], dtype=np.uint64)) == [b"18446744073709551615"]
     assert number_texts(np.array([True, False])) == [b"1", b"0"]
     assert number_texts(np.array([], dtype=float)) == []
     # a float32 column is written as the double it converts to, so it reads back exact
@@ -51,6 +52,7 @@ def _random_block(rng: np.random.Generator, n: int) -> list[np.ndarray]:
         lambda: rng.random(n) > 0.5,
         lambda: np.round(rng.normal(size=n) * 1e6),  # integral floats: "3.0", not "3"
         lambda: rng.integers(-(2**62), 2**62, n),  # beyond 2**53: joined field by field
+        lambda: rng.integers(2**62, 2**63, n).astype(np.uint64) * np.uint64(2),  # > int64
     ]
     return [kinds[int(k)]() for k in rng.integers(0, len(kinds), int(rng.integers(1, 13)))]
 
@@ -78,7 +80,7 @@ def test_block_rows_are_the_fields_joined_and_read_back_exactly() -> None:
                 back = np.array([float(f) for f in fields])
                 assert np.array_equal(back.astype(column.dtype), column, equal_nan=True)
             else:
-                assert [int(f) for f in fields] == column.astype(np.int64).tolist()
+                assert [int(f) for f in fields] == [int(v) for v in column.tolist()]
         fast_path_blocks += all(np.isfinite(np.asarray(c, float)).all() for c in columns)
     assert fast_path_blocks > 50  # the compiled pass was exercised
     assert rows_text([np.empty(0)]) == b""
