@@ -70,6 +70,7 @@ __all__ = [
     "ForceObserver",
     "ObserverTuning",
     "concat_estimates",
+    "judged_outliers",
     "process_noise_for_bandwidth",
 ]
 
@@ -93,12 +94,15 @@ ESTIMATE_DTYPE = np.dtype(
 )
 
 #: the innovation was beyond the gate: the sample is held as a possible outlier, and the
-#: row shows both hypotheses; the next sample decides (see FLAG_OUTLIER_BEFORE)
+#: row shows both hypotheses; a later sample decides (see FLAG_OUTLIER_BEFORE). Up to three
+#: consecutive samples can be held together as one burst.
 FLAG_REJECTED = 1
 FLAG_MISSING = 2  #: no measurement (NaN); predict only
 FLAG_GAP = 4  #: the time step before this sample was longer than 1.5 nominal periods
 FLAG_JUMP = 8  #: the jump model is the most probable: the load is changing suddenly
-FLAG_OUTLIER_BEFORE = 32  #: the previous sample was judged an outlier and not used
+#: the held samples just before this row (the run of FLAG_REJECTED rows) were judged
+#: outliers and not used (`judged_outliers` finds them)
+FLAG_OUTLIER_BEFORE = 32
 
 _TABLE_CACHE = 256  # distinct step lengths kept
 _DISPLACEMENT_MAX_M = 1.0  # a reading this far from zero is a unit error
@@ -589,6 +593,20 @@ class ForceObserver:
             f"time_s[{bad}] = {float(t[bad])!r} does not come after {float(prev)!r}: "
             "sample times must strictly increase"
         )
+
+
+def judged_outliers(flags: np.ndarray) -> np.ndarray:
+    """Which rows' samples the observer judged outliers, as bools: the run of held rows
+    (``FLAG_REJECTED``) just before each row flagged ``FLAG_OUTLIER_BEFORE``."""
+    flags = np.asarray(flags)
+    held = (flags & FLAG_REJECTED) != 0
+    out = np.zeros(flags.shape, np.bool_)
+    for row in np.flatnonzero(flags & FLAG_OUTLIER_BEFORE).tolist():
+        j = row - 1
+        while j >= 0 and held[j]:
+            out[j] = True
+            j -= 1
+    return out
 
 
 def concat_estimates(blocks: list[np.ndarray]) -> np.ndarray:

@@ -57,9 +57,9 @@ from estimator.mm_smooth_kernel import kim_backward
 from estimator.observer import (
     FLAG_GAP,
     FLAG_JUMP,
-    FLAG_OUTLIER_BEFORE,
     FLAG_REJECTED,
     ForceObserver,
+    judged_outliers,
 )
 from estimator.smoother_sigma import smoother_variance
 
@@ -211,8 +211,8 @@ def smooth_record(
     if t.size < 2:
         return out
     z_clean = z.copy()
-    outlier = np.flatnonzero(live["flags"] & FLAG_OUTLIER_BEFORE) - 1
-    z_clean[outlier[outlier >= 0]] = np.nan
+    outlier = judged_outliers(live["flags"])
+    z_clean[outlier] = np.nan
     fit = fit_prior(observer, t, z_clean)
     dts, rows = _steps(observer, t)
     D = scaling(observer.plant)
@@ -246,7 +246,7 @@ def smooth_record(
     # estimate (a held load: one fitted prior must be rough enough for the steps too)
     flags = live["flags"]
     # a row is "used" unless it is a suspect then judged an outlier: an outlier is no change
-    used = np.append(flags[1:] & FLAG_OUTLIER_BEFORE == 0, True)
+    used = ~outlier
     busy = ((flags & (FLAG_REJECTED | FLAG_JUMP) != 0) | (live["p_hold"] < _HOLD)) & used
     busy = np.convolve(busy, np.ones(2 * _GUARD + 1), "same") > 0
     use_live = (live["force_u_n"] < out["force_u_n"]) & ~busy
