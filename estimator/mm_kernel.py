@@ -32,15 +32,14 @@ thus rejected, and a load change loses none of its samples. The row of a suspect
 shows both branches merged with the weights known then; its flag says so.
 
 **Bursts.** Interference often spoils two or three samples in a row. When the sample
-after a suspect is itself suspect *as seen from the "outlier" branch* (beyond its gate,
-or a jump on its own), nothing is decided yet: "used" takes it, "outlier" holds it too as
-the next of a burst (prior probability ``_LOG_BURST_GO_ON`` that an outlier is followed by
-another), up to ``_BURST_MAX`` samples; the first sample that is not suspect from the
-"outlier" branch, or the one after the longest burst, decides between "all used" and "all
-outliers". A load change keeps moving away from the outlier branch's prediction, so it is
-held the longest burst and then confirmed by every sample since its first. Without this a
-burst of two 50σ samples on an invented cell sampled 66 times a period was taken as two
-force jumps, out and back: 60 N off on a 200 N cell for a few rows.
+after a suspect is beyond the gate *as seen from the "outlier" branch*, and "used" is not
+already decided by it (`_burst_goes_on`), nothing is decided yet: "used" takes it,
+"outlier" holds it too as the next of a burst (prior probability ``_LOG_BURST_GO_ON``
+that an outlier is followed by another), up to ``_BURST_MAX`` samples; the first sample
+not held, or the one after the longest burst, decides between "all used" and "all
+outliers". Without this a burst of two 50σ samples on an invented cell sampled 66 times
+a period was taken as two force jumps, out and back: 60 N off on a 200 N cell for a few
+rows.
 
 Sources: H. A. P. Blom, Y. Bar-Shalom, "The interacting multiple model algorithm for
 systems with Markovian switching coefficients", IEEE Trans. Automatic Control 33(8),
@@ -495,10 +494,23 @@ def _suspect_weighed(z, R, gate2, jump, jump_end, x, P, jbest, lw, total):
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
-def _suspect(z, R, gate2, jump, jump_end, x, P, mu, jbest, lw):
-    """`_suspect_weighed` with the weights computed here (into ``lw``)."""
-    _, total = _weigh(z, R, x, P, mu, lw)
-    return _suspect_weighed(z, R, gate2, jump, jump_end, x, P, jbest, lw, total)
+def _burst_goes_on(z, R, gate2, la, lb, outlier_sd, outlier_tail, prune, xb, Pb, mub, lw):
+    """Hold ``z`` as the next sample of a burst? Yes when it is beyond the gate of the
+    "outliers" branch's most probable model and "all used" (log weight ``la`` with ``z``)
+    is not already decided against both readings of that branch (log weight ``lb``
+    without ``z``): ``z`` held as an outlier too, or ``z`` used after the held outliers.
+    A load change that has just started keeps moving away from that branch's prediction,
+    but "all used" explains it at once; without the second condition a spike soon after
+    the start of a change was held with the change's first samples and used with them."""
+    zb, sb, jb = _predicted(R, prune, xb, Pb, mub)
+    yb = z - xb[jb, 0]
+    if yb * yb <= gate2 * (Pb[jb, 0, 0] + R):
+        return False
+    so2 = outlier_sd * outlier_sd + sb
+    held = lb + _LOG_BURST_GO_ON + _outlier_log_density(z - zb, so2, outlier_tail)
+    lmax, total = _weigh(z, R, xb, Pb, mub, lw)
+    used_after = lb + lmax + math.log(total)
+    return 1.0 / (1.0 + math.exp(_logaddexp(held, used_after) - la)) < 1.0 - _DECIDED
 
 
 @numba.njit(cache=True, nogil=True)
@@ -552,6 +564,7 @@ def imm_block(
     d = np.empty(4)
     T = np.empty((4, 4))
     lj = np.empty(r)
+    lw = np.empty(r)
     ca = np.empty(r)
     cb = np.empty(r)
     keep = np.empty(r, np.int64)
@@ -592,14 +605,15 @@ def imm_block(
         else:
             if pending:
                 before = _logaddexp(log_1m_eps + pend[1], log_eps + pend[2])
-                # is the sample an outlier too, seen from branch "outliers" (a burst)?
-                zb, sb, jb = _predicted(R, prune, xb, Pb, mub)
-                if pend[0] < _BURST_MAX and _suspect(
-                    zk, R, gate2, jump, jump_end, xb, Pb, mub, jb, lj
-                ):
+                lmax, total = _weigh(zk, R, xa, Pa, mua, lj)
+                if pend[0] < _BURST_MAX and _burst_goes_on(
+                    zk, R, gate2, log_1m_eps + pend[1] + lmax + math.log(total),
+                    log_eps + pend[2], outlier_sd, outlier_tail, prune, xb, Pb, mub, lw,
+                ):  # fmt: skip
                     # both branches go on: "used" takes the sample, "outliers" holds it
                     # as the next of a burst; a sample that comes back decides
-                    pend[1] += _update(zk, R, floor, xa, Pa, PDa, mua, lj, d, T)
+                    zb, sb, _ = _predicted(R, prune, xb, Pb, mub)
+                    pend[1] += _apply(zk, R, floor, xa, Pa, PDa, mua, lj, lmax, total, d, T)
                     pend[2] += _LOG_BURST_GO_ON + _outlier_log_density(
                         zk - zb, outlier_sd * outlier_sd + sb, outlier_tail
                     )
@@ -610,7 +624,8 @@ def imm_block(
                     # weigh "suspects used" against "suspects outliers" by every sample
                     # since the first; their joint log density, less what the held rows
                     # entered, is this row's share of the likelihood
-                    la = log_1m_eps + pend[1] + _update(zk, R, floor, xa, Pa, PDa, mua, lj, d, T)
+                    la = log_1m_eps + pend[1]
+                    la += _apply(zk, R, floor, xa, Pa, PDa, mua, lj, lmax, total, d, T)
                     lb = log_eps + pend[2] + _update(zk, R, floor, xb, Pb, PDb, mub, lj, d, T)
                     out_ll[k] = _logaddexp(la, lb) - before
                     held = int(pend[0])
