@@ -495,22 +495,24 @@ def _suspect_weighed(z, R, gate2, jump, jump_end, x, P, jbest, lw, total):
 
 @numba.njit(cache=True, nogil=True, inline="always")
 def _burst_goes_on(z, R, gate2, la, lb, outlier_sd, outlier_tail, prune, xb, Pb, mub, lw):
-    """Hold ``z`` as the next sample of a burst? Yes when it is beyond the gate of the
-    "outliers" branch's most probable model and "all used" (log weight ``la`` with ``z``)
-    is not already decided against both readings of that branch (log weight ``lb``
-    without ``z``): ``z`` held as an outlier too, or ``z`` used after the held outliers.
-    A load change that has just started keeps moving away from that branch's prediction,
-    but "all used" explains it at once; without the second condition a spike soon after
-    the start of a change was held with the change's first samples and used with them."""
+    """Hold ``z`` as the next sample of a burst? Returns the log weight it adds to the
+    "outliers" branch if so, NaN if not. Held when ``z`` is beyond the gate of that
+    branch's most probable model and "all used" (log weight ``la`` with ``z``) is not
+    already decided against both readings of that branch (log weight ``lb`` without
+    ``z``): ``z`` held as an outlier too, or ``z`` used after the held outliers. A load
+    change that has just started keeps moving away from that branch's prediction, but "all
+    used" explains it at once; without the second condition a spike soon after the start
+    of a change was held with the change's first samples and used with them."""
     zb, sb, jb = _predicted(R, prune, xb, Pb, mub)
     yb = z - xb[jb, 0]
     if yb * yb <= gate2 * (Pb[jb, 0, 0] + R):
-        return False
+        return math.nan
     so2 = outlier_sd * outlier_sd + sb
-    held = lb + _LOG_BURST_GO_ON + _outlier_log_density(z - zb, so2, outlier_tail)
+    added = _LOG_BURST_GO_ON + _outlier_log_density(z - zb, so2, outlier_tail)
     lmax, total = _weigh(z, R, xb, Pb, mub, lw)
     used_after = lb + lmax + math.log(total)
-    return 1.0 / (1.0 + math.exp(_logaddexp(held, used_after) - la)) < 1.0 - _DECIDED
+    wa = 1.0 / (1.0 + math.exp(_logaddexp(lb + added, used_after) - la))
+    return added if wa < 1.0 - _DECIDED else math.nan
 
 
 @numba.njit(cache=True, nogil=True)
@@ -606,17 +608,17 @@ def imm_block(
             if pending:
                 before = _logaddexp(log_1m_eps + pend[1], log_eps + pend[2])
                 lmax, total = _weigh(zk, R, xa, Pa, mua, lj)
-                if pend[0] < _BURST_MAX and _burst_goes_on(
-                    zk, R, gate2, log_1m_eps + pend[1] + lmax + math.log(total),
-                    log_eps + pend[2], outlier_sd, outlier_tail, prune, xb, Pb, mub, lw,
-                ):  # fmt: skip
+                added = math.nan
+                if pend[0] < _BURST_MAX:
+                    added = _burst_goes_on(
+                        zk, R, gate2, log_1m_eps + pend[1] + lmax + math.log(total),
+                        log_eps + pend[2], outlier_sd, outlier_tail, prune, xb, Pb, mub, lw,
+                    )  # fmt: skip
+                if not math.isnan(added):
                     # both branches go on: "used" takes the sample, "outliers" holds it
                     # as the next of a burst; a sample that comes back decides
-                    zb, sb, _ = _predicted(R, prune, xb, Pb, mub)
                     pend[1] += _apply(zk, R, floor, xa, Pa, PDa, mua, lj, lmax, total, d, T)
-                    pend[2] += _LOG_BURST_GO_ON + _outlier_log_density(
-                        zk - zb, outlier_sd * outlier_sd + sb, outlier_tail
-                    )
+                    pend[2] += added
                     pend[0] += 1.0
                     flag |= FLAG_OUT_SUSPECT
                     out_ll[k] = _logaddexp(log_1m_eps + pend[1], log_eps + pend[2]) - before
