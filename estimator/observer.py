@@ -159,7 +159,7 @@ class ObserverTuning:
         models: the bank of force priors; default `ForceModels.for_cell`.
     """
 
-    force_bandwidth_hz: float = 5.0
+    force_bandwidth_hz: float = 10.0
     process_noise_n2_per_s: float | None = None
     gate_sigma: float = 5.0
     outlier_probability: float = 1e-3

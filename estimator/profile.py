@@ -428,7 +428,7 @@ class ObserverSection:
 
     TABLE: ClassVar[str] = "observer"
 
-    force_bandwidth_hz: float = 5.0
+    force_bandwidth_hz: float = 10.0
     process_noise_n2_per_s: float | None = None
     gate_sigma: float = 5.0
     rate_scale: float = 1.0

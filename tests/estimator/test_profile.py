@@ -66,7 +66,7 @@ def test_demo_profile_loads_with_the_specified_values() -> None:
     assert profile.acquisition == AcquisitionSection(sample_rate_hz=2000.0)
     assert profile.acquisition.port == ""
     assert profile.observer == ObserverSection(
-        force_bandwidth_hz=5.0, gate_sigma=5.0, rate_scale=1.0
+        force_bandwidth_hz=10.0, gate_sigma=5.0, rate_scale=1.0
     )
     assert profile.limits == LimitsSection(force_min_n=-10.0, force_max_n=120.0, travel_m=5.0e-4)
 
