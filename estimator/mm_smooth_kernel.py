@@ -23,7 +23,7 @@ from __future__ import annotations
 import numba
 import numpy as np
 
-__all__ = ["kim_backward"]
+__all__ = ["kim_backward", "kim_backward_block", "kim_last"]
 
 _NEGLIGIBLE = 1e-12  # pairs less probable than this are skipped
 
@@ -41,10 +41,56 @@ def kim_backward(
     out_var: np.ndarray,  # (n, 4) its variances
     out_mu: np.ndarray,  # (n, r) smoothed mode probabilities
 ) -> None:
+    """The backward pass over a whole record."""
     n, r = fmu.shape
-    sx = fx[n - 1].copy()
-    sP = fP[n - 1].copy()
-    smu = fmu[n - 1].copy()
+    sx, sP, smu = np.empty((r, 4)), np.empty((r, 4, 4)), np.empty(r)
+    kim_last(fx[n - 1], fP[n - 1], fmu[n - 1], sx, sP, smu,
+             out_x[n - 1 :], out_var[n - 1 :], out_mu[n - 1 :])  # fmt: skip
+    kim_backward_block(table[1:], PHI, Q, PI, fx[: n - 1], fP[: n - 1], fmu[: n - 1],
+                       sx, sP, smu, out_x, out_var, out_mu)  # fmt: skip
+
+
+@numba.njit(cache=True, nogil=True)
+def kim_last(
+    fx: np.ndarray,  # (r, 4) filtered per-model states of a record's last sample
+    fP: np.ndarray,  # (r, 4, 4) their covariances
+    fmu: np.ndarray,  # (r,) its filtered mode probabilities
+    sx: np.ndarray,  # (r, 4) out: its smoothed per-model states (the same)
+    sP: np.ndarray,  # (r, 4, 4) out: their covariances
+    smu: np.ndarray,  # (r,) out: its smoothed mode probabilities
+    out_x: np.ndarray,  # (1, 4) smoothed combined state
+    out_var: np.ndarray,  # (1, 4) its variances
+    out_mu: np.ndarray,  # (1, r) smoothed mode probabilities
+) -> None:
+    """The last sample, where the smoothed posterior is the filtered one: the start of the
+    backward pass."""
+    sx[:] = fx
+    sP[:] = fP
+    smu[:] = fmu
+    _emit(0, sx, sP, smu, out_x, out_var, out_mu)
+
+
+@numba.njit(cache=True, nogil=True)
+def kim_backward_block(
+    table: np.ndarray,  # (n,) table row of the step OUT of each sample (into the next)
+    PHI: np.ndarray,  # (nt, r, 4, 4)
+    Q: np.ndarray,  # (nt, r, 4, 4)
+    PI: np.ndarray,  # (nt, r, r)
+    fx: np.ndarray,  # (n, r, 4) filtered per-model states of the block
+    fP: np.ndarray,  # (n, r, 4, 4) their covariances
+    fmu: np.ndarray,  # (n, r) filtered mode probabilities
+    sx: np.ndarray,  # (r, 4) smoothed per-model states of the sample after the block
+    sP: np.ndarray,  # (r, 4, 4) their covariances
+    smu: np.ndarray,  # (r,) its smoothed mode probabilities
+    out_x: np.ndarray,  # (n, 4) smoothed combined state
+    out_var: np.ndarray,  # (n, 4) its variances
+    out_mu: np.ndarray,  # (n, r) smoothed mode probabilities
+) -> None:
+    """The backward pass over one block of a record, from the smoothed state of the
+    sample that follows it (``sx, sP, smu``, left holding the block's first sample's): the
+    blocks of a record taken last to first give the same numbers, bit for bit, as the
+    whole record at once."""
+    n, r = fmu.shape
     nx = np.empty((r, 4))
     nP = np.empty((r, 4, 4))
     nmu = np.empty(r)
@@ -57,9 +103,8 @@ def kim_backward(
     xij = np.empty((r, 4))
     Pij = np.empty((r, 4, 4))
     dx = np.empty(4)
-    _emit(n - 1, sx, sP, smu, out_x, out_var, out_mu)
-    for k in range(n - 2, -1, -1):
-        it = table[k + 1]
+    for k in range(n - 1, -1, -1):
+        it = table[k]
         for j in range(r):
             c = 0.0
             for i in range(r):
