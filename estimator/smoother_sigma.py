@@ -26,16 +26,24 @@ seed, so the result is reproducible to the bit.
 
 from __future__ import annotations
 
-from collections.abc import Callable
+from collections.abc import Callable, Iterable, Iterator
 
 import numpy as np
 from scipy.ndimage import uniform_filter1d
 
-__all__ = ["smoother_variance"]
+from estimator.spill import SpillFolder, chunks
+
+__all__ = ["smoother_variance", "smoother_variance_in_slices"]
 
 REPLICAS = 8  # simulated noise records
 WINDOW = 101  # samples averaged for the noise variance
 SEED = 20261204  # fixed: the same record gives the same σ on every machine
+
+#: ``smooth(record, emit)``: the smoother with its gains fixed, given a record's slices in
+#: order (displacement, m, NaN where left out), calls ``emit(first row, smoothed force N)``
+#: once per slice, in any order.
+SliceSmoother = Callable[[Iterable[np.ndarray], Callable[[int, np.ndarray], None]], None]
+Rows = Callable[[int, int], np.ndarray]  # rows a..b of a record-long quantity
 
 
 def smoother_variance(
@@ -58,13 +66,82 @@ def smoother_variance(
         smoothed_force_n: its smoothed force.
         noise_sd_m: standard deviation of one measurement (noise and quantisation).
     """
-    missing = np.isnan(displacement_m)
     n = displacement_m.size
+    out = np.empty(n)
+    if n == 0:
+        return out
+
+    def whole(record: Iterable[np.ndarray], emit: Callable[[int, np.ndarray], None]) -> None:
+        emit(0, smooth(next(iter(record))))
+
+    def keep(a: int, values: np.ndarray) -> None:
+        out[a : a + values.size] = values
+
+    with SpillFolder(in_files=False) as scratch:
+        smoother_variance_in_slices(
+            whole,
+            lambda a, b: np.isnan(displacement_m[a:b]),
+            lambda a, b: smoothed_displacement_m[a:b],
+            lambda a, b: smoothed_force_n[a:b],
+            noise_sd_m,
+            n,
+            scratch,
+            keep,
+            replicas=replicas,
+            window=window,
+            chunk=max(n, 1),
+        )
+    return out
+
+
+def smoother_variance_in_slices(
+    smooth: SliceSmoother,
+    missing: Rows,
+    smoothed_displacement_m: Rows,
+    smoothed_force_n: Rows,
+    noise_sd_m: float,
+    n: int,
+    scratch: SpillFolder,
+    emit: Callable[[int, np.ndarray], None],
+    *,
+    replicas: int = REPLICAS,
+    window: int = WINDOW,
+    chunk: int,
+) -> None:
+    """`smoother_variance` of a record of ``n`` rows walked through in slices of ``chunk``
+    rows (the noise power is kept in ``scratch``): ``emit(first row, variance N²)`` once per
+    slice. On a record of one slice the numbers are those of `smoother_variance`."""
     rng = np.random.default_rng(SEED)
-    power = np.zeros(n)
-    for _ in range(replicas):
-        noise = np.where(missing, np.nan, rng.normal(0.0, noise_sd_m, n))
-        power += smooth(noise) ** 2
-    noise_var = uniform_filter1d(power / replicas, size=min(window, n), mode="nearest")
-    bias = smooth(np.where(missing, np.nan, smoothed_displacement_m)) - smoothed_force_n
-    return noise_var + bias * bias
+    power = scratch.reused("noise_power", n, np.float64)
+
+    def noise() -> Iterator[np.ndarray]:
+        for a, b in chunks(0, n, chunk):
+            yield np.where(missing(a, b), np.nan, rng.normal(0.0, noise_sd_m, b - a))
+
+    for replica in range(replicas):
+
+        def add(a: int, force: np.ndarray, first: bool = replica == 0) -> None:
+            power.write(a, force**2 if first else power.read(a, a + force.size) + force**2)
+
+        smooth(noise(), add)
+    size = min(window, n)
+
+    def noise_var(a: int, b: int) -> np.ndarray:
+        # the moving average of rows a..b from the rows it reaches
+        lo, hi = max(a - window, 0), min(b + window, n)
+        return uniform_filter1d(power.read(lo, hi) / replicas, size=size, mode="nearest")[
+            a - lo : b - lo
+        ]
+
+    def with_bias(a: int, force: np.ndarray) -> None:
+        b = a + force.size
+        bias = force - smoothed_force_n(a, b)
+        emit(a, noise_var(a, b) + bias * bias)
+
+    smooth(
+        (
+            np.where(missing(a, b), np.nan, smoothed_displacement_m(a, b))
+            for a, b in chunks(0, n, chunk)
+        ),
+        with_bias,
+    )

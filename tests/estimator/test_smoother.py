@@ -4,6 +4,7 @@ does on whole records. Cells and loads are invented; randomness is seeded."""
 from __future__ import annotations
 
 import math
+import os
 
 import numpy as np
 import pytest
@@ -12,10 +13,10 @@ from filterpy.kalman import KalmanFilter
 
 from estimator.force_models import FAMILY_HOLD, FAMILY_RATE, ForceModels, model_tables
 from estimator.mm_kernel import imm_block
-from estimator.mm_smooth_kernel import kim_backward
+from estimator.mm_smooth_kernel import kim_backward, kim_backward_block, kim_last
 from estimator.observer import ForceObserver, ObserverTuning
 from estimator.plant import Plant
-from estimator.smoother import fit_prior, smooth_record
+from estimator.smoother import RecordSmoother, fit_prior, smooth_record
 
 # Invented cell: 0.4 kg, 4e5 N/m, ζ = 0.12 (fn ≈ 159 Hz), 2 kHz, 50 nm noise.
 CELL = Plant.from_modal(1000.0, 0.12, 4.0e5)
@@ -148,3 +149,57 @@ def test_a_search_point_where_the_filter_breaks_down_is_passed_over() -> None:
     t[0] = -1.0
     sm = smooth_record(_observer(), t, x)
     assert np.all(np.isfinite(sm["force_n"])) and np.all(np.isfinite(sm["force_u_n"]))
+
+
+def test_backward_pass_in_slices_is_the_whole_pass_bit_for_bit() -> None:
+    # The smoother walks long records a slice at a time, last to first, carrying the
+    # smoothed state of the sample after each slice: the same numbers as one pass.
+    bank = ForceModels.for_cell(CELL, SPAN, 10.0)
+    PHI, Q, PI = model_tables(CELL, bank, np.array([DT, 2 * DT]))
+    r = PHI.shape[1]
+    rng = np.random.default_rng(5)
+    n = 300
+    fx = rng.normal(size=(n, r, 4))
+    A = rng.normal(size=(n, r, 4, 4))
+    fP = A @ np.swapaxes(A, -1, -2) + 0.1 * np.eye(4)
+    fmu = rng.random((n, r))
+    fmu /= fmu.sum(axis=1, keepdims=True)
+    rows = rng.integers(0, 2, n)
+    whole = [np.empty((n, 4)), np.empty((n, 4)), np.empty((n, r))]
+    kim_backward(rows, PHI, Q, PI, fx, fP, fmu, *whole)
+    parts = [np.empty((n, 4)), np.empty((n, 4)), np.empty((n, r))]
+    sx, sP, smu = np.empty((r, 4)), np.empty((r, 4, 4)), np.empty(r)
+    kim_last(fx[-1], fP[-1], fmu[-1], sx, sP, smu, *(p[n - 1 :] for p in parts))
+    for a, b in ((200, n - 1), (77, 200), (0, 77)):
+        kim_backward_block(rows[a + 1 : b + 1], PHI, Q, PI, fx[a:b], fP[a:b], fmu[a:b],
+                           sx, sP, smu, *(p[a:b] for p in parts))  # fmt: skip
+    for w, p in zip(whole, parts, strict=True):
+        assert np.array_equal(w, p)
+
+
+def test_a_record_smoothed_in_slices_from_files_matches_the_whole_one() -> None:
+    # RecordSmoother (blocks in, arrays in files) against smooth_record (arrays in memory):
+    # bit for bit with the same slices; against one slice, to rounding (the likelihood
+    # is summed and the noise power averaged slice by slice).
+    t = np.arange(2600) * DT
+    force = np.where(t < 0.4, 10.0, 60.0) + 30.0 * np.clip(t - 0.9, 0.0, 0.2)
+    z = _record(force, t, seed=4)
+    z[[100, 1500]] += 50 * NOISE  # two outliers
+    t[1800:] += 120.0  # a silence that restarts the observer
+    whole = smooth_record(_observer(), t, z)
+    sliced = smooth_record(_observer(), t, z, chunk=500)
+    with RecordSmoother(_observer(), chunk=500) as smoother:
+        for a in range(0, t.size, 333):
+            smoother.add(t[a : a + 333], z[a : a + 333])
+        smoother.smooth()
+        got = list(smoother.rows())
+        folder = smoother._scratch._tmp.name  # type: ignore[union-attr]
+    assert [e.size for e, _ in got] == [500] * 5 + [100]
+    from_files = np.concatenate([e for e, _ in got])
+    assert np.array_equal(np.concatenate([d for _, d in got]), z)
+    for name in whole.dtype.names:
+        assert np.array_equal(from_files[name], sliced[name], equal_nan=True), name
+    np.testing.assert_allclose(sliced["force_n"], whole["force_n"], rtol=1e-9, atol=1e-9)
+    np.testing.assert_allclose(sliced["force_u_n"], whole["force_u_n"], rtol=1e-6)
+    assert np.array_equal(sliced["flags"], whole["flags"])
+    assert not os.path.exists(folder)
