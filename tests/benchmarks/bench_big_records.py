@@ -21,16 +21,17 @@ file, print beside them as ratios:
   `read_displacement_csv`, the whole arrays) against ``numpy.loadtxt`` on the whole file
   and against a plain read of its bytes (the I/O floor);
 * ``forcelens replay big.csv --out est.csv``, ``forcelens replay RUN --out est.csv`` and
-  ``forcelens export RUN`` (CSV, ``--format mat``, ``--format hdf5``), and (``--only
-  report``) ``forcelens report RUN`` and ``forcelens audit RUN`` (against that report)
-  against the observer alone on the same samples in memory
+  ``forcelens export RUN`` (CSV, ``--format mat``, ``--format hdf5``), (``--only
+  report``) ``forcelens report RUN`` and ``forcelens audit RUN`` (against that report),
+  and (``--only smooth``) ``forcelens replay big.csv --smooth --out est.csv``, against the
+  observer alone on the same samples in memory
   (``ForceObserver.process``, no file read or written): the pipeline's cost beyond the
   observer, which is being sped up separately.
 
 It asserts nothing: these machines are shared and noisy.
 
     .venv/bin/python tests/benchmarks/bench_big_records.py [--rows N] [--repeat R]
-        [--only reader|pipeline|export|report] [--source DIR] [--tmp DIR]
+        [--only reader|pipeline|export|report|smooth] [--source DIR] [--tmp DIR]
 
 ``--source`` runs forcelens from another tree (``git archive HEAD | tar -x -C DIR``: a
 snapshot, so that edits in the working tree during the run change nothing).
@@ -222,7 +223,7 @@ def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     parser.add_argument("--rows", type=int, default=10_000_000)
     parser.add_argument("--repeat", type=int, default=3)
-    parser.add_argument("--only", choices=("reader", "pipeline", "export", "report"))
+    parser.add_argument("--only", choices=("reader", "pipeline", "export", "report", "smooth"))
     parser.add_argument("--source", type=Path, default=ROOT, help="tree to run forcelens from")
     parser.add_argument("--tmp", type=Path, help="folder for the invented files (default: temp)")
     args = parser.parse_args()
@@ -240,7 +241,7 @@ def main() -> None:
         # Numba compiles the observer's kernel once and caches it beside the source; a
         # process that compiles holds ~200 MB more. Warm the cache first (not measured).
         measure(["-c", _WARM_UP], source)
-        if args.only not in ("pipeline", "export", "report"):
+        if args.only not in ("pipeline", "export", "report", "smooth"):
             print("CSV reader:")
             got = {}
             for name, code in (
@@ -276,6 +277,9 @@ def main() -> None:
               "--force"]),
             ("replay RUN --out est.csv",
              [*cli, "replay", str(folder), "--out", str(out), "--force"]),
+            ("smooth: replay big.csv --smooth --out est.csv",
+             [*cli, "replay", str(big), "--profile", str(profile), "--smooth", "--out",
+              str(out), "--force"]),
             ("export RUN (samples, CSV)",
              [*cli, "export", str(folder), "--out", str(out), "--force"]),
             ("export RUN --format mat",
@@ -292,6 +296,7 @@ def main() -> None:
                 "pipeline": ("observer", "replay", "export"),
                 "export": ("observer", "export"),
                 "report": ("observer", "report", "audit"),
+                "smooth": ("observer", "smooth"),
             }[args.only]
             if not name.startswith(wanted):
                 continue

@@ -114,17 +114,13 @@ def _replay_csv(args: argparse.Namespace, source: Path, speed: float) -> int:
     if not args.out:
         raise ValueError(f"{source}: give --out FILE for the estimates")
     profile = load_profile(args.profile)
-    if args.smooth:
-        from daq.csvfile import read_displacement_csv
-
-        t, x = read_displacement_csv(source)
-        blocks = [_samples_of(t, x)]
-    else:  # read, estimated and written a chunk at a time: bounded memory
-        blocks = _csv_blocks_shown(source)
     replay = _Replay(args, profile, [], speed)
     with replay.writing():
-        for block in blocks:
+        # read, estimated and written a chunk at a time: bounded memory (the smoother
+        # keeps the record in temporary files)
+        for block in _csv_blocks_shown(source):
             replay.feed(block)
+        replay.complete()
     replay.finish()
     c = replay.observer.counters
     print(
@@ -132,20 +128,6 @@ def _replay_csv(args: argparse.Namespace, source: Path, speed: float) -> int:
         f"gaps {c.gaps}, load jumps {c.jumps}{_restarted(replay.observer)}"
     )
     return 0
-
-
-def _samples_of(t: Any, x: Any) -> Any:
-    """A whole CSV record as one sample block (for the smoother, which needs it all)."""
-    import numpy as np
-
-    from daq.samples import empty_block
-
-    samples = empty_block(t.size)
-    samples["seq"] = np.arange(t.size)
-    samples["device_time_s"] = t
-    samples["host_time_s"] = math.nan
-    samples["displacement_m"] = x
-    return samples
 
 
 def _csv_blocks_shown(source: Path) -> Any:
@@ -168,7 +150,6 @@ def _csv_blocks(source: Path) -> Any:
 
 
 def _replay_run(args: argparse.Namespace, folder: Path, speed: float) -> int:
-    import numpy as np
 
     from daq.runs import read_run
     from daq.runs.blocks import iter_stream_blocks
@@ -206,14 +187,12 @@ def _replay_run(args: argparse.Namespace, folder: Path, speed: float) -> int:
     if ESTIMATE_STREAM in data.streams and not args.smooth:
         live = LiveComparison(data, ESTIMATE_STREAM, _BLOCK)
     replay = _Replay(args, profile, tares, speed, live)
-    with replay.writing(), bar(n_samples, "estimating") as shown:
-        if args.smooth:
-            blocks: Any = [np.asarray(data.samples)]
-        else:  # a block at a time from the file: bounded memory
-            blocks = iter_stream_blocks(data, "samples", _BLOCK)
-        for block in blocks:
-            replay.feed(block if change is None else change.samples(block))
-            shown.update(block.size)
+    with replay.writing():
+        with bar(n_samples, "estimating") as shown:
+            for block in iter_stream_blocks(data, "samples", _BLOCK):  # bounded memory
+                replay.feed(block if change is None else change.samples(block))
+                shown.update(block.size)
+        replay.complete()
     replay.finish()
     c = replay.observer.counters
     print(
@@ -272,6 +251,11 @@ class _Replay:
             self._steps = ColumnFiles(_STEP_COLUMNS)
         self._status: Any = None
         self._clock: tuple[float, float] | None = None  # (monotonic, device time) at start
+        self._smoother: Any = None  # estimator.smoother.RecordSmoother, with --smooth
+        if args.smooth:
+            from estimator.smoother import RecordSmoother
+
+            self._smoother = RecordSmoother(self.pipeline.observer)
 
     @property
     def observer(self) -> Any:
@@ -298,23 +282,30 @@ class _Replay:
         )
 
     def feed(self, samples: Any) -> None:
-        """Estimate one block of samples (the whole record when smoothing)."""
+        """Estimate one block of samples (with ``--smooth``, keep it for `complete`)."""
         self.samples += samples.size
-        if self.args.smooth:
-            from estimator.smoother import smooth_record
-            from ui.progress import busy
-
-            with busy(f"smoothing {samples.size} samples"):
-                est = smooth_record(
-                    self.pipeline.observer, samples["device_time_s"], samples["displacement_m"]
-                )
-            self._use(est, samples)
+        if self._smoother is not None:
+            self._smoother.add(samples["device_time_s"], samples["displacement_m"])
         elif math.isinf(self.speed):
             for start in range(0, samples.size, _BLOCK):
                 part = samples[start : start + _BLOCK]
                 self._use(self.pipeline.process(part), part)
         else:
             self._paced(samples)
+
+    def complete(self) -> None:
+        """The whole record is in: with ``--smooth``, smooth it and use its estimates."""
+        if self._smoother is None:
+            return
+        from ui.progress import busy
+
+        try:
+            with busy(f"smoothing {self.samples} samples"):
+                self._smoother.smooth()
+            for est, displacement in self._smoother.rows():
+                self._use(est, {"displacement_m": displacement})
+        finally:
+            self._smoother.close()
 
     def _paced(self, samples: Any) -> None:
         from ui.status import StatusLine, format_status
