@@ -88,6 +88,9 @@ class ForceModels:
             force rate with the force continuous, N/s; 0 leaves the kink model out.
         kink_share: how often a kink is entered, against a force jump at one of the
             ``jump_timing`` instants.
+        kink_onsets: one more kink model per entry ``m``: a kink in the step that ended
+            ``m`` steps ago, seen only now (a rate change moves a soft or heavy cell so
+            little at first that its first samples stay within the noise).
         constant_floor: the hold model assumes a constant force and the slowest rate
             model a constant rate; their intensities then set only their gains (how
             fast they follow), and their covariances are those of that gain on a
@@ -108,6 +111,8 @@ class ForceModels:
     jump_spread: float = 0.2
     kink_rate_sd_n_per_s: float = 0.0
     kink_share: float = 2.0
+    kink_onsets: tuple[int, ...] = ()
+    late_kink_share: float = 0.3
     constant_floor: bool = True
 
     def __post_init__(self) -> None:
@@ -144,7 +149,12 @@ class ForceModels:
     def count(self) -> int:
         """Number of models: hold, the rate models, the jump models (the timed force
         jumps, then the kink when there is one)."""
-        return self.regular + len(self.jump_timing) + int(self.kink_rate_sd_n_per_s > 0.0)
+        return self.regular + len(self.jump_timing) + self.kinks
+
+    @property
+    def kinks(self) -> int:
+        """Number of kink models (the last ones): within this step, then each onset."""
+        return 1 + len(self.kink_onsets) if self.kink_rate_sd_n_per_s > 0.0 else 0
 
     @property
     def regular(self) -> int:
@@ -190,6 +200,8 @@ class ForceModels:
         rate_scale: float = 1.0,
         kink: float = 0.3,
         constant_floor: bool = True,
+        dt_s: float | None = None,
+        noise_sd_m: float | None = None,
     ) -> ForceModels:
         """The default bank for a cell of natural frequency fn and rated span.
 
@@ -200,7 +212,10 @@ class ForceModels:
         intensities was followed 1.15 times worse than by the integrated random walk
         fitted to it, with seven 1.04). A jump is a quarter of the span; a jump of the rate
         moves the force by 1 % of the span per period of the cell; a kink, by
-        ``kink`` spans per period (see the module notes).
+        ``kink`` spans per period (see the module notes). Given the sampling period and
+        the measurement's standard deviation, the bank also holds a kink model for each
+        step before this one in which a kink of that size could have happened unseen
+        (`late_kink_onsets`).
         """
         _positive("force_span_n", force_span_n)
         if not (isinstance(rates, int) and rates >= 1):
@@ -214,6 +229,11 @@ class ForceModels:
             jump_sd_n=0.25 * force_span_n,
             jump_rate_sd_n_per_s=1e-2 * force_span_n * fn,
             kink_rate_sd_n_per_s=kink * force_span_n * fn,
+            kink_onsets=(
+                late_kink_onsets(plant, kink * force_span_n * fn, dt_s, noise_sd_m)
+                if dt_s is not None and noise_sd_m is not None and kink > 0.0
+                else ()
+            ),
             constant_floor=constant_floor,
         )
 
@@ -225,8 +245,9 @@ class ForceModels:
         # the jump's instant within the step: alike; a kink kink_share times as often as
         # one instant; the whole family capped at 0.5
         weight = np.ones(r - n_reg)
-        if self.kink_rate_sd_n_per_s > 0.0:
-            weight[-1] = self.kink_share
+        if self.kinks:
+            weight[r - n_reg - self.kinks :] = self.kink_share
+            weight[r - n_reg - self.kinks + 1 :] *= self.late_kink_share
         n_timed = len(self.jump_timing)
         p_jump = min(dt_s / self.jump_interval_s * weight.sum() / n_timed, 0.5)
         PI = np.zeros((r, r))
@@ -247,6 +268,35 @@ class ForceModels:
             PI[j, j] = 0.0
             PI[j, j] = 1.0 - PI[j].sum()
         return PI
+
+
+def late_kink_onsets(
+    plant: Plant, kink_rate_n_per_s: float, dt_s: float, noise_sd_m: float
+) -> tuple[int, ...]:
+    """The steps ``1 … m − 1`` before this one, where ``m`` is the number of samples a
+    kink of ``kink_rate_n_per_s`` (from rest) takes to move the displacement by
+    ``_SEEN`` measurement standard deviations (at most ``_LATE_MAX``).
+
+    A mass answers a change of force rate with a displacement that grows as ``t³/6m``
+    at first: on a soft, lightly damped cell sampled many times a period that stays in
+    the noise for a few samples, and by the time the change shows, the kink model (a
+    kink within the last step) no longer fits it; the force jumps took it, and a jump's
+    size is barely known for several samples after (on the invented 40 Hz, ζ = 0.01 cell
+    at 2 kHz: the first tenth of a second of a sine 2× the fitted integrated random walk's
+    error). On stiffer or damped cells a kink shows within one sample and none is added.
+    """
+    a = _continuous(plant, rate_dynamics=True)
+    phi = scipy.linalg.expm(a * dt_s)
+    s = np.array([0.0, 0.0, 0.0, kink_rate_n_per_s])
+    for m in range(1, _LATE_MAX + 1):
+        s = phi @ s
+        if abs(s[0]) > _SEEN * noise_sd_m:
+            return tuple(range(1, m))
+    return tuple(range(1, _LATE_MAX))
+
+
+_SEEN = 3.0  # standard deviations of the noise that make a kink seen
+_LATE_MAX = 6  # a kink seen only after this many samples still gets only 5 late models
 
 
 def _positive(name: str, value: object) -> None:
@@ -309,10 +359,18 @@ def model_tables(
             g = scipy.linalg.expm(a_rate * ((1.0 - tau) * dt)) @ e_f[:, 0]
             timed = models.jump_sd_n**2 * np.outer(g, g)
             Q[t, j] = (timed + models.jump_spread * jump) * outer
-        if models.kink_rate_sd_n_per_s > 0.0:
+        if models.kinks:
             # a kink at an unknown instant: the rate's random walk with its two moments
-            PHI[t, r - 1] = phi_r * ratio
-            Q[t, r - 1] = models.kink_rate_sd_n_per_s**2 / dt * qr_r * outer
+            k0 = r - models.kinks
+            PHI[t, k0] = phi_r * ratio
+            Q[t, k0] = models.kink_rate_sd_n_per_s**2 / dt * qr_r * outer
+            for j, m in enumerate(models.kink_onsets, start=k0 + 1):
+                # a kink δ in the step that ended m steps ago moves the state now by
+                # δ·exp(A·τ)·e_Ḟ, τ from m·dt to (m + 1)·dt: the two ends, alike
+                PHI[t, j] = phi_r * ratio
+                ends = [scipy.linalg.expm(a_rate * (u * dt)) @ e_r[:, 0] for u in (m, m + 1)]
+                late = sum(np.outer(g, g) for g in ends) / 2.0
+                Q[t, j] = models.kink_rate_sd_n_per_s**2 * late * outer
         PI[t] = models.transitions(dt)
     # exp(A·dt) of a block-triangular A: the force depends on no state of the cell and
     # its rate not on the force. Written as exact zeros, which the kernel relies on.

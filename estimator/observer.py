@@ -310,6 +310,8 @@ class ForceObserver:
             q_hold,
             rate_scale=self.tuning.rate_scale,
             constant_floor=self.tuning.constant_floor,
+            dt_s=self.dt_s,
+            noise_sd_m=math.sqrt(self.R),
         )
         self._families = self.models.families
         # the jump model is broad: below `jump_prune` it passes nothing on (see ObserverTuning)
