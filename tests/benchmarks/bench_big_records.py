@@ -150,9 +150,13 @@ for i in range(0, t.size, 16_384):
 
 
 _WARM_UP = """
+import numpy as np
 from estimator.observer import ForceObserver
 from estimator.profile import default_demo_profile
-ForceObserver.from_profile(default_demo_profile()).warm_up()
+from estimator.smoother import smooth_record
+observer = ForceObserver.from_profile(default_demo_profile())
+observer.warm_up()
+smooth_record(observer, np.arange(64) * observer.dt_s, np.zeros(64))  # the smoother's kernels
 """
 
 
@@ -238,8 +242,10 @@ def main() -> None:
             mb = big.stat().st_size / 2**20
             print(f"invented CSV: {n} rows, {mb:.0f} MB, made in {time.perf_counter() - t0:.0f} s")
         print(f"forcelens from {source}; {r} repeats; python {sys.version.split()[0]}")
-        # Numba compiles the observer's kernel once and caches it beside the source; a
-        # process that compiles holds ~200 MB more. Warm the cache first (not measured).
+        # Numba compiles the observer's and the smoother's kernels once and caches them
+        # beside the source; a process that compiles holds ~200 MB more (the smoothed
+        # replay of 10 M rows: 347 MB compiling its backward pass, 263 MB from the cache).
+        # Warm the cache first (not measured).
         measure(["-c", _WARM_UP], source)
         if args.only not in ("pipeline", "export", "report", "smooth"):
             print("CSV reader:")
