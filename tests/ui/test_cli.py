@@ -10,7 +10,14 @@ from pathlib import Path
 
 import numpy as np
 
+from daq.csv_table import read_csv_table
+from daq.runs import read_run
+from estimator.observer import ForceObserver
+from estimator.smoother import smooth_record
 from ui.cli import main
+from ui.wiring import profile_from_text
+
+ROOT = Path(__file__).resolve().parents[2]
 
 
 def test_help_does_not_import_qt() -> None:
@@ -199,3 +206,21 @@ def test_a_real_port_without_a_profile_is_refused(capsys) -> None:
         err = capsys.readouterr().err
         assert err.count("\n") == 1
         assert "--port /dev/ttyUSB7: give the profile" in err and "forcelens profile new" in err
+
+
+def test_replay_run_smooth_is_the_smoother_on_the_runs_samples(tmp_path: Path) -> None:
+    # `replay RUN --smooth` reads the run a block at a time into temporary files; its rows
+    # must be those of smooth_record on the whole arrays, to the bit (the writer's numbers
+    # read back exactly). The repository's demo run: invented data.
+    run = sorted((ROOT / "recordings").glob("*-*"))[0]
+    out = tmp_path / "smoothed.csv"
+    assert main(["replay", str(run), "--smooth", "--out", str(out)]) == 0
+    data = read_run(run)
+    profile = profile_from_text(data.description["profile_toml"], "run.json")
+    samples = data.samples
+    want = smooth_record(
+        ForceObserver.from_profile(profile), samples["device_time_s"], samples["displacement_m"]
+    )
+    got = read_csv_table(out).columns
+    for name in ("force_n", "force_u_n", "displacement_m"):
+        assert np.array_equal(got[name], want[name]), name
