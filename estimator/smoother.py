@@ -66,7 +66,7 @@ from estimator.observer import (
     judged_outliers,
 )
 from estimator.smoother_passes import OneModel, Steps, forward, smooth_pass
-from estimator.smoother_sigma import smoother_variance_in_slices
+from estimator.smoother_sigma import REPLICAS, smoother_variance_in_slices
 from estimator.spill import CHUNK, SpillArray, SpillFolder, chunks
 
 __all__ = ["RecordSmoother", "SmootherFit", "fit_prior", "smooth_record"]
@@ -101,16 +101,25 @@ def fit_prior(obs: ForceObserver, time_s: np.ndarray, displacement_m: np.ndarray
 
 
 def _fit(
-    obs: ForceObserver, steps: Steps, a: int, b: int, z: SpillArray, chunk: int
+    obs: ForceObserver,
+    steps: Steps,
+    a: int,
+    b: int,
+    z: SpillArray,
+    chunk: int,
+    say: Callable[[str], None] = lambda _: None,
 ) -> SmootherFit:
-    """`fit_prior` of rows ``a..b`` of ``z`` (outliers already NaN)."""
+    """`fit_prior` of rows ``a..b`` of ``z`` (outliers already NaN); ``say`` hears of each
+    pass of the filter."""
     best: SmootherFit | None = None
+    passes = itertools.count(1)
     starts = {FAMILY_HOLD: obs.models.q_hold_n2_per_s, FAMILY_RATE: obs.models.q_rate_n2_per_s3[0]}
     for family, q0 in starts.items():
 
         def ll(p: tuple[float, ...], family: int = family) -> float:
             # far out on the grid (a tiny noise after a long gap) the filter can break
             # down numerically; such a point has likelihood −∞ and the search turns back
+            say(f"fitting the force prior, pass {next(passes)}")
             model = OneModel.of(obs, family, p[0], p[1], steps.dts)
             record = (z.read(ca, cb) for ca, cb in chunks(a, b, chunk))
             try:
@@ -230,11 +239,12 @@ class RecordSmoother:
         self._record.z.append(z)
         self._record.live.append(live)
 
-    def smooth(self) -> None:
-        """Smooth the record fed so far (all of the work)."""
+    def smooth(self, say: Callable[[str], None] = lambda _: None) -> None:
+        """Smooth the record fed so far (all of the work); ``say`` hears which pass over
+        the record is under way (for a progress display)."""
         n = self._record.n
         self._out = self._scratch.reused("smoothed", n, ESTIMATE_DTYPE)
-        _smooth(self.observer, self._record, self._out, self._scratch, self._chunk)
+        _smooth(self.observer, self._record, self._out, self._scratch, self._chunk, say)
 
     def rows(self) -> Iterator[tuple[np.ndarray, np.ndarray]]:
         """``(estimates, displacement_m)`` of the record, a slice at a time, in order:
@@ -256,15 +266,31 @@ class RecordSmoother:
 
 
 def _smooth(
-    observer: ForceObserver, record: _Record, out: SpillArray, scratch: SpillFolder, chunk: int
+    observer: ForceObserver,
+    record: _Record,
+    out: SpillArray,
+    scratch: SpillFolder,
+    chunk: int,
+    say: Callable[[str], None] = lambda _: None,
 ) -> None:
     """Smoothed rows of the whole record into ``out``: each stretch between silences that
     restarted the live pass is smoothed alone (a record of its own)."""
-    for a, b in _stretches(observer, record.t, chunk):
+    stretches = _stretches(observer, record.t, chunk)
+    for i, (a, b) in enumerate(stretches, start=1):
         if b - a < 2:
             out.write(a, record.live.read(a, b))
         else:
-            _smooth_stretch(observer, record, a, b, out, scratch, chunk)
+            where = f"stretch {i} of {len(stretches)}: " if len(stretches) > 1 else ""
+            _smooth_stretch(
+                observer,
+                record,
+                a,
+                b,
+                out,
+                scratch,
+                chunk,
+                lambda text, where=where: say(where + text),
+            )
 
 
 def _stretches(observer: ForceObserver, t: SpillArray, chunk: int) -> list[tuple[int, int]]:
@@ -295,6 +321,7 @@ def _smooth_stretch(
     out: SpillArray,
     scratch: SpillFolder,
     chunk: int,
+    say: Callable[[str], None],
 ) -> None:
     n = record.n
     # the samples the live pass judged outliers are left out
@@ -304,7 +331,7 @@ def _smooth_stretch(
         z[_outliers(record.live, a, ca, cb)] = np.nan
         z_clean.write(ca, z)
     steps = Steps.of(obs, record.t, a, b, scratch.reused("step_rows", n, np.int64), chunk)
-    fit = _fit(obs, steps, a, b, z_clean, chunk)
+    fit = _fit(obs, steps, a, b, z_clean, chunk, say)
     model = OneModel.of(obs, fit.family, fit.intensity, fit.noise_scale, steps.dts)
 
     def smooth(values: Iterable[np.ndarray], emit: Callable[[int, np.ndarray], None]) -> None:
@@ -312,11 +339,18 @@ def _smooth_stretch(
         smooth_pass(model, steps, a, b, values, scratch, emit, chunk)
 
     state = scratch.reused("smoothed_state", n, np.float64, (4,))
+    say("smoothing")
     smooth((z_clean.read(ca, cb) for ca, cb in chunks(a, b, chunk)), state.write)
     D = scaling(obs.plant)
     var = scratch.reused("smoothed_var", n, np.float64)
+    passes = itertools.count(1)
+
+    def force(values: Iterable[np.ndarray], emit: Callable[[int, np.ndarray], None]) -> None:
+        say(f"its uncertainty, pass {next(passes)} of {REPLICAS + 1}")
+        smooth(values, lambda ca, x: emit(ca - a, x[:, 2]))
+
     smoother_variance_in_slices(
-        lambda values, emit: smooth(values, lambda ca, x: emit(ca - a, x[:, 2])),
+        force,
         lambda i, j: np.isnan(z_clean.read(a + i, a + j)),
         lambda i, j: state.read(a + i, a + j)[:, 0] / D[0],
         lambda i, j: state.read(a + i, a + j)[:, 2],

@@ -17,7 +17,7 @@ from __future__ import annotations
 import contextlib
 import sys
 import threading
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from contextvars import ContextVar
 from typing import Any
 
@@ -70,10 +70,11 @@ def bar(total: int, what: str, *, unit: str = "samples", enabled: bool | None = 
 
 
 @contextlib.contextmanager
-def busy(what: str, *, enabled: bool | None = None) -> Iterator[None]:
-    """Elapsed time of a long call on stderr while the block runs (terminal only)."""
+def busy(what: str, *, enabled: bool | None = None) -> Iterator[Callable[[str], None]]:
+    """Elapsed time of a long call on stderr while the block runs (terminal only). The
+    block gets a function that says what the call is doing now (shown after ``what``)."""
     if not (_on_terminal() if enabled is None else enabled):
-        yield
+        yield lambda _: None
         return
     from tqdm import tqdm
 
@@ -86,10 +87,13 @@ def busy(what: str, *, enabled: bool | None = None) -> Iterator[None]:
         while not stop.wait(_REDRAW_S):
             shown.refresh()
 
+    def say(text: str) -> None:
+        shown.set_description_str(f"{what}: {text}", refresh=False)
+
     thread = threading.Thread(target=redraw, name="forcelens-busy", daemon=True)
     thread.start()
     try:
-        yield
+        yield say
     finally:
         stop.set()
         thread.join()

@@ -191,7 +191,8 @@ def test_a_record_smoothed_in_slices_from_files_matches_the_whole_one() -> None:
     with RecordSmoother(_observer(), chunk=500) as smoother:
         for a in range(0, t.size, 333):
             smoother.add(t[a : a + 333], z[a : a + 333])
-        smoother.smooth()
+        said: list[str] = []
+        smoother.smooth(said.append)
         got = list(smoother.rows())
         folder = smoother._scratch._tmp.name  # type: ignore[union-attr]
     assert [e.size for e, _ in got] == [500] * 5 + [100]
@@ -203,3 +204,7 @@ def test_a_record_smoothed_in_slices_from_files_matches_the_whole_one() -> None:
     np.testing.assert_allclose(sliced["force_u_n"], whole["force_u_n"], rtol=1e-6)
     assert np.array_equal(sliced["flags"], whole["flags"])
     assert not os.path.exists(folder)
+    # each pass over the record is announced, per stretch between the silences
+    assert said[0] == "stretch 1 of 2: fitting the force prior, pass 1"
+    assert "stretch 2 of 2: smoothing" in said
+    assert said[-1] == "stretch 2 of 2: its uncertainty, pass 9 of 9"

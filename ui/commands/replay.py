@@ -300,8 +300,8 @@ class _Replay:
         from ui.progress import busy
 
         try:
-            with busy(f"smoothing {self.samples} samples"):
-                self._smoother.smooth()
+            with busy(f"smoothing {self.samples} samples") as say:
+                self._smoother.smooth(say)
             for est, displacement in self._smoother.rows():
                 self._use(est, {"displacement_m": displacement})
         finally:
