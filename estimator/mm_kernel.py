@@ -438,19 +438,22 @@ def _combine(k, wa, xa, Pa, mua, xb, Pb, mub, prune, tail, ca, cb, keep, out_x, 
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
-def _add_lag(xa, mua, jump, k, out_var):
+def _add_lag(xa, mua, jump, floor, k, out_var):
     """The lag of the prior in the force's variance (row ``k``): when a rate model other
     than the fastest leads the mixture, the load may be moving faster than it assumes, and
-    the next faster rate model's force ``Δ`` away says by how much it may lag. ``Δ`` is
-    taken as the full width of a rectangular distribution, variance ``Δ²/12`` (GUM 4.3.7).
-    The rate models are ``1 … jump − 1``, slow to fast."""
+    the next faster rate model's force ``Δ`` away says by how much it may lag. For a
+    regular rate model ``Δ`` is taken as the full width of a rectangular distribution about
+    it, variance ``Δ²/12`` (GUM 4.3.7): its own covariance already spreads about its
+    estimate. A floor model's covariance allows no departure from a constant rate at all,
+    so its lag is taken as a uniform error on ``[0, Δ]``, mean square ``Δ²/3``. The rate
+    models are ``1 … jump − 1``, slow to fast."""
     jd = 0
     for j in range(mua.shape[0]):
         if mua[j] > mua[jd]:
             jd = j
     if 1 <= jd < jump - 1:
         lag = xa[jd + 1, 2] - xa[jd, 2]
-        out_var[k, 2] += lag * lag / 12.0
+        out_var[k, 2] += lag * lag / (3.0 if floor[jd] else 12.0)
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
@@ -673,7 +676,7 @@ def imm_block(
         else:
             _combine(k, 1.0, xa, Pa, mua, xb, Pb, mub, prune, tail, ca, cb, keep, out_x, out_var)
         if jump > 1:
-            _add_lag(xa, mua, jump, k, out_var)
+            _add_lag(xa, mua, jump, floor, k, out_var)
         out_flag[k] = flag
         for j in range(r):
             out_mu[k, j] = mua[j]

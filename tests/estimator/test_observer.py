@@ -618,13 +618,14 @@ def _shown_mixture(mu: np.ndarray, f: np.ndarray, var: np.ndarray, prune: np.nda
     return mean, float(w @ (var + (f - mean) ** 2))
 
 
-def _lag_term(mu: np.ndarray, f: np.ndarray, rates: range) -> float:
+def _lag_term(mu: np.ndarray, f: np.ndarray, rates: range, floors: np.ndarray) -> float:
     """The lag of the prior, from its definition: when a rate model that is not the
     fastest leads, (its force − the next faster one's)² / 12 (a rectangular distribution
-    of that full width, GUM 4.3.7); else 0."""
+    of that full width, GUM 4.3.7), or / 3 when it is a floor model (the mean square of a
+    uniform error from 0 to that width); else 0."""
     lead = int(np.argmax(mu))
     if lead in rates and lead + 1 in rates:
-        return float((f[lead + 1] - f[lead]) ** 2 / 12.0)
+        return float((f[lead + 1] - f[lead]) ** 2 / (3.0 if floors[lead] else 12.0))
     return 0.0
 
 
@@ -641,10 +642,11 @@ def test_stated_sigma_is_that_of_the_models_holding_96_percent_and_the_lag() -> 
     _, lx, lP, om = obs.log[0]
     rows = np.flatnonzero(est["flags"] == 0)
     rates = range(1, obs.models.regular)
-    dropped = lagging = 0
+    dropped = lagging = floor_lagging = 0
     for i in rows:
         mean, var = _shown_mixture(om[i], lx[i, :, 2], lP[i, :, 2, 2], obs._prune, 0.04)
-        lag = _lag_term(om[i], lx[i, :, 2], rates)
+        lag = _lag_term(om[i], lx[i, :, 2], rates, obs.models.floors)
+        floor_lagging += lag > 0.0 and bool(obs.models.floors[int(np.argmax(om[i]))])
         assert est["force_n"][i] == pytest.approx(mean, rel=1e-6, abs=1e-9)
         assert est["force_u_n"][i] == pytest.approx(math.sqrt(var + lag), rel=1e-6)
         full = _shown_mixture(om[i], lx[i, :, 2], lP[i, :, 2, 2], obs._prune, 0.0)[1]
@@ -652,11 +654,12 @@ def test_stated_sigma_is_that_of_the_models_holding_96_percent_and_the_lag() -> 
         lagging += lag > 1e-3 * var
     assert dropped > rows.size // 10  # the rule acts on this record (not vacuous)
     assert lagging > rows.size // 10  # so does the lag of the prior (on the ramp)
+    assert floor_lagging > 0  # with the slowest rate model (a floor model) leading too
     # with shown_tail = 0 the whole (pruned) mixture is shown
     whole = make_observer(shown_tail=0.0).process(t, z)
     i = rows[-1]
     _, vfull = _shown_mixture(om[i], lx[i, :, 2], lP[i, :, 2, 2], obs._prune, 0.0)
-    lag = _lag_term(om[i], lx[i, :, 2], rates)
+    lag = _lag_term(om[i], lx[i, :, 2], rates, obs.models.floors)
     assert whole["force_u_n"][i] == pytest.approx(math.sqrt(vfull + lag), rel=1e-6)
 
 
