@@ -24,7 +24,7 @@ from estimator.mm_smooth_kernel import kim_backward_block, kim_last
 from estimator.observer import ForceObserver
 from estimator.spill import CHUNK, SpillArray, SpillFolder, chunks, chunks_backward
 
-__all__ = ["OneModel", "Steps", "backward", "forward"]
+__all__ = ["OneModel", "Steps", "backward", "forward", "smooth_pass"]
 
 
 @dataclasses.dataclass(frozen=True)
