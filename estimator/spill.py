@@ -44,6 +44,11 @@ class SpillArray:
             self._file = open(Path(folder) / f"{name}.bin", "w+b")  # noqa: SIM115 (close)
             self._file.truncate(self.n * self._row)
 
+    @property
+    def size(self) -> int:
+        """``n``: the rows so far (`estimator.columns.Column`)."""
+        return self.n
+
     def read(self, start: int, stop: int) -> np.ndarray:
         """Rows ``start`` to ``stop`` (a fresh array)."""
         start, stop = max(start, 0), min(stop, self.n)

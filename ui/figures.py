@@ -129,7 +129,6 @@ def replay_run(
                 if live is not None:
                     live.add(est)
                 shown.update(block.size)
-        files.finish()
     except BaseException:
         files.close()
         raise
@@ -169,7 +168,6 @@ def _finite_rows(replayed: Replayed, block: int) -> Iterator[tuple[Any, Any, Any
             kept.append(
                 t=t.read(a, b)[ok], f=force[ok], u=u.read(a, b)[ok], s=(k * x.read(a, b))[ok]
             )
-        kept.finish()
         yield kept.column("t"), kept.column("f"), kept.column("u"), kept.column("s")
     finally:
         kept.close()

@@ -356,7 +356,6 @@ class _Replay:
             self._status.finish()
         if self._steps is not None:
             try:
-                self._steps.finish()
                 _print_steps(*(self._steps.column(name) for name in _STEP_COLUMNS))
             finally:
                 self._steps.close()
