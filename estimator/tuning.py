@@ -25,13 +25,32 @@ from numpy.typing import ArrayLike
 
 from estimator.errors import EstimatorError
 from estimator.loggrid import ascend
-from estimator.observer import ForceObserver, ObserverTuning
+from estimator.observer import ForceObserver, ObserverTuning, process_noise_for_bandwidth
 from estimator.plant import Plant
 from estimator.settling import time_to_settle
 
 _BLOCK = 65_536  # samples per observer call while fitting (the estimates are not kept)
 
+#: The rate models' scale is searched down to 1 over this factor: about one spacing of the
+#: bank's rate intensities (×25), below which the bank's own slower rates cover a load. A
+#: record with no smooth stretch says nothing of them, and the likelihood then drives the
+#: scale towards 0: on an invented overdamped cell's staircase it fitted 2·10⁻⁷, which made
+#: that cell's sines 2.8 times worse with ±2σ covering 0.60. Stopped at this limit, the
+#: search says so and `forcelens tune` keeps the profile's value. Upwards it is free: a
+#: load rougher than the bank's fastest rate is real information.
+RATE_SCALE_LIMIT = 25.0
+
+#: The hold model's intensity is searched down to that of this bandwidth only. A held load
+#: that is truly constant drives it towards 0 (the hold model's gain with it: it then
+#: averages for ever), and a record's ±2σ coverage then rests on a handful of independent
+#: errors: tuned on invented staircases, pulses on three of six cells covered 0.996–0.999.
+#: 2 Hz is the lowest bandwidth that left no benchmark record above 0.99
+#: (docs/method-observer.md, section 2.1).
+HOLD_BANDWIDTH_MIN_HZ = 2.0
+
 __all__ = [
+    "HOLD_BANDWIDTH_MIN_HZ",
+    "RATE_SCALE_LIMIT",
     "NoiseEstimate",
     "ObserverFit",
     "StepComparison",
@@ -117,8 +136,10 @@ def fit_observer(
     Any record will do (steps, ramps, sines, a free-running load): the likelihood of
     the multiple-model observer weighs every part by the model that explains it.
     Coordinate ascent on log grids (:func:`estimator.loggrid.ascend`), widened while
-    the best value sits on an edge; ``noise_m`` and the intensities are the start, and
-    with ``fit_noise`` false (noise known from a quiet stretch) the noise stays as given.
+    the best value sits on an edge, the rate scale not below ``1/RATE_SCALE_LIMIT`` and
+    the hold intensity not below that of ``HOLD_BANDWIDTH_MIN_HZ``;
+    ``noise_m`` and the intensities are the start, and with ``fit_noise`` false (noise
+    known from a quiet stretch) the noise stays as given.
     """
     t = np.asarray(time_s, dtype=float)
     z = np.asarray(displacement_m, dtype=float)
@@ -141,7 +162,14 @@ def fit_observer(
 
     start = (q_hold_n2_per_s, rate_scale, 1.0)
     steps = (10.0, 4.0, 1.1) if fit_noise else (10.0, 4.0)
-    result = ascend(loglik, start[: len(steps)], steps)
+    q_min = process_noise_for_bandwidth(
+        HOLD_BANDWIDTH_MIN_HZ,
+        plant.stiffness_n_per_m,
+        noise_m**2 + resolution_m**2 / 12.0,
+        sample_period_s,
+    )
+    limits = ((q_min, math.inf), (1.0 / RATE_SCALE_LIMIT, math.inf), None)
+    result = ascend(loglik, start[: len(steps)], steps, limits=limits[: len(steps)])
     q_hold, scale = result.point[0], result.point[1]
     noise_scale = result.point[2] if fit_noise else 1.0
     names = ("q_hold_n2_per_s", "rate_scale", "noise_m")

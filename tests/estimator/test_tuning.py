@@ -9,9 +9,15 @@ import numpy as np
 import pytest
 
 from estimator.errors import EstimatorError
-from estimator.observer import ForceObserver, ObserverTuning
+from estimator.observer import ForceObserver, ObserverTuning, process_noise_for_bandwidth
 from estimator.plant import Plant
-from estimator.tuning import compare_on_steps, fit_observer, noise_from_quiet
+from estimator.tuning import (
+    HOLD_BANDWIDTH_MIN_HZ,
+    RATE_SCALE_LIMIT,
+    compare_on_steps,
+    fit_observer,
+    noise_from_quiet,
+)
 
 # Invented cell of the demo: 0.4 kg, 4e5 N/m, ζ = 0.12, 2 kHz, 50 nm noise.
 CELL = Plant.from_modal(1000.0, 0.12, 4.0e5)
@@ -71,6 +77,32 @@ def test_fit_on_a_ramp_and_sine_pins_the_rate_scale_and_raises_the_likelihood() 
     assert "rate_scale" not in fit.at_edge
     assert fit.noise_m == NOISE
     assert fit.log_likelihood >= fit.start_log_likelihood
+
+
+def test_a_staircase_leaves_the_rate_scale_and_hold_intensity_at_their_limits() -> None:
+    # A staircase has no smooth stretch: it says nothing of the rate models, and the
+    # likelihood alone drove their scale towards 0 (5.8·10⁻¹¹ on this record; 2·10⁻⁷ on
+    # the benchmark's overdamped cell, its sines then 2.8 times worse). The search stops
+    # at 1/RATE_SCALE_LIMIT and says so, and `forcelens tune` keeps the profile's scale.
+    # Invented overdamped cell (60 Hz, ζ 2.5, 2·10⁴ N/m) at 1 kHz with 100 nm of noise,
+    # truth from scipy.signal.lsim (reference library).
+    import scipy.signal
+
+    cell = Plant.from_modal(2 * math.pi * 60.0, 2.5, 2.0e4)
+    dt, noise = 1e-3, 1e-7
+    t = np.arange(0.0, 3.0, dt)
+    force = np.select([t < 0.5, t < 1.2, t < 2.0, t < 2.6], [5.0, 60.0, 25.0, 80.0], 40.0)
+    _, x, _ = scipy.signal.lsim(cell.state_space(), force, t, X0=[5.0 / 2.0e4, 0.0])
+    z = x + np.random.default_rng(3).normal(0.0, noise, t.size)
+    fit = fit_observer(
+        cell, dt, noise, 0.0, t, z, force_range_n=100.0, q_hold_n2_per_s=1.0, fit_noise=False
+    )
+    assert "rate_scale" in fit.at_edge
+    assert 1.0 / RATE_SCALE_LIMIT <= fit.rate_scale < 1.0
+    # its exactly constant holds drive the hold intensity down to its own limit
+    q_min = process_noise_for_bandwidth(HOLD_BANDWIDTH_MIN_HZ, 2.0e4, noise**2, dt)
+    assert "q_hold_n2_per_s" in fit.at_edge
+    assert q_min <= fit.q_hold_n2_per_s < 1.0
 
 
 def test_compare_on_steps_measures_hold_noise_and_settling() -> None:

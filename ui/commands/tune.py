@@ -3,7 +3,10 @@
 Any record will do: a staircase, a ramp, a sine or a free-running load. The noise, the
 hold model's intensity and the scale of the rate models' intensities are those that
 maximise the innovation log-likelihood of the record (or of its ``--from``/``--to``
-part); each search widens while its best value sits on an edge. A quiet stretch (cell
+part); each search widens while its best value sits on an edge, the rate scale down to
+1/25 and the hold intensity down to that of a 2 Hz bandwidth (`estimator.tuning`: a
+staircase says nothing of the rate models, and its exactly constant holds would drive
+both towards 0). A quiet stretch (cell
 unloaded and at rest, ``--quiet-from``/``--quiet-to``) stays an option: it fixes the
 noise, which is then not fitted. A staircase of load steps on the simulated cell
 (invented data) then shows what the tuning gives: the noise of the held readings and
@@ -154,8 +157,9 @@ def run(args: argparse.Namespace) -> int:
     )
     if fit.at_edge:
         print(
-            "not pinned down by this record (the search stopped at its widest), so the "
-            "profile's value is kept: " + ", ".join(fit.at_edge)
+            "not pinned down by this record (the search stopped at its widest, or at a lower "
+            "limit: the rate scale 1/25, the hold model's bandwidth 2 Hz), so the profile's "
+            "value is kept: " + ", ".join(fit.at_edge)
         )
     tuned = profile.with_updates(
         transducer=dataclasses.replace(
