@@ -4,8 +4,8 @@ Each parameter is moved by a factor (the grid step) up or down while that raises
 function; a move that would take it further than ``widen`` steps from its start, or out
 of its ``limits``, is not made, and the result then says which parameter stopped at the
 edge of what was searched. A second pass with the square root of each step refines the
-point. Used to fit intensities and noise by the innovation likelihood (tuning and smoothing), where
-the likelihood is smooth and has one maximum per parameter in practice.
+point. Used to fit intensities and noise by the innovation likelihood (tuning and
+smoothing), where the likelihood is smooth and has one maximum per parameter in practice.
 """
 
 from __future__ import annotations
