@@ -66,7 +66,7 @@ from estimator.observer import (
     judged_outliers,
 )
 from estimator.smoother_passes import OneModel, Steps, forward, smooth_pass
-from estimator.smoother_sigma import REPLICAS, smoother_variance_in_slices
+from estimator.smoother_sigma import REPLICAS, Emit, smoother_variance_in_slices
 from estimator.spill import CHUNK, SpillArray, SpillFolder, chunks
 
 __all__ = ["RecordSmoother", "SmootherFit", "fit_prior", "smooth_record"]
@@ -345,12 +345,12 @@ def _smooth_stretch(
     var = scratch.reused("smoothed_var", n, np.float64)
     passes = itertools.count(1)
 
-    def force(values: Iterable[np.ndarray], emit: Callable[[int, np.ndarray], None]) -> None:
-        say(f"its uncertainty, pass {next(passes)} of {REPLICAS + 1}")
-        smooth(values, lambda ca, x: emit(ca - a, x[:, 2]))
+    def again(values: Iterable[np.ndarray], emit: Emit) -> None:
+        say(f"its uncertainty, pass {next(passes)} of {2 * REPLICAS + 1}")
+        smooth(values, lambda ca, x: emit(ca - a, x[:, 0] / D[0], x[:, 2]))
 
     smoother_variance_in_slices(
-        force,
+        again,
         lambda i, j: np.isnan(z_clean.read(a + i, a + j)),
         lambda i, j: state.read(a + i, a + j)[:, 0] / D[0],
         lambda i, j: state.read(a + i, a + j)[:, 2],

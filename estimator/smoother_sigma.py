@@ -20,8 +20,17 @@ gains) is split as it really is:
   ``F``, ``b̂ = G·x̂ − F̂`` (the usual plug-in estimate of a linear smoother's bias; e.g.
   Wasserman, "All of Nonparametric Statistics", 2006, ch. 5, from memory).
 
-The stated variance is ``V + b̂²``. The noise records come from a generator with a fixed
-seed, so the result is reproducible to the bit.
+``b̂`` is itself linear in the data, ``b̂ = B·z`` with ``B·z = G·(smoothed displacement of
+z) − G·z``, so ``E[b̂²] = (B·h)² + Var(B·n)``: squared as it is, the plug-in adds the
+variance of its own noise. That share ``W`` is estimated like ``V``, by applying ``B`` to
+the same simulated noise records (one more pass each), and taken off again, keeping the
+positive part (the usual positive-part estimate of a squared mean). The stated variance is
+``V + max(b̂² − W, 0)``. Without the correction the σ of a well-fitted smoother was 7 %
+too large (accuracy benchmark, lightly damped cell, random loads: ±2σ coverage 0.985–0.988,
+median |error|/σ 0.62–0.64 where a Gaussian gives 0.674).
+
+The noise records come from a generator with a fixed seed, so the result is reproducible
+to the bit.
 """
 
 from __future__ import annotations
@@ -31,23 +40,24 @@ from collections.abc import Callable, Iterable, Iterator
 import numpy as np
 from scipy.ndimage import uniform_filter1d
 
-from estimator.spill import SpillFolder, chunks
+from estimator.spill import SpillArray, SpillFolder, chunks
 
-__all__ = ["smoother_variance", "smoother_variance_in_slices"]
+__all__ = ["Emit", "SliceSmoother", "smoother_variance", "smoother_variance_in_slices"]
 
 REPLICAS = 8  # simulated noise records
 WINDOW = 101  # samples averaged for the noise variance
 SEED = 20261204  # fixed: the same record gives the same σ on every machine
 
+#: ``emit(first row, smoothed displacement m, smoothed force N)`` of one slice.
+Emit = Callable[[int, np.ndarray, np.ndarray], None]
 #: ``smooth(record, emit)``: the smoother with its gains fixed, given a record's slices in
-#: order (displacement, m, NaN where left out), calls ``emit(first row, smoothed force N)``
-#: once per slice, in any order.
-SliceSmoother = Callable[[Iterable[np.ndarray], Callable[[int, np.ndarray], None]], None]
+#: order (displacement, m, NaN where left out), calls ``emit`` once per slice, in any order.
+SliceSmoother = Callable[[Iterable[np.ndarray], Emit], None]
 Rows = Callable[[int, int], np.ndarray]  # rows a..b of a record-long quantity
 
 
 def smoother_variance(
-    smooth: Callable[[np.ndarray], np.ndarray],
+    smooth: Callable[[np.ndarray], tuple[np.ndarray, np.ndarray]],
     displacement_m: np.ndarray,
     smoothed_displacement_m: np.ndarray,
     smoothed_force_n: np.ndarray,
@@ -60,7 +70,7 @@ def smoother_variance(
 
     Args:
         smooth: the smoother with its gains fixed: displacement record (m, NaN where
-            missing) to smoothed force (N).
+            missing) to smoothed displacement (m) and force (N).
         displacement_m: the record it smoothed (NaN marks samples left out).
         smoothed_displacement_m: its smoothed displacement.
         smoothed_force_n: its smoothed force.
@@ -71,8 +81,8 @@ def smoother_variance(
     if n == 0:
         return out
 
-    def whole(record: Iterable[np.ndarray], emit: Callable[[int, np.ndarray], None]) -> None:
-        emit(0, smooth(next(iter(record))))
+    def whole(record: Iterable[np.ndarray], emit: Emit) -> None:
+        emit(0, *smooth(next(iter(record))))
 
     def keep(a: int, values: np.ndarray) -> None:
         out[a : a + values.size] = values
@@ -112,36 +122,45 @@ def smoother_variance_in_slices(
     rows (the noise power is kept in ``scratch``): ``emit(first row, variance N²)`` once per
     slice. On a record of one slice the numbers are those of `smoother_variance`."""
     rng = np.random.default_rng(SEED)
-    power = scratch.reused("noise_power", n, np.float64)
+    power = scratch.reused("noise_power", n, np.float64)  # Σ over replicas of (G·n)²
+    bias_power = scratch.reused("bias_noise_power", n, np.float64)  # Σ of (B·n)²
+    replica_x = scratch.reused("replica_displacement", n, np.float64)
+    replica_f = scratch.reused("replica_force", n, np.float64)
 
-    def noise() -> Iterator[np.ndarray]:
+    def left_out(values: Rows) -> Iterator[np.ndarray]:
         for a, b in chunks(0, n, chunk):
-            yield np.where(missing(a, b), np.nan, rng.normal(0.0, noise_sd_m, b - a))
+            yield np.where(missing(a, b), np.nan, values(a, b))
+
+    def add(total: SpillArray, a: int, value: np.ndarray, first: bool) -> None:
+        b = a + value.size
+        total.write(a, value**2 if first else total.read(a, b) + value**2)
 
     for replica in range(replicas):
+        first = replica == 0
 
-        def add(a: int, force: np.ndarray, first: bool = replica == 0) -> None:
-            power.write(a, force**2 if first else power.read(a, a + force.size) + force**2)
+        def smoothed_noise(a: int, x: np.ndarray, f: np.ndarray, first: bool = first) -> None:
+            add(power, a, f, first)
+            replica_x.write(a, x)
+            replica_f.write(a, f)
 
-        smooth(noise(), add)
+        def bias_of_noise(a: int, _: np.ndarray, f: np.ndarray, first: bool = first) -> None:
+            add(bias_power, a, f - replica_f.read(a, a + f.size), first)
+
+        smooth(left_out(lambda a, b: rng.normal(0.0, noise_sd_m, b - a)), smoothed_noise)
+        smooth(left_out(replica_x.read), bias_of_noise)
     size = min(window, n)
 
-    def noise_var(a: int, b: int) -> np.ndarray:
+    def averaged(total: SpillArray, a: int, b: int) -> np.ndarray:
         # the moving average of rows a..b from the rows it reaches
         lo, hi = max(a - window, 0), min(b + window, n)
-        return uniform_filter1d(power.read(lo, hi) / replicas, size=size, mode="nearest")[
+        return uniform_filter1d(total.read(lo, hi) / replicas, size=size, mode="nearest")[
             a - lo : b - lo
         ]
 
-    def with_bias(a: int, force: np.ndarray) -> None:
+    def with_bias(a: int, _: np.ndarray, force: np.ndarray) -> None:
         b = a + force.size
         bias = force - smoothed_force_n(a, b)
-        emit(a, noise_var(a, b) + bias * bias)
+        squared = np.maximum(bias * bias - averaged(bias_power, a, b), 0.0)
+        emit(a, averaged(power, a, b) + squared)
 
-    smooth(
-        (
-            np.where(missing(a, b), np.nan, smoothed_displacement_m(a, b))
-            for a, b in chunks(0, n, chunk)
-        ),
-        with_bias,
-    )
+    smooth(left_out(smoothed_displacement_m), with_bias)

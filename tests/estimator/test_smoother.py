@@ -207,4 +207,4 @@ def test_a_record_smoothed_in_slices_from_files_matches_the_whole_one() -> None:
     # each pass over the record is announced, per stretch between the silences
     assert said[0] == "stretch 1 of 2: fitting the force prior, pass 1"
     assert "stretch 2 of 2: smoothing" in said
-    assert said[-1] == "stretch 2 of 2: its uncertainty, pass 9 of 9"
+    assert said[-1] == "stretch 2 of 2: its uncertainty, pass 17 of 17"
