@@ -62,7 +62,7 @@ from collections.abc import Sequence
 from pathlib import Path
 
 from accuracy import ours
-from accuracy.cells import CELLS, OTHER_CELLS
+from accuracy.cells import CELLS, OTHER_CELLS, Cell, random_cells
 from accuracy.loads import SHAPES, SMOOTH_SHAPES
 from accuracy.models import integrated_random_walk_model, random_walk_model
 from accuracy.records import START_UP_S, Record, build_records, wanted
@@ -346,6 +346,22 @@ def _seeds(text: str) -> list[int]:
     return seeds
 
 
+def _cells(text: str) -> str:
+    if text in ("tuned", "other", "all"):
+        return text
+    kind, _, count = text.partition(":")
+    if kind != "random" or not count.isdigit() or int(count) < 1:
+        raise argparse.ArgumentTypeError(f"{text!r}: give tuned, other, all or random:N (N ≥ 1)")
+    return text
+
+
+def cells_for(choice: str, seed: int) -> tuple[Cell, ...]:
+    """The cells of ``--cells`` for one base seed (random cells are drawn per seed)."""
+    if choice.startswith("random:"):
+        return random_cells(int(choice.partition(":")[2]), seed)
+    return {"tuned": CELLS, "other": OTHER_CELLS, "all": CELLS + OTHER_CELLS}[choice]
+
+
 def parse_args(argv: Sequence[str] | None) -> argparse.Namespace:
     p = argparse.ArgumentParser(
         description="Accuracy benchmark of the force observer on invented cells and loads."
@@ -374,10 +390,12 @@ def parse_args(argv: Sequence[str] | None) -> argparse.Namespace:
     )
     p.add_argument(
         "--cells",
-        choices=("tuned", "other", "all"),
+        type=_cells,
         default="tuned",
+        metavar="tuned|other|all|random:N",
         help="the three cells the observer's defaults were tuned on (default), three other "
-        "invented cells it never saw (crisp, floaty, critical), or all six",
+        "invented cells it never saw (crisp, floaty, critical), all six, or N cells drawn at "
+        "random for each seed (r01, r02, ...; accuracy/cells.py, random_cells)",
     )
     p.add_argument("--csv", type=Path, metavar="OUT", help="write the per-record table here")
     return p.parse_args(argv)
@@ -394,10 +412,10 @@ def main(argv: Sequence[str] | None = None) -> int:
     # tree with an editable install, otherwise the copy made when the package was installed.
     spec = importlib.util.find_spec("estimator")
     print(f"  observer code from {Path(spec.origin).parent if spec and spec.origin else '?'}")
-    cells = {"tuned": CELLS, "other": OTHER_CELLS, "all": CELLS + OTHER_CELLS}[args.cells]
-    for cell in cells:
-        if any(wanted(args.only, cell.name, s) for s in SHAPES):
-            print("  " + cell.describe())
+    for seed in args.seed:
+        for cell in cells_for(args.cells, seed):
+            if any(wanted(args.only, cell.name, s) for s in SHAPES):
+                print(f"  {cell.describe()}" + (f"  (seed {seed})" if ":" in args.cells else ""))
     print(
         f"  {duration:g} s records, {len(variants)} variants ({', '.join(variants)}); "
         f"seed {', '.join(map(str, args.seed))}; q grid step {GRID_STEP_DECADES} decade; "
@@ -406,7 +424,9 @@ def main(argv: Sequence[str] | None = None) -> int:
     records: list[Record] = []
     truth_s = 0.0
     for seed in args.seed:
-        some, secs = build_records(seed, duration, args.only, cells, variants)
+        some, secs = build_records(
+            seed, duration, args.only, cells_for(args.cells, seed), variants
+        )
         records += some
         truth_s += secs
     if not records:

@@ -10,6 +10,8 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
+import numpy as np
+
 
 @dataclass(frozen=True)
 class Cell:
@@ -162,3 +164,50 @@ OTHER_CELLS: tuple[Cell, ...] = (
         force_range_n=300.0,
     ),
 )
+
+
+#: Sampling rates the random cells draw from (Hz), and the fewest samples per natural period.
+RANDOM_RATES_HZ: tuple[float, ...] = (1_000.0, 2_000.0, 4_000.0, 5_000.0, 10_000.0)
+RANDOM_MIN_SAMPLES_PER_PERIOD = 2.5
+
+
+def random_cells(n: int, seed: int) -> tuple[Cell, ...]:
+    """``n`` invented cells drawn at random, to look for where the defaults break.
+
+    Each cell: fn log-uniform in 30–1000 Hz (the loads' sines reach 8 Hz, their
+    random part 15 Hz); ζ from one of three regimes chosen with equal
+    odds (lightly damped 0.005–0.1, moderately 0.1–1, overdamped 1–5, log-uniform); a
+    sampling rate from ``RANDOM_RATES_HZ`` with at least ``RANDOM_MIN_SAMPLES_PER_PERIOD``
+    samples per natural period; noise log-uniform in 10–300 nm, ADC step 0.1–0.5 of it;
+    stiffness log-uniform in 10³–10⁷ N/m; rated range such that full-scale displacement is
+    5·10³–10⁵ noise σ (log-uniform). Names ``r01``, ``r02``…; the draw depends only on
+    ``(n, seed)``.
+    """
+
+    def log_uniform(lo: float, hi: float) -> float:
+        return float(math.exp(rng.uniform(math.log(lo), math.log(hi))))
+
+    rng = np.random.default_rng(np.random.SeedSequence(seed, spawn_key=(0xCE11,)))
+    regimes = (("lightly damped", 0.005, 0.1), ("moderately damped", 0.1, 1.0),
+               ("overdamped", 1.0, 5.0))  # fmt: skip
+    cells = []
+    for i in range(n):
+        fn = log_uniform(30.0, 1000.0)
+        words, z_lo, z_hi = regimes[int(rng.integers(3))]
+        rates = [f for f in RANDOM_RATES_HZ if f >= RANDOM_MIN_SAMPLES_PER_PERIOD * fn]
+        noise = log_uniform(10e-9, 300e-9)
+        stiffness = log_uniform(1e3, 1e7)
+        cells.append(
+            Cell(
+                name=f"r{i + 1:02d}",
+                regime=f"random, {words}",
+                natural_freq_hz=round(fn, 1),
+                damping_ratio=round(log_uniform(z_lo, z_hi), 4),
+                stiffness_n_per_m=float(f"{stiffness:.2g}"),
+                sample_rate_hz=rates[int(rng.integers(len(rates)))],
+                noise_m=float(f"{noise:.2g}"),
+                resolution_m=float(f"{noise * rng.uniform(0.1, 0.5):.2g}"),
+                force_range_n=float(f"{stiffness * noise * log_uniform(5e3, 1e5):.2g}"),
+            )
+        )
+    return tuple(cells)
