@@ -29,7 +29,16 @@ probability ``ε`` of an outlier, the density of the suspect sample under each h
 ``outlier_sd``, Gaussian in its core with a Cauchy share ``outlier_tail``), the density
 of the next sample — and merged per model by moment matching. An isolated outlier is
 thus rejected, and a load change loses none of its samples. The row of a suspect sample
-shows both branches merged with the weights known then; its flag says so.
+shows both branches merged with the weights known then; its flag says so. A sample beyond
+``gate`` noise σ that would make "an outlier" at least ``_OUTLIER_SUSPECT`` probable on its
+own is suspect too: where a fast-moving load widens the prediction, a spike can sit inside
+the gate.
+
+**Hindsight.** Some spikes still pass as motion. The prediction made before each sample
+used though beyond ``gate`` noise σ is kept (slot 2 of the state arrays); when the next
+sample is suspect, "the sample before was the outlier" is weighed beside "both used" and
+"this one an outlier", and when it is the likeliest the readings that use the new sample
+are merged by their odds and the sample before is counted as rejected.
 
 **Bursts.** Interference often spoils two or three samples in a row. When the sample
 after a suspect is beyond the gate *as seen from the "outlier" branch*, and "used" is not
@@ -74,8 +83,11 @@ _LOG_2PI = math.log(2.0 * math.pi)
 _LOG_PI = math.log(math.pi)
 _SHOW_USED = 0.5  # a suspect row shows the sample used only at these odds or better
 _DECIDED = 0.05  # two-sample odds of a suspect beyond which the decision is hard
+_LOG_DECIDED_ODDS = math.log((1.0 - _DECIDED) / _DECIDED)
 _LOWEST_LOG_DENSITY = -1e300  # of a sample no model gives any density
 _JUMP_SUSPECT = 0.05  # posterior of the jump model from one sample that makes it suspect
+_OUTLIER_SUSPECT = 0.01  # probability of "an outlier" from one sample that makes it suspect
+_LOG_OUTLIER_SUSPECT_ODDS = math.log(_OUTLIER_SUSPECT / (1.0 - _OUTLIER_SUSPECT))
 _BURST_MAX = 3  # consecutive samples that can be rejected together as one burst
 _LOG_BURST_GO_ON = math.log(0.1)  # log probability that an outlier is followed by another
 
@@ -287,6 +299,18 @@ def _update(z, R, floor, x, P, PD, mu, w, d, T):
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
+def _copy_branch(x, P, PD, mu, to_x, to_P, to_PD, to_mu):
+    """One branch's states, covariances and probabilities into another's arrays."""
+    for j in range(mu.shape[0]):
+        to_mu[j] = mu[j]
+        for a in range(4):
+            to_x[j, a] = x[j, a]
+            for b in range(4):
+                to_P[j, a, b] = P[j, a, b]
+                to_PD[j, a, b] = PD[j, a, b]
+
+
+@numba.njit(cache=True, nogil=True, inline="always")
 def _decided(wa):
     """The weight of branch "used", made hard beyond ``_DECIDED`` of either side.
 
@@ -480,13 +504,21 @@ def _predicted(R, prune, x, P, mu):
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
-def _suspect_weighed(z, R, gate2, jump, jump_end, x, P, jbest, lw, total):
-    """Is ``z`` suspect for the branch whose weights `_weigh` left in ``lw``: beyond the gate
-    of the most probable model, or raising the force-jump models above ``_JUMP_SUSPECT``
-    on its own (at high rates one sample of a jump is barely above the noise, so a single
-    noisy sample can do that)?"""
+def _suspect_weighed(z, R, gate2, jump, jump_end, x, P, jbest, lw, lmax, total, lout):
+    """Is ``z`` suspect for the branch whose weights `_weigh` left in ``lw`` (``lmax``,
+    ``total`` as it returned them; ``lout`` the log of ``ε`` times the outlier density of
+    ``z``, `_outlier_log_density`)? It is when beyond the gate of the most probable model;
+    when raising the force-jump models above ``_JUMP_SUSPECT`` on its own (at high rates one
+    sample of a jump is barely above the noise, so a single noisy sample can do that); or
+    when it is beyond the gate in noise σ alone and would make "an outlier" at least
+    ``_OUTLIER_SUSPECT`` probable on its own. Where the load moves fast for the sampling rate
+    a model predicts the reading with a spread of ten noise σ or more, and a 50σ spike stays
+    inside its gate; with a tight prediction the gate decides as before (the odds alone made
+    the first sample of slow-starting steps suspect, a few σ out, and delayed their rows)."""
     y = z - x[jbest, 0]
     if y * y > gate2 * (P[jbest, 0, 0] + R):
+        return True
+    if y * y > gate2 * R and lout - lmax - math.log(total) > _LOG_OUTLIER_SUSPECT_ODDS:
         return True
     if jump < 0:
         return False
@@ -538,12 +570,15 @@ def imm_block(
     jump_end: int,  # one past the last force-jump model: their taking over makes a
     #                 sample suspect; a kink model after them does not
     floor: np.ndarray,  # (r,) bool: models whose gain comes from QD (see the module notes)
-    x: np.ndarray,  # (2, r, 4) posterior states: branch "used", branch "outlier"
-    P: np.ndarray,  # (2, r, 4, 4) posterior covariances of both branches
-    PD: np.ndarray,  # (2, r, 4, 4) design covariances of the floor models (others unused)
-    mu: np.ndarray,  # (2, r) mode probabilities of both branches
-    pend: np.ndarray,  # (4,) samples held (0: none), their log density used and as
-    #                    outliers, 1 while a change is confirmed under way
+    x: np.ndarray,  # (2 or 3, r, 4) posterior states: branch "used", branch "outlier",
+    #                 and (if 3) the prediction before the last sample, for hindsight
+    P: np.ndarray,  # (2 or 3, r, 4, 4) posterior covariances of the branches (as x)
+    PD: np.ndarray,  # (2 or 3, r, 4, 4) design covariances of the floor models (as x)
+    mu: np.ndarray,  # (2 or 3, r) mode probabilities of the branches (as x)
+    pend: np.ndarray,  # (7,) samples held (0: none), their log density used and as
+    #                    outliers, 1 while a change is confirmed under way; 1 when the
+    #                    last sample's prediction is kept in slot 2 of x, P, PD, mu, and
+    #                    that sample's log density used and as an outlier
     out_x: np.ndarray,  # (n, 4) combined state
     out_var: np.ndarray,  # (n, 4) combined variances (diagonal)
     out_y: np.ndarray,  # (n,) innovation of the combined prediction
@@ -560,6 +595,7 @@ def imm_block(
     n = z.shape[0]
     r = mu.shape[1]
     keep_log = log_x.shape[0] > 0
+    keep_before = x.shape[0] > 2  # a third slot: the prediction before the last sample
     x0 = np.empty((r, 4))
     P0 = np.empty((r, 4, 4))
     PD0 = np.empty((r, 4, 4))
@@ -583,6 +619,10 @@ def imm_block(
         zk = z[k]
         flag = 0
         pending = pend[0] != 0.0
+        # the sample before was used, and its prediction kept for hindsight
+        hindsight = keep_before and pend[4] != 0.0
+        if keep_before:
+            pend[4] = 0.0
         _interact_predict(
             it, PHI, Q, QD, PI, prune, floor, xa, Pa, PDa, mua, cbar, x0, P0, PD0, w, src
         )
@@ -639,23 +679,55 @@ def imm_block(
                         flag |= FLAG_OUT_REJECTED_BEFORE
             else:
                 lmax, total = _weigh(zk, R, xa, Pa, mua, lj)
-                if _suspect_weighed(zk, R, gate2, jump, jump_end, xa, Pa, jbest, lj, total):
+                lused = lmax + math.log(total)
+                so2 = outlier_sd * outlier_sd + smix
+                lout = _outlier_log_density(zk - zhat, so2, outlier_tail)
+                suspect = _suspect_weighed(
+                    zk, R, gate2, jump, jump_end, xa, Pa, jbest, lj, lmax + log_1m_eps, total,
+                    log_eps + lout,
+                )  # fmt: skip
+                if suspect and hindsight:
+                    # was the sample before this one the outlier? ("before": that sample
+                    # left out, this one used, from the prediction kept before it)
+                    _copy_branch(x[2], P[2], PD[2], mu[2], xb, Pb, PDb, mub)
+                    _interact_predict(
+                        it, PHI, Q, QD, PI, prune, floor, xb, Pb, PDb, mub, cbar, x0, P0, PD0,
+                        w, src,
+                    )  # fmt: skip
+                    lmax2, total2 = _weigh(zk, R, xb, Pb, mub, lw)
+                    l_before = log_eps + pend[6] + lmax2 + math.log(total2)
+                    l_both = log_1m_eps + pend[5] + lused
+                    l_this = log_1m_eps + pend[5] + log_eps + lout
+                    if l_before > _logaddexp(l_both, l_this):
+                        # the likeliest reading: both samples used, merged by their odds
+                        # (hard beyond 19 to 1, as a suspect's decision)
+                        wb = _decided(1.0 / (1.0 + math.exp(l_both - l_before)))
+                        _apply(zk, R, floor, xb, Pb, PDb, mub, lw, lmax2, total2, d, T)
+                        if wb < 1.0:
+                            _apply(zk, R, floor, xa, Pa, PDa, mua, lj, lmax, total, d, T)
+                        _merge(1.0 - wb, floor, xa, Pa, PDa, mua, xb, Pb, PDb, mub)
+                        out_ll[k] = _logaddexp(l_before, l_both) - pend[5]
+                        flag |= FLAG_OUT_REJECTED_BEFORE
+                        rejected += 1
+                        pend[3] = 0.0
+                        suspect = False
+                        lused = math.nan  # done
+                if suspect:
                     # suspect: keep the prediction as the "outlier" branch, then update
-                    for j in range(r):
-                        mub[j] = mua[j]
-                        for a in range(4):
-                            xb[j, a] = xa[j, a]
-                            for b in range(4):
-                                Pb[j, a, b] = Pa[j, a, b]
-                                PDb[j, a, b] = PDa[j, a, b]
-                    so2 = outlier_sd * outlier_sd + smix
-                    yo = zk - zhat
-                    pend[2] = _outlier_log_density(yo, so2, outlier_tail)
+                    _copy_branch(xa, Pa, PDa, mua, xb, Pb, PDb, mub)
+                    pend[2] = lout
                     pend[1] = _apply(zk, R, floor, xa, Pa, PDa, mua, lj, lmax, total, d, T)
                     pend[0] = 1.0
                     flag |= FLAG_OUT_SUSPECT
                     out_ll[k] = _logaddexp(log_1m_eps + pend[1], log_eps + pend[2])
-                else:
+                elif not math.isnan(lused):
+                    if keep_before and out_y[k] ** 2 > gate2 * R:
+                        # far enough out to be a spike its prediction could not tell: keep
+                        # that prediction, for the next sample to weigh it in hindsight
+                        _copy_branch(xa, Pa, PDa, mua, x[2], P[2], PD[2], mu[2])
+                        pend[4] = 1.0
+                        pend[5] = lused
+                        pend[6] = lout
                     out_ll[k] = _apply(zk, R, floor, xa, Pa, PDa, mua, lj, lmax, total, d, T)
                     pend[3] = 0.0
         if pend[0] != 0.0:

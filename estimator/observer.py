@@ -101,7 +101,8 @@ FLAG_MISSING = 2  #: no measurement (NaN); predict only
 FLAG_GAP = 4  #: the time step before this sample was longer than 1.5 nominal periods
 FLAG_JUMP = 8  #: the jump model is the most probable: the load is changing suddenly
 #: the held samples just before this row (the run of FLAG_REJECTED rows) were judged
-#: outliers and not used (`judged_outliers` finds them)
+#: outliers and not used; or, when the row before was not held, that sample was judged
+#: an outlier in hindsight and its effect taken back (`judged_outliers` finds them)
 FLAG_OUTLIER_BEFORE = 32
 
 _TABLE_CACHE = 256  # distinct step lengths kept
@@ -240,11 +241,12 @@ class _Counters:
 class _State:
     """Everything the kernel carries from one block to the next (scaled units)."""
 
-    x: np.ndarray  # (2, r, 4)
-    P: np.ndarray  # (2, r, 4, 4)
-    PD: np.ndarray  # (2, r, 4, 4) design covariances of the floor models
-    mu: np.ndarray  # (2, r)
-    pend: np.ndarray = field(default_factory=lambda: np.zeros(4))
+    # branch "used", branch "outlier", the prediction before the last sample (mm_kernel)
+    x: np.ndarray  # (3, r, 4)
+    P: np.ndarray  # (3, r, 4, 4)
+    PD: np.ndarray  # (3, r, 4, 4) design covariances of the floor models
+    mu: np.ndarray  # (3, r)
+    pend: np.ndarray = field(default_factory=lambda: np.zeros(7))
     t_last: float | None = None
     jump_last: bool = False
 
@@ -358,7 +360,7 @@ class ForceObserver:
         """Forget every sample: the next one starts the observer afresh."""
         r = self.models.count
         self._state = _State(
-            np.zeros((2, r, 4)), np.zeros((2, r, 4, 4)), np.zeros((2, r, 4, 4)), np.zeros((2, r))
+            np.zeros((3, r, 4)), np.zeros((3, r, 4, 4)), np.zeros((3, r, 4, 4)), np.zeros((3, r))
         )
         self.counters = _Counters()
         self.log = []
@@ -599,12 +601,15 @@ class ForceObserver:
 
 def judged_outliers(flags: np.ndarray) -> np.ndarray:
     """Which rows' samples the observer judged outliers, as bools: the run of held rows
-    (``FLAG_REJECTED``) just before each row flagged ``FLAG_OUTLIER_BEFORE``."""
+    (``FLAG_REJECTED``) just before each row flagged ``FLAG_OUTLIER_BEFORE``, or, where
+    the row before it was not held, that one row (judged in hindsight)."""
     flags = np.asarray(flags)
     held = (flags & FLAG_REJECTED) != 0
     out = np.zeros(flags.shape, np.bool_)
     for row in np.flatnonzero(flags & FLAG_OUTLIER_BEFORE).tolist():
         j = row - 1
+        if j >= 0 and not held[j]:
+            out[j] = True
         while j >= 0 and held[j]:
             out[j] = True
             j -= 1
