@@ -132,11 +132,12 @@ def _replay_csv(args: argparse.Namespace, source: Path, speed: float) -> int:
 
 def _csv_blocks_shown(source: Path) -> Any:
     """The CSV's sample blocks, with a bar over the file's bytes on a terminal."""
+    from ui.overlap import read_ahead
     from ui.progress import bar
 
     with bar(source.stat().st_size, "estimating", unit="B") as shown:
         done = 0
-        for block, read in _csv_blocks(source):
+        for block, read in read_ahead(_csv_blocks(source)):  # parsed beside the estimation
             yield block
             shown.update(read - done)
             done = read
@@ -154,6 +155,7 @@ def _replay_run(args: argparse.Namespace, folder: Path, speed: float) -> int:
     from daq.runs import read_run
     from daq.runs.blocks import iter_stream_blocks
     from estimator.profile import load_profile
+    from ui.overlap import read_ahead
     from ui.pipeline import ESTIMATE_STREAM, TARE_EVENT, tares_from_events
     from ui.progress import bar
     from ui.replay_blocks import LiveComparison
@@ -189,7 +191,8 @@ def _replay_run(args: argparse.Namespace, folder: Path, speed: float) -> int:
     replay = _Replay(args, profile, tares, speed, live)
     with replay.writing():
         with bar(n_samples, "estimating") as shown:
-            for block in iter_stream_blocks(data, "samples", _BLOCK):  # bounded memory
+            # bounded memory; read beside the estimation
+            for block in read_ahead(iter_stream_blocks(data, "samples", _BLOCK)):
                 replay.feed(block if change is None else change.samples(block))
                 shown.update(block.size)
         replay.complete()
@@ -268,11 +271,14 @@ class _Replay:
             yield
             return
         from ui.estimates_csv import estimates_csv_writer
+        from ui.overlap import WriteBehind
 
-        with estimates_csv_writer(
-            self.args.out, metadata=_metadata(self.args, self.profile)
-        ) as out:
-            self._out = out
+        metadata = _metadata(self.args, self.profile)
+        with (
+            estimates_csv_writer(self.args.out, metadata=metadata) as out,
+            WriteBehind(out.write) as behind,  # formatted and written beside the estimation
+        ):
+            self._out = behind
             try:
                 yield
             finally:
@@ -338,7 +344,7 @@ class _Replay:
 
     def _use(self, est: Any, samples: Any) -> None:
         if self._out is not None:
-            self._out.write([est[name] for name in est.dtype.names])
+            self._out.put([est[name] for name in est.dtype.names])
         if self.live is not None:
             self.live.add(est)
         if self._steps is not None:
