@@ -682,6 +682,7 @@ def imm_block(
                 lused = lmax + math.log(total)
                 so2 = outlier_sd * outlier_sd + smix
                 lout = _outlier_log_density(zk - zhat, so2, outlier_tail)
+                taken_back = False
                 suspect = _suspect_weighed(
                     zk, R, gate2, jump, jump_end, xa, Pa, jbest, lj, lmax + log_1m_eps, total,
                     log_eps + lout,
@@ -705,13 +706,15 @@ def imm_block(
                         _apply(zk, R, floor, xb, Pb, PDb, mub, lw, lmax2, total2, d, T)
                         if wb < 1.0:
                             _apply(zk, R, floor, xa, Pa, PDa, mua, lj, lmax, total, d, T)
-                        _merge(1.0 - wb, floor, xa, Pa, PDa, mua, xb, Pb, PDb, mub)
+                            _merge(1.0 - wb, floor, xa, Pa, PDa, mua, xb, Pb, PDb, mub)
+                        else:
+                            _copy_branch(xb, Pb, PDb, mub, xa, Pa, PDa, mua)
                         out_ll[k] = _logaddexp(l_before, l_both) - pend[5]
                         flag |= FLAG_OUT_REJECTED_BEFORE
                         rejected += 1
                         pend[3] = 0.0
+                        taken_back = True
                         suspect = False
-                        lused = math.nan  # done
                 if suspect:
                     # suspect: keep the prediction as the "outlier" branch, then update
                     _copy_branch(xa, Pa, PDa, mua, xb, Pb, PDb, mub)
@@ -720,7 +723,7 @@ def imm_block(
                     pend[0] = 1.0
                     flag |= FLAG_OUT_SUSPECT
                     out_ll[k] = _logaddexp(log_1m_eps + pend[1], log_eps + pend[2])
-                elif not math.isnan(lused):
+                elif not taken_back:
                     if keep_before and out_y[k] ** 2 > gate2 * R:
                         # far enough out to be a spike its prediction could not tell: keep
                         # that prediction, for the next sample to weigh it in hindsight
