@@ -504,10 +504,11 @@ def _predicted(R, prune, x, P, mu):
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
-def _suspect_weighed(z, R, gate2, jump, jump_end, x, P, jbest, lw, lmax, total, lout):
+def _suspect_weighed(z, R, gate2, jump, jump_end, x, P, jbest, lw, lmax, total, lout, far):
     """Is ``z`` suspect for the branch whose weights `_weigh` left in ``lw`` (``lmax``,
     ``total`` as it returned them; ``lout`` the log of ``ε`` times the outlier density of
-    ``z``, `_outlier_log_density`)? It is when beyond the gate of the most probable model;
+    ``z``, `_outlier_log_density`, computed only when ``far``: beyond the gate in noise σ
+    alone)? It is when beyond the gate of the most probable model;
     when raising the force-jump models above ``_JUMP_SUSPECT`` on its own (at high rates one
     sample of a jump is barely above the noise, so a single noisy sample can do that); or
     when it is beyond the gate in noise σ alone and would make "an outlier" at least
@@ -518,7 +519,7 @@ def _suspect_weighed(z, R, gate2, jump, jump_end, x, P, jbest, lw, lmax, total, 
     y = z - x[jbest, 0]
     if y * y > gate2 * (P[jbest, 0, 0] + R):
         return True
-    if y * y > gate2 * R and lout - lmax - math.log(total) > _LOG_OUTLIER_SUSPECT_ODDS:
+    if far and lout - lmax - math.log(total) > _LOG_OUTLIER_SUSPECT_ODDS:
         return True
     if jump < 0:
         return False
@@ -679,14 +680,18 @@ def imm_block(
                         flag |= FLAG_OUT_REJECTED_BEFORE
             else:
                 lmax, total = _weigh(zk, R, xa, Pa, mua, lj)
-                lused = lmax + math.log(total)
                 so2 = outlier_sd * outlier_sd + smix
-                lout = _outlier_log_density(zk - zhat, so2, outlier_tail)
+                # beyond the gate in noise σ: only there do the outlier's odds count
+                # (on a held load almost no sample is, and the logarithms are spared)
+                far = out_y[k] ** 2 > gate2 * R
+                lout = _outlier_log_density(zk - zhat, so2, outlier_tail) if far else math.nan
                 taken_back = False
                 suspect = _suspect_weighed(
                     zk, R, gate2, jump, jump_end, xa, Pa, jbest, lj, lmax + log_1m_eps, total,
-                    log_eps + lout,
+                    log_eps + lout, far,
                 )  # fmt: skip
+                if suspect and not far:
+                    lout = _outlier_log_density(zk - zhat, so2, outlier_tail)
                 if suspect and hindsight:
                     # was the sample before this one the outlier? ("before": that sample
                     # left out, this one used, from the prediction kept before it)
@@ -697,7 +702,7 @@ def imm_block(
                     )  # fmt: skip
                     lmax2, total2 = _weigh(zk, R, xb, Pb, mub, lw)
                     l_before = log_eps + pend[6] + lmax2 + math.log(total2)
-                    l_both = log_1m_eps + pend[5] + lused
+                    l_both = log_1m_eps + pend[5] + lmax + math.log(total)
                     l_this = log_1m_eps + pend[5] + log_eps + lout
                     if l_before > _logaddexp(l_both, l_this):
                         # the likeliest reading: both samples used, merged by their odds
@@ -724,14 +729,14 @@ def imm_block(
                     flag |= FLAG_OUT_SUSPECT
                     out_ll[k] = _logaddexp(log_1m_eps + pend[1], log_eps + pend[2])
                 elif not taken_back:
-                    if keep_before and out_y[k] ** 2 > gate2 * R:
+                    if keep_before and far:
                         # far enough out to be a spike its prediction could not tell: keep
                         # that prediction, for the next sample to weigh it in hindsight
                         _copy_branch(xa, Pa, PDa, mua, x[2], P[2], PD[2], mu[2])
                         pend[4] = 1.0
-                        pend[5] = lused
                         pend[6] = lout
                     out_ll[k] = _apply(zk, R, floor, xa, Pa, PDa, mua, lj, lmax, total, d, T)
+                    pend[5] = out_ll[k]  # its log density used, if kept for hindsight
                     pend[3] = 0.0
         if pend[0] != 0.0:
             # a suspect row: both branches, weighed by what is known so far. When the
