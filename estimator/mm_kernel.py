@@ -729,14 +729,16 @@ def imm_block(
                     flag |= FLAG_OUT_SUSPECT
                     out_ll[k] = _logaddexp(log_1m_eps + pend[1], log_eps + pend[2])
                 elif not taken_back:
-                    if keep_before and far:
+                    kept = keep_before and far
+                    if kept:
                         # far enough out to be a spike its prediction could not tell: keep
                         # that prediction, for the next sample to weigh it in hindsight
                         _copy_branch(xa, Pa, PDa, mua, x[2], P[2], PD[2], mu[2])
                         pend[4] = 1.0
                         pend[6] = lout
                     out_ll[k] = _apply(zk, R, floor, xa, Pa, PDa, mua, lj, lmax, total, d, T)
-                    pend[5] = out_ll[k]  # its log density used, if kept for hindsight
+                    if kept:
+                        pend[5] = out_ll[k]  # its log density used
                     pend[3] = 0.0
         if pend[0] != 0.0:
             # a suspect row: both branches, weighed by what is known so far. When the
