@@ -5,9 +5,12 @@ intensity ``qc``, the transition matrix ``Φ = exp(A·dt)`` and the covariance o
 noise accumulated over one step ``Qd = ∫₀^dt exp(Aτ) L qc Lᵀ exp(Aᵀτ) dτ``.
 
 Source: C. F. Van Loan, "Computing integrals involving the matrix exponential",
-IEEE Trans. Automatic Control AC-23(3), 395-404, 1978. The computation is done by
-filterpy's ``van_loan_discretization``; this module adds validation, the noise
-intensity as an explicit argument, and symmetrisation of the result.
+IEEE Trans. Automatic Control AC-23(3), 395-404, 1978. The block exponential is
+taken with ``scipy.linalg.expm`` in the same operations, in the same order, as
+filterpy's ``van_loan_discretization`` (the tests hold the two to the same bits);
+importing filterpy here would cost every command half a second for ``scipy.stats``.
+This module adds validation, the noise intensity as an explicit argument, and
+symmetrisation of the result.
 
 Long steps (a gap in the data of seconds on a cell that rings at hundreds of hertz):
 Van Loan's block matrix contains ``−A``, whose exponential grows as ``exp(ζ·ωn·dt)``;
@@ -23,7 +26,7 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from filterpy.common import van_loan_discretization
+from scipy.linalg import expm
 
 from estimator.errors import ParameterError
 
@@ -57,9 +60,21 @@ def van_loan(
         )
     growth = float(np.max(np.abs(np.linalg.eigvals(A).real), initial=0.0)) * dt_s
     k = math.ceil(math.log2(growth)) if growth > 1.0 else 0
-    phi, Qd = van_loan_discretization(A, L * math.sqrt(qc), dt_s / 2**k)
+    phi, Qd = _van_loan_block(A, L * math.sqrt(qc), dt_s / 2**k)
     for _ in range(k):
         Qd = phi @ Qd @ phi.T + Qd
         phi = phi @ phi
     Qd = 0.5 * (Qd + Qd.T)
     return np.ascontiguousarray(phi), Qd
+
+
+def _van_loan_block(A: np.ndarray, G: np.ndarray, dt: float) -> tuple[np.ndarray, np.ndarray]:
+    """Van Loan's block exponential for one step: ``(Φ, Qd)``."""
+    n = A.shape[0]
+    M = np.zeros((2 * n, 2 * n))
+    M[:n, :n] = -A.dot(dt)
+    M[:n, n:] = G.dot(G.T).dot(dt)
+    M[n:, n:] = A.T.dot(dt)
+    B = expm(M)
+    phi = B[n:, n:].T
+    return phi, phi.dot(B[:n, n:])

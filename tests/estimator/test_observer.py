@@ -23,6 +23,7 @@ import pytest
 import scipy.integrate
 import scipy.linalg
 import scipy.signal
+import scipy.stats
 from filterpy.kalman import IMMEstimator, KalmanFilter
 
 from estimator.consistency import nis_band
@@ -164,6 +165,20 @@ def test_van_loan_cell_matches_quadrature() -> None:
     Qi, _ = scipy.integrate.quad_vec(integrand, 0.0, DT, epsabs=0.0, epsrel=1e-12)
     scale = np.sqrt(np.outer(np.diag(Qi), np.diag(Qi)))
     assert np.max(np.abs(Qd - Qi) / scale) < 1e-10  # quadrature tolerance, well above eps
+
+
+def test_van_loan_gives_the_same_bits_as_filterpy() -> None:
+    # Reference library: filterpy.common.van_loan_discretization, the routine the block
+    # exponential was taken from (it is not imported at run time, see the module).
+    from filterpy.common import van_loan_discretization
+
+    A, L = cell_force_model(CELL)
+    q = 3e-3
+    for dt in (DT, 3 * DT, 0.37 * DT):
+        phi, Qd = van_loan(A, L, q, dt)
+        phi_ref, Qd_ref = van_loan_discretization(A, np.reshape(L, (-1, 1)) * np.sqrt(q), dt)
+        assert phi.tobytes() == np.ascontiguousarray(phi_ref).tobytes()
+        assert Qd.tobytes() == (0.5 * (Qd_ref + Qd_ref.T)).tobytes()
 
 
 def test_van_loan_long_gap_stays_finite_and_exact() -> None:
@@ -574,6 +589,18 @@ def test_mean_nis_on_truth_from_the_priors(prior_runs, truth: str) -> None:
     nis = est["nis"][est["flags"] == 0]
     lo, hi = nis_band(nis.size)
     assert lo <= np.mean(nis) <= hi, f"mean NIS {np.mean(nis):.3f} outside [{lo:.3f}, {hi:.3f}]"
+
+
+def test_nis_band_is_the_chi_square_band() -> None:
+    # Reference library: scipy.stats.chi2.ppf (nis_band computes the same quantile
+    # through scipy.special to keep scipy.stats out of every command's start-up).
+    n = np.arange(0, 20_000)
+    for level in (0.9, 0.95, 0.99):
+        lo, hi = nis_band(n, level)
+        tail = (1.0 - level) / 2.0
+        with np.errstate(invalid="ignore", divide="ignore"):
+            np.testing.assert_array_equal(lo, scipy.stats.chi2.ppf(tail, n) / n)
+            np.testing.assert_array_equal(hi, scipy.stats.chi2.ppf(1.0 - tail, n) / n)
 
 
 def _shown_mixture(mu: np.ndarray, f: np.ndarray, var: np.ndarray, prune: np.ndarray, tail: float):
