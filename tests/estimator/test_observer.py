@@ -221,9 +221,12 @@ def test_transition_matrix_rows_and_the_start_ratio(ratio: float) -> None:
     # Definition (force_models docstring): rows are probabilities; the regular models
     # leave at the total rate dt/dwell and jump at dt/jump_interval, the jump's instant
     # alike over the timed jump models; from hold the rate models are entered in the
-    # ratio 1 : γ : γ² … and in total as often as with γ = 1; a jump stays or ends; the
-    # kink is entered kink_share times as often as a force jump at one of its instants.
-    bank = dataclasses.replace(ForceModels.for_cell(CELL, SPAN, Q_HOLD), start_ratio=ratio)
+    # ratio 1 : γ : γ² … and in total as often as with γ = 1; a jump stays or ends, and
+    # its exits enter the rate models in the ratio 1 : ρ : ρ² …; the kink and the small
+    # kink are each entered kink_share times as often as a force jump at one instant.
+    bank = dataclasses.replace(
+        ForceModels.for_cell(CELL, SPAN, Q_HOLD), start_ratio=ratio, exit_ratio=ratio
+    )
     PI = bank.transitions(DT)
     assert np.all(PI >= 0.0)
     np.testing.assert_allclose(PI.sum(axis=1), 1.0, rtol=0, atol=1e-15)
@@ -232,14 +235,20 @@ def test_transition_matrix_rows_and_the_start_ratio(ratio: float) -> None:
     np.testing.assert_allclose(rates[1:] / rates[:-1], ratio, rtol=1e-12)
     np.testing.assert_allclose(rates.sum(), DT / bank.dwell_s, rtol=1e-12)
     jumps = PI[:n_reg, n_reg:]
-    assert jumps.shape[1] == len(bank.jump_timing) + 1  # the timed jumps and the kink
-    one = DT / bank.jump_interval_s / len(bank.jump_timing)
-    np.testing.assert_allclose(jumps[:, :-1], one, rtol=1e-12)
-    np.testing.assert_allclose(jumps[:, -1], bank.kink_share * one, rtol=1e-12)
-    for i in range(n_reg, bank.count):  # a jump continues only as itself
+    n_timed = len(bank.jump_timing)
+    assert jumps.shape[1] == n_timed + 2  # the timed jumps, the kink and the small kink
+    one = DT / bank.jump_interval_s / n_timed
+    np.testing.assert_allclose(jumps[:, :n_timed], one, rtol=1e-12)
+    np.testing.assert_allclose(jumps[:, n_timed:], bank.kink_share * one, rtol=1e-12)
+    for i in range(n_reg, bank.count):  # a jump continues only as itself, or ends
         assert PI[i, i] == bank.jump_stay and np.all(np.delete(PI[i, n_reg:], i - n_reg) == 0)
-    with pytest.raises(ParameterError, match="start_ratio"):
-        dataclasses.replace(bank, start_ratio=0.0)
+        exits = PI[i, 1:n_reg]
+        np.testing.assert_allclose(exits[1:] / exits[:-1], ratio, rtol=1e-12)
+        want = (1.0 - bank.jump_stay) * (1.0 - bank.jump_to_hold)
+        np.testing.assert_allclose(exits.sum(), want, rtol=1e-12)
+    for name in ("start_ratio", "exit_ratio", "kink_small_ratio"):
+        with pytest.raises(ParameterError, match=name):
+            dataclasses.replace(bank, **{name: 0.0 if name != "kink_small_ratio" else 1.0})
 
 
 def test_a_timed_jump_moves_the_state_by_the_cells_step_response() -> None:
@@ -269,16 +278,18 @@ def test_the_kink_models_noise_is_a_random_walk_of_the_force_rate() -> None:
     # gives the force and its rate the covariance q·[[dt³/3, dt²/2], [dt²/2, dt]]; the
     # kink's q is σ²/dt (a change of variance σ² at an unknown instant of the step).
     bank = ForceModels.for_cell(CELL, SPAN, Q_HOLD)
-    assert bank.kink_rate_sd_n_per_s > 0.0 and bank.count == bank.regular + 4
+    assert bank.kink_rate_sd_n_per_s > 0.0 and bank.count == bank.regular + 5
     _, Q, _ = model_tables(CELL, bank, np.array([DT]))
     D = scaling(CELL)
-    q = bank.kink_rate_sd_n_per_s**2 / DT
-    want = q * np.array([[DT**3 / 3, DT**2 / 2], [DT**2 / 2, DT]]) * np.outer(D[2:], D[2:])
-    np.testing.assert_allclose(Q[0, -1, 2:, 2:], want, rtol=1e-9)
+    kink = bank.regular + len(bank.jump_timing)  # the kink, then the small kink
+    for j, size in ((kink, 1.0), (kink + 1, bank.kink_small_ratio)):
+        q = (size * bank.kink_rate_sd_n_per_s) ** 2 / DT
+        want = q * np.array([[DT**3 / 3, DT**2 / 2], [DT**2 / 2, DT]]) * np.outer(D[2:], D[2:])
+        np.testing.assert_allclose(Q[0, j, 2:, 2:], want, rtol=1e-9)
     PI = bank.transitions(DT)
     n_reg = bank.regular
     # a kink is entered kink_share times as often as a force jump at one instant
-    np.testing.assert_allclose(PI[:n_reg, -1], bank.kink_share * PI[:n_reg, n_reg], rtol=1e-12)
+    np.testing.assert_allclose(PI[:n_reg, kink], bank.kink_share * PI[:n_reg, n_reg], rtol=1e-12)
     # a long gap: every row still a probability distribution
     PI = bank.transitions(5.0)
     assert np.all(PI >= 0.0)
@@ -318,8 +329,8 @@ def test_late_kinks_are_added_only_where_a_kink_stays_unseen_for_samples() -> No
     assert late_kink_onsets(soft, rate, dt, sigma) == (1, 2)
     assert late_kink_onsets(CELL, 0.3 * SPAN * CELL.natural_freq_hz, DT, NOISE) == ()
     bank = ForceModels.for_cell(soft, 20.0, 1e-3, dt_s=dt, noise_sd_m=sigma)
-    assert bank.kink_onsets == (1, 2) and bank.kinks == 3
-    assert bank.count == bank.regular + len(bank.jump_timing) + 3
+    assert bank.kink_onsets == (1, 2) and bank.kinks == 4  # the kink, the small one, 2 late
+    assert bank.count == bank.regular + len(bank.jump_timing) + 4
 
 
 def test_a_late_kinks_noise_is_the_cells_ramp_response_from_that_step() -> None:
@@ -341,8 +352,9 @@ def test_a_late_kinks_noise_is_the_cells_ramp_response_from_that_step() -> None:
     np.testing.assert_allclose(Q[0, -1], want, rtol=2e-5, atol=1e-9 * np.abs(want).max())
     # entered as often as the kink within the step, times late_kink_share
     n_reg = bank.regular
+    kink = n_reg + len(bank.jump_timing)
     np.testing.assert_allclose(
-        PI[0, :n_reg, -1], bank.late_kink_share * PI[0, :n_reg, -2], rtol=1e-12
+        PI[0, :n_reg, -1], bank.late_kink_share * PI[0, :n_reg, kink], rtol=1e-12
     )
 
 
