@@ -55,7 +55,8 @@ models follow the same kind of ladder, ``1 : ρ : ρ² …`` (``ρ = exit_ratio`
 even split the fastest rate model, the widest, kept a few per cent for samples after a
 corner, long enough to explain a spike as motion (on 585 invented records a sine on a
 lightly damped 1 kHz cell was followed 1.26 times worse than by the fitted integrated
-random walk, with ``ρ = 0.7`` 1.05).
+random walk, with ``ρ = 0.7`` 1.05; beside the small kink, which does that too, its share is
+within a few per cent either way, method-observer section 4).
 """
 
 from __future__ import annotations
