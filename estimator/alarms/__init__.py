@@ -21,8 +21,10 @@ reasons in ``docs/method-monitor.md``):
     when it has stayed below a lower fraction for the same hold time.
 ``model-mismatch`` (warning)
     the mean NIS of consecutive windows lies outside its chi-square band
-    (:mod:`estimator.consistency`) for several windows in a row; clears after several
-    windows in a row inside.
+    (:mod:`estimator.consistency`) for several windows in a row, or the cell's ring-down
+    after several load changes in a row has an fn or ζ off the profile's
+    (:mod:`estimator.alarms.ringdown`); clears after several windows in a row inside and
+    several ring-downs that agree.
 ``sample-loss`` (warning)
     more than a fraction of the last ``loss_window_s`` of samples lost (gaps in the
     sequence numbers) or empty (no measurement); clears at a lower fraction.
@@ -41,7 +43,8 @@ only a silence at the very end of a recording needs a final ``tick`` with the ti
 recording stopped.
 
 The package: ids, severities and settings (`definitions`), one detector per alarm
-(`detectors`), and the set that runs them (`alarm_set`).
+(`detectors`), the ring-down fits of the model-mismatch alarm (`ringdown`), and the set
+that runs them (`alarm_set`).
 """
 
 from __future__ import annotations

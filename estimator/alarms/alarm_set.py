@@ -17,11 +17,13 @@ from estimator.alarms.definitions import (
     _check,
 )
 from estimator.alarms.detectors import _Block, _Drift, _Loss, _Mismatch, _Overload, _Stall, _Travel
+from estimator.alarms.ringdown import RingdownWatch
 from estimator.errors import ParameterError
 from estimator.monitor import SettlingMonitor, SettlingRule
 from estimator.observer import ESTIMATE_DTYPE
 
 if TYPE_CHECKING:
+    from estimator.plant import Plant
     from estimator.profile import CellProfile
 
 
@@ -41,6 +43,10 @@ class AlarmSet:
         monitor: a settling monitor, with the same rule and rate, that its owner feeds
             each block before the alarms: the zero-drift alarm then reads its trace
             instead of computing the same one again (default: a monitor of its own).
+        plant: the cell's model; with ``noise_m``, the ring-down after each load change
+            is checked against its fn and ζ (model-mismatch alarm). None: not checked.
+        noise_m: standard deviation of the readings, m (transducer noise and
+            quantisation).
     """
 
     def __init__(
@@ -54,6 +60,8 @@ class AlarmSet:
         rule: SettlingRule | None = None,
         tares: Iterable[int] = (),
         monitor: SettlingMonitor | None = None,
+        plant: Plant | None = None,
+        noise_m: float | None = None,
     ) -> None:
         _check("sample_rate_hz", sample_rate_hz, 0.0, open_low=True)
         _check("force_min_n", force_min_n, -math.inf)
@@ -85,8 +93,20 @@ class AlarmSet:
             detectors.append(
                 _Travel(travel_m, s.travel_raise_fraction, s.travel_clear_fraction, clear_hold)
             )
+        ring = None
+        if plant is not None and noise_m is not None:
+            _check("noise_m", noise_m, 0.0, open_low=True)
+            ring = RingdownWatch(
+                plant.natural_freq_hz,
+                plant.damping_ratio,
+                fs,
+                noise_m,
+                s.ring_fn_tolerance,
+                s.ring_zeta_tolerance,
+                s.ring_min_amplitude,
+            )
         detectors += [
-            _Mismatch(s),
+            _Mismatch(s, ring),
             _Loss(
                 max(1, round(s.loss_window_s * fs)), s.loss_raise_fraction, s.loss_clear_fraction
             ),
@@ -120,6 +140,7 @@ class AlarmSet:
     ) -> AlarmSet:
         """The alarms of a cell profile (rate from ``[acquisition]``, range from ``[limits]``)."""
         lim = profile.limits
+        tr = profile.transducer
         return cls(
             profile.acquisition.sample_rate_hz,
             lim.force_min_n,
@@ -129,6 +150,8 @@ class AlarmSet:
             rule=rule,
             tares=tares,
             monitor=monitor,
+            plant=profile.plant,
+            noise_m=math.sqrt(tr.noise_m**2 + tr.resolution_m**2 / 12.0),
         )
 
     # ------------------------------------------------------------------ queries

@@ -66,6 +66,14 @@ class AlarmSettings:
         nis_clear_windows: consecutive windows inside the band that clear it.
         nis_min_used_fraction: a window where the observer used fewer samples than this
             fraction (suspect, load jump, missing) is not judged.
+        ring_fn_tolerance, ring_zeta_tolerance: a ring-down after a load change whose
+            fitted fn or ζ is off the profile's by more than this fraction (and by more
+            than four of its standard uncertainties) disagrees with the profile.
+        ring_min_amplitude: ringing, in noise standard deviations, a ring-down needs to
+            be judged.
+        ring_raise_checks: consecutive ring-downs that disagree that raise the
+            model-mismatch alarm.
+        ring_clear_checks: consecutive ring-downs that agree that clear it.
         loss_window_s: length of the sliding window of the loss count, s of samples.
         loss_raise_fraction: raise when more than this fraction of the window is lost.
         loss_clear_fraction: clear when at most this fraction is lost.
@@ -88,6 +96,11 @@ class AlarmSettings:
     nis_raise_windows: int = 5
     nis_clear_windows: int = 5
     nis_min_used_fraction: float = 0.5
+    ring_fn_tolerance: float = 0.03
+    ring_zeta_tolerance: float = 0.25
+    ring_min_amplitude: float = 30.0
+    ring_raise_checks: int = 2
+    ring_clear_checks: int = 2
     loss_window_s: float = 1.0
     loss_raise_fraction: float = 0.005
     loss_clear_fraction: float = 0.001
@@ -108,7 +121,13 @@ class AlarmSettings:
                 f"travel_clear_fraction = {self.travel_clear_fraction!r}: must be below "
                 f"travel_raise_fraction = {self.travel_raise_fraction!r} (hysteresis)"
             )
-        for name in ("nis_window", "nis_raise_windows", "nis_clear_windows"):
+        for name in (
+            "nis_window",
+            "nis_raise_windows",
+            "nis_clear_windows",
+            "ring_raise_checks",
+            "ring_clear_checks",
+        ):
             value = getattr(self, name)
             if not (isinstance(value, int) and not isinstance(value, bool) and value >= 1):
                 raise ParameterError(f"{name} = {value!r}: must be an integer >= 1")
@@ -116,6 +135,9 @@ class AlarmSettings:
         if self.nis_level >= 1.0:
             raise ParameterError(f"nis_level = {self.nis_level!r}: must be below 1, e.g. 0.99")
         _check("nis_min_used_fraction", self.nis_min_used_fraction, 0.0, 1.0)
+        _check("ring_fn_tolerance", self.ring_fn_tolerance, 0.0, 1.0, open_low=True)
+        _check("ring_zeta_tolerance", self.ring_zeta_tolerance, 0.0, 1.0, open_low=True)
+        _check("ring_min_amplitude", self.ring_min_amplitude, 0.0, open_low=True)
         _check("loss_window_s", self.loss_window_s, 0.0, open_low=True)
         _check("loss_raise_fraction", self.loss_raise_fraction, 0.0, 1.0)
         _check("loss_clear_fraction", self.loss_clear_fraction, 0.0, 1.0)

@@ -21,10 +21,11 @@ from estimator.alarms.definitions import (
     AlarmChange,
     AlarmSettings,
 )
+from estimator.alarms.ringdown import RingdownWatch
 from estimator.consistency import nis_band, windowed_nis
 from estimator.errors import ParameterError
 from estimator.monitor import SETTLED, STATES, SettlingMonitor, _latch
-from estimator.observer import ESTIMATE_DTYPE, FLAG_MISSING
+from estimator.observer import ESTIMATE_DTYPE, FLAG_JUMP, FLAG_MISSING
 
 if TYPE_CHECKING:
     pass
@@ -205,42 +206,79 @@ class _Travel:
 
 
 class _Mismatch:
-    """Windowed NIS outside its chi-square band for several windows in a row."""
+    """The cell does not behave like its model, by either of two kinds of evidence:
+
+    * the windowed NIS outside its chi-square band for several windows in a row (clears
+      after several inside): innovations larger or smaller than the model expects;
+    * the ring-down after a load change fitted with fn or ζ off the profile's, for several
+      load changes in a row (clears after as many that agree; `ringdown.RingdownWatch`).
+
+    The alarm is raised while either holds; the transition carries the message of the
+    evidence that decided it.
+    """
 
     alarm_id = MISMATCH
 
-    def __init__(self, s: AlarmSettings) -> None:
+    def __init__(self, s: AlarmSettings, ring: RingdownWatch | None = None) -> None:
         self.window = s.nis_window
         self.level = s.nis_level
         self.raise_after = s.nis_raise_windows
         self.clear_after = s.nis_clear_windows
         self.min_used = max(1, math.ceil(s.nis_min_used_fraction * s.nis_window))
+        self.ring = ring
+        self.ring_raise_after = s.ring_raise_checks
+        self.ring_clear_after = s.ring_clear_checks
         self.rest = np.zeros(0, ESTIMATE_DTYPE)
         self.rest_first = 0  # stream position of rest[0]
         self.out_run = 0
         self.in_run = 0
+        self.nis_active = False
+        self.ring_off_run = 0
+        self.ring_ok_run = 0
+        self.ring_active = False
         self.active = False
         # band of each count of used samples, computed once (scipy's χ² quantile costs
         # ~150 µs a call: 4 % of a core at 50 kHz when called for every block)
         self.bands: dict[int, tuple[float, float]] = {}
 
     def describe(self) -> str:
-        return (
+        text = (
             f"model-mismatch: mean NIS of {self.window} samples outside its "
             f"{self.level * 100:g} % chi-square band for {self.raise_after} windows in a row; "
             f"clears after {self.clear_after} windows inside"
         )
+        if self.ring is not None:
+            text += (
+                f"; or {self.ring.describe()}, after {self.ring_raise_after} load changes in "
+                f"a row; clears after {self.ring_clear_after} that agree"
+            )
+        return text
 
     def process(self, b: _Block) -> list[AlarmChange]:
+        # (index, order, raise?, change) of each source's own transitions, merged below
+        events = self._nis_events(b) + self._ring_events(b)
+        events.sort(key=lambda e: (e[0], e[1]))
+        changes = []
+        for _, order, raised, change in events:
+            if order == 0:
+                self.nis_active = raised
+            else:
+                self.ring_active = raised
+            now = self.nis_active or self.ring_active
+            if now != self.active:
+                self.active = now
+                changes.append(change)
+        return changes
+
+    def _nis_events(self, b: _Block) -> list[tuple[int, int, bool, AlarmChange]]:
         rows = np.concatenate((self.rest, b.est))
         first = self.rest_first
         mean, used = windowed_nis(rows, self.window)
         full = mean.size * self.window
         self.rest = rows[full:].copy()
         self.rest_first = first + full
-        if mean.size == 0:
-            return []
-        changes = []
+        events: list[tuple[int, int, bool, AlarmChange]] = []
+        active = self.nis_active
         for w in range(mean.size):
             if used[w] < self.min_used:
                 continue  # too few samples to judge; runs are left as they are
@@ -255,8 +293,8 @@ class _Mismatch:
             end = (w + 1) * self.window - 1
             t_end = float(rows["time_s"][end])
             index = first + end
-            if not self.active and self.out_run >= self.raise_after:
-                self.active = True
+            if not active and self.out_run >= self.raise_after:
+                active = True
                 side = "larger" if mean[w] > high else "smaller"
                 cause = (
                     "the cell does not behave like its profile (plant changed, wrong profile, "
@@ -265,37 +303,64 @@ class _Mismatch:
                     else "the measurement is quieter than the profile says"
                 )
                 edge = high if side == "larger" else low
-                changes.append(
-                    _change(
-                        MISMATCH,
-                        RAISED,
-                        index,
-                        t_end,
-                        f"mean NIS {mean[w]:.3g} over {int(used[w])} samples is outside its "
-                        f"{self.level * 100:g} % band {low:.3g} … {high:.3g} for "
-                        f"{self.out_run} windows in a row: innovations {side} than the model "
-                        f"expects; {cause}",
-                        mean[w],
-                        edge,
-                        "1",
-                    )
+                message = (
+                    f"mean NIS {mean[w]:.3g} over {int(used[w])} samples is outside its "
+                    f"{self.level * 100:g} % band {low:.3g} … {high:.3g} for "
+                    f"{self.out_run} windows in a row: innovations {side} than the model "
+                    f"expects; {cause}"
                 )
-            elif self.active and self.in_run >= self.clear_after:
-                self.active = False
-                changes.append(
-                    _change(
-                        MISMATCH,
-                        CLEARED,
-                        index,
-                        t_end,
-                        f"mean NIS {mean[w]:.3g} back within {low:.3g} … {high:.3g} "
-                        f"for {self.in_run} windows in a row",
-                        mean[w],
-                        high,
-                        "1",
-                    )
+                change = _change(MISMATCH, RAISED, index, t_end, message, mean[w], edge, "1")
+                events.append((index, 0, True, change))
+            elif active and self.in_run >= self.clear_after:
+                active = False
+                message = (
+                    f"mean NIS {mean[w]:.3g} back within {low:.3g} … {high:.3g} "
+                    f"for {self.in_run} windows in a row"
                 )
-        return changes
+                change = _change(MISMATCH, CLEARED, index, t_end, message, mean[w], high, "1")
+                events.append((index, 0, False, change))
+        return events
+
+    def _ring_events(self, b: _Block) -> list[tuple[int, int, bool, AlarmChange]]:
+        if self.ring is None:
+            return []
+        names = b.samples.dtype.names or ()
+        reading = (
+            b.samples["displacement_m"] if "displacement_m" in names else b.est["displacement_m"]
+        )
+        jump = (b.est["flags"] & FLAG_JUMP) != 0
+        checks = self.ring.feed(b.pos, b.est["time_s"], reading, jump)
+        events: list[tuple[int, int, bool, AlarmChange]] = []
+        active = self.ring_active
+        ring = self.ring
+        for c in checks:
+            self.ring_off_run = 0 if c.agrees else self.ring_off_run + 1
+            self.ring_ok_run = self.ring_ok_run + 1 if c.agrees else 0
+            f = c.fit
+            fitted = f"fn {f.fn_hz:.4g} Hz, ζ {f.zeta:.3g}"
+            profile = f"fn {ring.fn_hz:.4g} Hz, ζ {ring.zeta:.3g}"
+            zeta_off = abs(f.zeta - ring.zeta) > ring.zeta_tolerance * ring.zeta
+            value, limit, unit = (
+                (f.zeta, ring.zeta, "1") if zeta_off else (f.fn_hz, ring.fn_hz, "Hz")
+            )
+            if not active and self.ring_off_run >= self.ring_raise_after:
+                active = True
+                message = (
+                    f"the cell rang after the last {self.ring_off_run} load changes with "
+                    f"{fitted}; the profile says {profile}: the cell does not behave like "
+                    "its profile (plant changed or wrong profile); identify it again"
+                )
+                change = _change(MISMATCH, RAISED, c.index, c.time_s, message, value, limit, unit)
+                events.append((c.index, 1, True, change))
+            elif active and self.ring_ok_run >= self.ring_clear_after:
+                active = False
+                message = (
+                    f"the ring-downs after the last {self.ring_ok_run} load changes agree "
+                    f"with the profile ({fitted}; profile {profile})"
+                )
+                change = _change(MISMATCH, CLEARED, c.index, c.time_s, message, value, limit, unit)
+                events.append((c.index, 1, False, change))
+        return events
 
 
 class _Loss:
