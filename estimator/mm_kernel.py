@@ -462,6 +462,20 @@ def _combine(k, wa, xa, Pa, mua, xb, Pb, mub, prune, tail, ca, cb, keep, out_x, 
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
+def _reach_other(k, out_x, out_var, other_x, other_var):
+    """Widen row ``k``'s variances so that its ±2σ interval holds the ±2σ interval of the
+    hypothesis not shown (mean ``x_o``, σ ``σ_o``): ``σ' = max(σ, |x − x_o|/2 + σ_o)``.
+    A suspect row cannot yet tell an outlier from the first sample of a load change, and
+    the mixture shown prunes the long-odds branch's models: the row stated the σ of a
+    held load while the load had already stepped."""
+    for a in range(4):
+        s = math.sqrt(out_var[k, a])
+        reach = 0.5 * abs(out_x[k, a] - other_x[0, a]) + math.sqrt(other_var[0, a])
+        if reach > s:
+            out_var[k, a] = reach * reach
+
+
+@numba.njit(cache=True, nogil=True, inline="always")
 def _add_lag(xa, mua, jump, floor, k, out_var):
     """The lag of the prior in the force's variance (row ``k``): when a rate model other
     than the fastest leads the mixture, the load may be moving faster than it assumes, and
@@ -610,6 +624,8 @@ def imm_block(
     ca = np.empty(r)
     cb = np.empty(r)
     keep = np.empty(r, np.int64)
+    other_x = np.empty((1, 4))
+    other_var = np.empty((1, 4))
     xa, Pa, PDa, mua = x[0], P[0], PD[0], mu[0]
     xb, Pb, PDb, mub = x[1], P[1], PD[1], mu[1]
     log_eps = math.log(outlier_prob)
@@ -743,18 +759,19 @@ def imm_block(
         if pend[0] != 0.0:
             # a suspect row: both branches, weighed by what is known so far. When the
             # outlier is the likelier and no change is confirmed under way, the row shows
-            # the estimate without the sample (an isolated outlier must not move it),
-            # with a variance that spans both branches about it.
+            # the estimate without the sample (an isolated outlier must not move it).
+            # Either way its ±2σ reaches the other hypothesis (`_reach_other`).
             wa = 1.0 / (1.0 + math.exp(log_eps + pend[2] - log_1m_eps - pend[1]))
-            _combine(k, wa, xa, Pa, mua, xb, Pb, mub, prune, tail, ca, cb, keep, out_x, out_var)
-            if pend[3] == 0.0 and wa < _SHOW_USED:
-                for a in range(4):
-                    d[a] = out_x[k, a]
-                _combine(
-                    k, 0.0, xa, Pa, mua, xb, Pb, mub, prune, tail, ca, cb, keep, out_x, out_var
-                )
-                for a in range(4):
-                    out_var[k, a] += (d[a] - out_x[k, a]) ** 2
+            shown_used = pend[3] != 0.0 or wa >= _SHOW_USED
+            _combine(
+                k, wa if shown_used else 0.0, xa, Pa, mua, xb, Pb, mub, prune, tail, ca, cb,
+                keep, out_x, out_var,
+            )  # fmt: skip
+            _combine(
+                0, 0.0 if shown_used else 1.0, xa, Pa, mua, xb, Pb, mub, prune, tail, ca, cb,
+                keep, other_x, other_var,
+            )  # fmt: skip
+            _reach_other(k, out_x, out_var, other_x, other_var)
         else:
             _combine(k, 1.0, xa, Pa, mua, xb, Pb, mub, prune, tail, ca, cb, keep, out_x, out_var)
         if jump > 1:

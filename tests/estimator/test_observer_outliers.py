@@ -198,3 +198,25 @@ def test_settles_three_times_sooner_than_k_x(step_record) -> None:
     # the sampling (two periods).
     assert abs(ts_kx - CELL.settling_time_s(0.02)) <= 2 * DT
     assert 3.0 * ts_obs <= ts_kx  # measured here: 1.4 ms against 32.3 ms
+
+
+def test_a_suspect_row_showing_the_old_level_still_covers_the_new_one() -> None:
+    # The first sample of a step can look like an outlier; the row then shows the old
+    # level until the next sample decides. Its ±2σ must hold the step too: it holds the
+    # other hypothesis' ±2σ interval. Truth: scipy.signal.lsim of the shared invented
+    # cell (observer_cell.step_run), each change 0.3 periods after a sample. Measured on
+    # the four such rows here: |error|/σ 0.67-0.95 (3.0-4.7 before).
+    levels = [0.0, 40.0, 15.0, 90.0, 60.0, 100.0, 5.0, 120.0, 30.0]  # invented
+    t, z, force = step_run(levels, 0.1, seed=8)
+    est = make_observer().process(t, z)
+    steps = np.flatnonzero(np.diff(force) != 0.0) + 1
+    shown_old = 0
+    for s in steps:
+        old, new = force[s - 1], force[s]
+        for k in range(s, s + 3):
+            if est["flags"][k] & FLAG_REJECTED and abs(est["force_n"][k] - old) < 0.01 * abs(
+                new - old
+            ):
+                shown_old += 1
+                assert abs(est["force_n"][k] - new) <= 2.0 * est["force_u_n"][k], (s, k)
+    assert shown_old >= 3
