@@ -28,9 +28,11 @@ Every record is estimated by:
 
 Scores per record, leaving out the first 50 ms (start-up): RMSE of force (N), ±2σ
 coverage (share of samples with ``|F̂ − F| ≤ 2σ``), and for staircase and pulse
-records the 2 % settling time after each step or pulse end. The summary checks the
-observer against targets (PASS/FAIL) and gives its live throughput against the RW
-filter's, measured in the same run.
+records the 2 % settling time after each step or pulse end; for staircases, how many of
+the rows at each step are covered (live: the first, the second, the third to tenth row at
+or after the step; smoothed: from three rows before it to seven after). The summary checks
+the observer against targets (PASS/FAIL), pools the step rows' coverage (information), and
+gives its live throughput against the RW filter's, measured in the same run.
 
 Sources: R. E. Kalman (1960), "A new approach to linear filtering and prediction
 problems", J. Basic Eng. 82(1); H. E. Rauch, F. Tung, C. T. Striebel (1965),
@@ -66,7 +68,7 @@ from accuracy.cells import CELLS, OTHER_CELLS, Cell, random_cells
 from accuracy.loads import SHAPES, SMOOTH_SHAPES
 from accuracy.models import integrated_random_walk_model, random_walk_model
 from accuracy.records import START_UP_S, Record, build_records, wanted
-from accuracy.scoring import coverage, median_z, rmse, settling_times
+from accuracy.scoring import coverage, coverage_near_steps, median_z, rmse, settling_times
 from accuracy.variants import VARIANTS
 from accuracy.yardsticks import (
     GRID_STEP_DECADES,
@@ -87,6 +89,16 @@ LIVE_VS_IRW = 1.15
 SMOOTH_FACTOR, SMOOTH_SHARE = 1.10, 0.80
 COVER_LOW, COVER_HIGH = 0.90, 0.99
 SPIKE_FACTOR, DROP_FACTOR = 1.20, 1.05
+
+#: Rows around each step of a staircase whose ±2σ coverage is counted (information, not a
+#: target): the live rows from the first sample at or after the step, the smoothed ones
+#: from three before it (the smoother sees the step coming).
+NEAR_STEP_ROWS = (
+    ("live_row1", "live row 1", "live", range(0, 1)),
+    ("live_row2", "row 2", "live", range(1, 2)),
+    ("live_rows3_10", "rows 3–10", "live", range(2, 10)),
+    ("smoothed_rows_m3_p7", "smoothed rows −3…+7", "smoothed", range(-3, 8)),
+)
 
 Row = dict[str, object]
 
@@ -160,6 +172,13 @@ def score_record(record: Record, step_decades: float, label: str) -> tuple[Row, 
         events = record.load.events
         row["settle_ours_live_ms"] = fmt_settle(settling_times(t, ours_live, events))
         row["settle_kx_ms"] = fmt_settle(settling_times(t, kx, events))
+    # ±2σ coverage on the rows right after (and, smoothed, around) each step, counted
+    steps = [e.time_s for e in record.load.events] if record.load.shape == "staircase" else []
+    for name, _, kind, offsets in NEAR_STEP_ROWS:
+        est, sig = (ours_live, ours_live_u) if kind == "live" else (ours_sm, ours_sm_u)
+        covered, n = coverage_near_steps(t, est, sig, f, steps, offsets) if steps else (0, 0)
+        row[f"near_step_{name}_covered"] = covered
+        row[f"near_step_{name}_rows"] = n
     return row, spent
 
 
@@ -265,6 +284,16 @@ def summary(rows: list[Row]) -> None:
     print(
         "[info] median |error|/σ by shape, live/smoothed (0.67 when σ is the error's "
         "standard deviation; lower: σ too large): " + ", ".join(parts)
+    )
+    # Coverage right after the steps (information): pooled over the staircases' steps.
+    parts = []
+    for name, label, _, _ in NEAR_STEP_ROWS:
+        covered = sum(int(r[f"near_step_{name}_covered"]) for r in rows)
+        n = sum(int(r[f"near_step_{name}_rows"]) for r in rows)
+        parts.append(f"{label} {covered / n:.2f}" if n else f"{label} -")
+    print(
+        "[info] ±2σ coverage of the rows at each step of the staircases (row 1: the first "
+        "sample at or after it, which may not show it yet): " + ", ".join(parts)
     )
 
     # 5. Spikes and dropped rows against the clean record.

@@ -43,6 +43,25 @@ def median_z(
     return float(np.median(err / np.asarray(sigma_n)[mask]))
 
 
+def coverage_near_steps(
+    t_s: np.ndarray,
+    estimate_n: np.ndarray,
+    sigma_n: np.ndarray,
+    truth_n: np.ndarray,
+    step_times_s: Sequence[float],
+    offsets: range,
+    k: float = 2.0,
+) -> tuple[int, int]:
+    """``(covered, rows)``: of the rows at ``offsets`` from each step (offset 0 is the
+    first sample at or after the step's instant), how many have ``|error| ≤ k·σ``."""
+    t_s = np.asarray(t_s)
+    first = np.searchsorted(t_s, np.asarray(step_times_s, dtype=float))
+    rows = (first[:, None] + np.asarray(offsets)[None, :]).ravel()
+    rows = rows[(rows >= 0) & (rows < t_s.size)]
+    err = np.abs(np.asarray(estimate_n)[rows] - np.asarray(truth_n)[rows])
+    return int(np.count_nonzero(err <= k * np.asarray(sigma_n)[rows])), int(rows.size)
+
+
 def settling_times(
     t_s: np.ndarray,
     estimate_n: np.ndarray,
