@@ -11,15 +11,17 @@ straight line), gives ``ωn = √(σ² + ωd²)`` and ``ζ = σ/ωn`` by least s
 quantities `forcelens identify` takes from a ring-down, here from every load change the
 observer sees (its jump model taking over, `FLAG_JUMP`).
 
-Each window starts at the first row after a run of jump rows and spans ``_PERIODS``
-periods of the profile's fn, longer on a lightly damped cell (two time constants), at most
-``_PERIODS_MAX``. It is fitted from the readings (not the observer's estimate, which is
-the model being checked), starting from the profile's values. A window whose fit leaves
-more than ``_RMS_NOISE`` times the transducer noise (the next load change came within it,
-or the load was not held) is halved, down to ``_PERIODS_MIN`` periods, then dropped; so is
-one whose ringing is under ``min_amplitude`` noise σ. A window that is kept *disagrees*
-when fn or ζ is off by more than its tolerance and by more than ``_SIGNIFICANT`` of the
-fit's standard uncertainties, and *agrees* when both are within their tolerances.
+Each window starts at the first row after a run of jump rows, at least ``_SPACING_S`` after
+the one before, and spans ``_PERIODS`` periods of the profile's fn, longer on a lightly
+damped cell (two time constants), at most ``_PERIODS_MAX``. It is fitted from the readings
+(not the observer's estimate, which is the model being checked), starting from the
+profile's values. A window whose fit leaves more than ``_RMS_NOISE`` times the transducer
+noise (the next load change came within it, or the load was not held) is halved, down to
+``_PERIODS_MIN`` periods, then dropped; so is one whose ringing is under ``min_amplitude``
+noise σ, told first by the residual of a straight line (no fit where a load changed
+without ringing the cell). A window that is kept *disagrees* when fn or ζ is off by more
+than its tolerance and by more than ``_SIGNIFICANT`` of the fit's standard uncertainties,
+and *agrees* when both are within their tolerances.
 
 Only cells that ring are checked: a profile with ζ above ``ZETA_MAX`` gives no window.
 Every window is a function of the stream's rows alone, so the checks do not depend on the
@@ -44,6 +46,7 @@ _PERIODS_MAX = 40.0  # ... but at most this many periods
 _PERIODS_MIN = 3.0  # a window is halved down to this length before it is dropped
 _RMS_NOISE = 2.0  # residual RMS (in noise σ) above which the fit is not a free decay
 _SIGNIFICANT = 4.0  # a deviation must also exceed this many standard uncertainties
+_SPACING_S = 0.1  # windows start at least this far apart (and a window's length)
 
 
 @dataclass(frozen=True)
@@ -122,7 +125,7 @@ def fit_ringing(u_s: np.ndarray, x_m: np.ndarray, wn0: float, zeta0: float) -> R
             jac=jacobian,
             bounds=([0.0, 0.1 * wd0, -np.inf, -np.inf, -np.inf, -np.inf], np.inf),
             x_scale=np.array([max(sigma0, 1e-3 * wn0), wd0, scale, scale / u_s[-1], scale, scale]),
-            max_nfev=200,
+            max_nfev=60,
         )
     except (ValueError, np.linalg.LinAlgError):
         return None
@@ -180,6 +183,10 @@ class RingdownWatch:
         length = min(max(_PERIODS * period, _TIME_CONSTANTS * tau), _PERIODS_MAX * period)
         self.length = max(8, math.ceil(length))  # samples per window
         self.shortest = max(8, math.ceil(_PERIODS_MIN * period))
+        # windows start at least this many samples apart: a load the observer takes for a
+        # jump every few milliseconds must not cost a fit each (one takes 1-7 ms)
+        self.spacing = max(self.length, math.ceil(_SPACING_S * sample_rate_hz))
+        self._next = 0  # first stream position where a window may start
         self._open: list[np.ndarray] = []  # rows (time, reading) of the window being filled
         self._open_start = -1  # its first stream position; -1: none open
         self._in_jump = False  # the row before was a jump row
@@ -208,11 +215,12 @@ class RingdownWatch:
         n = pos.size
         while i < n:
             if self._open_start < 0:
-                later = starts[starts >= i]
+                later = starts[(starts >= i) & (pos[starts] >= self._next)]
                 if later.size == 0:
                     break
                 i = int(later[0])
                 self._open_start = int(pos[i])
+                self._next = self._open_start + self.spacing
                 self._open = []
             need = self.length - sum(part.shape[1] for part in self._open)
             take = min(need, n - i)
@@ -230,6 +238,8 @@ class RingdownWatch:
     def _judge(self, rows: np.ndarray, last: int) -> RingCheck | None:
         t, x = rows
         ok = np.isfinite(x)
+        if not self._rings(t[ok] - t[0], x[ok]):
+            return None
         wn0 = 2.0 * math.pi * self.fn_hz
         m = t.size
         while m >= self.shortest:
@@ -241,6 +251,16 @@ class RingdownWatch:
                 return self._verdict(fit, last, float(t[-1]), last - t.size + 1)
             m //= 2
         return None
+
+    def _rings(self, u: np.ndarray, x: np.ndarray) -> bool:
+        """Does anything but a straight line reach ``min_amplitude`` noise σ? A cheap test
+        that spares the fit where a load changed without the cell ringing (a slow
+        application, a heavily damped cell, or readings that step with no dynamics)."""
+        if u.size < 8:
+            return False
+        line = np.polynomial.polynomial.polyfit(u, x, 1)
+        rest = x - np.polynomial.polynomial.polyval(u, line)
+        return float(np.max(np.abs(rest))) >= self.min_amplitude * self.noise_m
 
     def _verdict(self, fit: RingFit, last: int, time_s: float, start: int) -> RingCheck | None:
         d_fn = abs(fit.fn_hz - self.fn_hz)

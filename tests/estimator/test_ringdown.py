@@ -78,3 +78,11 @@ def test_a_cell_that_does_not_ring_is_not_checked() -> None:
     jump = np.zeros(x.size, bool)
     jump[0] = True
     assert watch.feed(np.arange(x.size), np.arange(x.size) / RATE_HZ, x, jump) == []
+
+
+def test_windows_start_at_least_a_tenth_of_a_second_apart() -> None:
+    # load changes every 40 ms (200 samples), each seen by the observer: one fit per 0.1 s
+    x = np.concatenate([_step_response(20.0, 200) + 20.0 / K_N_PER_M * i for i in range(10)])
+    starts = [200 * i for i in range(10)]
+    checks = _checks(x, starts)
+    assert [c.start_index for c in checks] == [1, 601, 1201, 1801]
