@@ -80,9 +80,16 @@ def test_a_cell_that_does_not_ring_is_not_checked() -> None:
     assert watch.feed(np.arange(x.size), np.arange(x.size) / RATE_HZ, x, jump) == []
 
 
-def test_windows_start_at_least_a_tenth_of_a_second_apart() -> None:
-    # load changes every 40 ms (200 samples), each seen by the observer: one fit per 0.1 s
-    x = np.concatenate([_step_response(20.0, 200) + 20.0 / K_N_PER_M * i for i in range(10)])
-    starts = [200 * i for i in range(10)]
+def test_windows_start_a_tenth_of_a_second_apart_and_sparser_while_they_agree() -> None:
+    # load changes every 40 ms (200 samples), each seen by the observer: a window at
+    # least 0.1 s (500 samples) after the one before, twice that for each window in a row
+    # that agreed before it opened: gaps of 0.1, 0.2, 0.4 s
+    x = np.concatenate([_step_response(20.0, 200) + 20.0 / K_N_PER_M * i for i in range(20)])
+    starts = [200 * i for i in range(20)]
     checks = _checks(x, starts)
-    assert [c.start_index for c in checks] == [1, 601, 1201, 1801]
+    assert [c.start_index for c in checks] == [1, 601, 1601, 3601]
+    assert all(c.agrees for c in checks)
+    # against a profile with twice the damping every window disagrees: no sparser
+    off = _checks(x, starts, zeta=2 * ZETA)
+    assert [c.start_index for c in off] == [1, 601, 1201, 1801, 2401, 3001, 3601]
+    assert not any(c.agrees for c in off)
