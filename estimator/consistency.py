@@ -17,11 +17,11 @@ import numpy as np
 import scipy.special
 
 from estimator.errors import ParameterError
-from estimator.observer import FLAG_JUMP, FLAG_MISSING, FLAG_REJECTED
+from estimator.observer import FLAG_DEFERRED, FLAG_JUMP, FLAG_MISSING, FLAG_REJECTED
 
 __all__ = ["nis_band", "windowed_nis"]
 
-_UNUSED = FLAG_REJECTED | FLAG_JUMP | FLAG_MISSING
+_UNUSED = FLAG_REJECTED | FLAG_DEFERRED | FLAG_JUMP | FLAG_MISSING
 
 
 def nis_band(count: np.ndarray | int, level: float = 0.95) -> tuple[np.ndarray, np.ndarray]:

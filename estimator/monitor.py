@@ -37,11 +37,11 @@ The rule (:class:`SettlingRule`, shown to the user by :meth:`SettlingRule.descri
   least the band (hysteresis).
 
 A gap in time (``FLAG_GAP``), a missing sample (``FLAG_MISSING``), a load jump
-(``FLAG_JUMP``), a sample held as a possible outlier (``FLAG_REJECTED``: right after a
-load change the observer's σ is large, and a band widened by it must not let the old
-window pass for settled), a non-finite estimate or a time that goes back (device
-restart) starts the hold window again: the monitor never claims the force stayed steady
-over a time it did not observe.
+(``FLAG_JUMP``), a sample held as a possible outlier (``FLAG_REJECTED``, or a row whose
+decision waits, ``FLAG_DEFERRED``: right after a load change the observer's σ is large,
+and a band widened by it must not let the old window pass for settled), a non-finite
+estimate or a time that goes back (device restart) starts the hold window again: the
+monitor never claims the force stayed steady over a time it did not observe.
 
 Determinism: every decision depends only on the estimates given, and the window sums
 are accumulated in a fixed order over a fixed number of columns, so any cutting of the
@@ -59,6 +59,7 @@ import numpy as np
 from estimator.errors import ParameterError
 from estimator.observer import (
     ESTIMATE_DTYPE,
+    FLAG_DEFERRED,
     FLAG_GAP,
     FLAG_JUMP,
     FLAG_MISSING,
@@ -363,7 +364,8 @@ class SettlingMonitor:
         finite = np.isfinite(f) & np.isfinite(u)
         t_prev = np.concatenate(([self._t_last], t[:-1]))
         back = ~(t > t_prev)  # time went back (or NaN): device restart
-        restart_here = ((flags & (FLAG_GAP | FLAG_JUMP | FLAG_REJECTED)) != 0) | back
+        held = FLAG_REJECTED | FLAG_DEFERRED
+        restart_here = ((flags & (FLAG_GAP | FLAG_JUMP | held)) != 0) | back
         restart_after = ((flags & FLAG_MISSING) != 0) | ~finite
         candidate = np.where(restart_after, pos + 1, np.where(restart_here, pos, -1))
         anchor = np.maximum.accumulate(np.maximum(candidate, self._anchor))
@@ -386,7 +388,7 @@ class SettlingMonitor:
             full = count == h + 1
             steady = usable & full & (spread <= band)
             holds = usable & full & (spread <= rule.release_factor * band)
-            jumped = (flags & (FLAG_REJECTED | FLAG_JUMP)) != 0
+            jumped = (flags & (held | FLAG_JUMP)) != 0
             step = np.abs(f - mean)
             changing = usable & (jumped | (step > band))
             # once settled, only a step beyond the release band unsettles (hysteresis)

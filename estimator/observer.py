@@ -50,6 +50,7 @@ from estimator.force_models import (
     scaling,
 )
 from estimator.mm_kernel import (
+    FLAG_OUT_DEFERRED,
     FLAG_OUT_REJECTED_BEFORE,
     FLAG_OUT_SUSPECT,
     FLAG_OUT_UNUSED,
@@ -62,6 +63,7 @@ if TYPE_CHECKING:
 
 __all__ = [
     "ESTIMATE_DTYPE",
+    "FLAG_DEFERRED",
     "FLAG_GAP",
     "FLAG_JUMP",
     "FLAG_MISSING",
@@ -100,9 +102,14 @@ FLAG_REJECTED = 1
 FLAG_MISSING = 2  #: no measurement (NaN); predict only
 FLAG_GAP = 4  #: the time step before this sample was longer than 1.5 nominal periods
 FLAG_JUMP = 8  #: the jump model is the most probable: the load is changing suddenly
-#: the held samples just before this row (the run of FLAG_REJECTED rows) were judged
-#: outliers and not used; or, when the row before was not held, that sample was judged
-#: an outlier in hindsight and its effect taken back (`judged_outliers` finds them)
+#: the sample is used, but the decision on the held samples before it waits for the next
+#: (the odds were short of 19 to 1 either way); the row shows both hypotheses, as a held
+#: row does
+FLAG_DEFERRED = 16
+#: the held samples just before this row (the run of FLAG_REJECTED rows, before any
+#: FLAG_DEFERRED row) were judged outliers and not used; or, when the row before was not
+#: held, that sample was judged an outlier in hindsight and its effect taken back
+#: (`judged_outliers` finds them)
 FLAG_OUTLIER_BEFORE = 32
 
 _TABLE_CACHE = 256  # distinct step lengths kept
@@ -246,7 +253,7 @@ class _State:
     P: np.ndarray  # (3, r, 4, 4)
     PD: np.ndarray  # (3, r, 4, 4) design covariances of the floor models
     mu: np.ndarray  # (3, r)
-    pend: np.ndarray = field(default_factory=lambda: np.zeros(7))
+    pend: np.ndarray = field(default_factory=lambda: np.zeros(8))
     t_last: float | None = None
     jump_last: bool = False
 
@@ -523,6 +530,7 @@ class ForceObserver:
         flags |= np.where(of & FLAG_OUT_UNUSED, FLAG_MISSING, 0).astype(np.uint32)
         flags |= np.where(of & FLAG_OUT_SUSPECT, FLAG_REJECTED, 0).astype(np.uint32)
         flags |= np.where(of & FLAG_OUT_REJECTED_BEFORE, FLAG_OUTLIER_BEFORE, 0).astype(np.uint32)
+        flags |= np.where(of & FLAG_OUT_DEFERRED, FLAG_DEFERRED, 0).astype(np.uint32)
         flags |= np.where(jump, FLAG_JUMP, 0).astype(np.uint32)
         out["flags"] = flags
         c = self.counters
@@ -601,14 +609,18 @@ class ForceObserver:
 
 def judged_outliers(flags: np.ndarray) -> np.ndarray:
     """Which rows' samples the observer judged outliers, as bools: the run of held rows
-    (``FLAG_REJECTED``) just before each row flagged ``FLAG_OUTLIER_BEFORE``, or, where
-    the row before it was not held, that one row (judged in hindsight)."""
+    (``FLAG_REJECTED``) just before each row flagged ``FLAG_OUTLIER_BEFORE`` (past the
+    ``FLAG_DEFERRED`` rows between, whose samples were used), or, where the row before it
+    was neither, that one row (judged in hindsight)."""
     flags = np.asarray(flags)
     held = (flags & FLAG_REJECTED) != 0
+    deferred = (flags & FLAG_DEFERRED) != 0
     out = np.zeros(flags.shape, np.bool_)
     for row in np.flatnonzero(flags & FLAG_OUTLIER_BEFORE).tolist():
         j = row - 1
-        if j >= 0 and not held[j]:
+        while j >= 0 and deferred[j]:
+            j -= 1
+        if j == row - 1 and j >= 0 and not held[j]:
             out[j] = True
         while j >= 0 and held[j]:
             out[j] = True

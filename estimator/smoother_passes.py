@@ -123,7 +123,7 @@ def forward(
     P = np.zeros((2, 1, 4, 4))
     P[:, 0] = np.diag([model.R, s * s, s * s, s * s if model.family == FAMILY_RATE else 0.0])
     mu = np.ones((2, 1))
-    pend = np.zeros(4)
+    pend = np.zeros(8)
     PD = np.zeros_like(P)
     total = 0.0
     for (ca, cb), z in zip(chunks(a, b, chunk), slices, strict=True):

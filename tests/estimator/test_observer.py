@@ -102,7 +102,7 @@ def run_kernel(
         P,
         np.zeros_like(P),
         mu,
-        np.zeros(4),
+        np.zeros(8),
         ox,
         ov,
         np.empty(n),

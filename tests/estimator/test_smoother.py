@@ -45,7 +45,7 @@ def test_backward_pass_with_one_model_is_the_rts_smoother(model: int) -> None:
     lx, lP, om = np.empty((n, 1, 4)), np.empty((n, 1, 4, 4)), np.empty((n, 1))
     rows = np.zeros(n, np.int64)
     imm_block(z, rows, phi, q, q, np.ones((1, 1, 1)), R, 1e300, 1e-3, 1.0, 0.0, np.zeros(1), 0.0,
-              -1, -1, np.zeros(1, np.bool_), x, P, np.zeros_like(P), np.ones((2, 1)), np.zeros(4),
+              -1, -1, np.zeros(1, np.bool_), x, P, np.zeros_like(P), np.ones((2, 1)), np.zeros(8),
               *outs, np.empty(n, np.int64), om,
               np.empty(n), lx, lP)  # fmt: skip
     sx, sv, smu = np.empty((n, 4)), np.empty((n, 4)), np.empty((n, 1))
