@@ -171,7 +171,7 @@ class ObserverTuning:
     process_noise_n2_per_s: float | None = None
     gate_sigma: float = 5.0
     outlier_probability: float = 1e-3
-    outlier_spread: float = 50.0
+    outlier_spread: float = 35.0
     outlier_tail: float = 0.1
     rate_scale: float = 1.0
     prune: float = 1e-2
