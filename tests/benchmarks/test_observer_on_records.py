@@ -41,8 +41,9 @@ def test_a_spike_the_next_sample_cannot_judge_waits_for_one_more() -> None:
     # Random cell r01 of seed 7 (142.5 Hz, ζ 0.72, read at 1 kHz: seven samples a period)
     # under a random load, with five ±50σ spikes. After the spike at row 2878 the next
     # sample left "used" at 0.905, short of the 19-to-1 that decides; the soft merge then
-    # put the next rows 4.6 and 3.8 N off. Now that sample is used by both hypotheses
-    # (flagged deferred), the one after decides, and the spike alone is judged an outlier.
+    # put the next rows 4.6 and 3.8 N off (outliers' spread 50σ then). Now that sample is
+    # used by both hypotheses (flagged deferred), the one after decides, and the spike
+    # alone is judged an outlier.
     records, _ = build_records(
         7, 3.0, only=("random/r01",), cells=random_cells(12, 7), variants=("clean", "spikes")
     )

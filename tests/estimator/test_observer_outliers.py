@@ -229,12 +229,12 @@ def test_a_suspect_row_showing_the_old_level_still_covers_the_new_one() -> None:
 
 def test_judged_outliers_reads_held_deferred_and_hindsight_rows() -> None:
     # Hand-made flag sequences (the rule of `judged_outliers`, method-observer §6, §8).
-    rej, und, out = FLAG_REJECTED, FLAG_DEFERRED, FLAG_OUTLIER_BEFORE
+    rej, dfr, out = FLAG_REJECTED, FLAG_DEFERRED, FLAG_OUTLIER_BEFORE
     cases = [
         ([0, rej, out, 0], [1]),  # decided by the next sample
-        ([0, rej, und, out], [1]),  # the next sample used by both, the one after decides
-        ([rej, rej, und, out], [0, 1]),  # a burst of two, then a wait
-        ([0, rej, und, 0], []),  # judged used: nothing left out
+        ([0, rej, dfr, out], [1]),  # the next sample used by both, the one after decides
+        ([rej, rej, dfr, out], [0, 1]),  # a burst of two, then a wait
+        ([0, rej, dfr, 0], []),  # judged used: nothing left out
         ([0, 0, out, 0], [1]),  # in hindsight: the row before, not held
     ]
     for flags, expected in cases:
