@@ -8,6 +8,8 @@ Every command that writes a file or a folder of files claims its output here fir
 * never a path that is one of the command's own inputs (the same file under any name);
 * only a regular file, or a path that does not exist yet: a device, a FIFO, a folder or
   a symbolic link in place of an output file is refused;
+* not ``-``: forcelens writes its outputs to files, and a file named ``-`` would read as
+  standard output to anyone who lists the folder;
 * an existing file is replaced only with ``--force`` (the one option name for this in
   every command); writers replace atomically (a temporary file in the same folder, then
   a rename), and the command says what it replaced.
@@ -61,6 +63,14 @@ def _run_folder_of(path: Path) -> Path | None:
     return None
 
 
+def _refuse_dash(path: str | os.PathLike[str], what: str) -> None:
+    if os.fspath(path) == "-":
+        raise OutputRefusedError(
+            f"-: forcelens writes this output to a {what}, not to standard output; name the "
+            f"{what} (for example --out estimates.csv)"
+        )
+
+
 def _same(a: Path, b: Path) -> bool:
     try:
         return a.resolve() == b.resolve() or (a.exists() and b.exists() and a.samefile(b))
@@ -77,9 +87,10 @@ def claim_file(
     """Check that ``path`` may be written; returns a note when it replaces a file.
 
     Raises:
-        OutputRefusedError: the path is inside a run folder, is one of ``inputs``, is not
-            a regular file, or exists and ``force`` is False.
+        OutputRefusedError: the path is ``-``, is inside a run folder, is one of
+            ``inputs``, is not a regular file, or exists and ``force`` is False.
     """
+    _refuse_dash(path, "file")
     out = Path(path)
     run = _run_folder_of(out.absolute().parent)
     if run is not None:
@@ -117,9 +128,10 @@ def claim_folder(
     returns a note per file it will replace.
 
     Raises:
-        OutputRefusedError: as `claim_file`, for the folder (inside or equal to a run
-            folder, not a folder) or for any of the files.
+        OutputRefusedError: as `claim_file`, for the folder (``-``, inside or equal to a
+            run folder, not a folder) or for any of the files.
     """
+    _refuse_dash(folder, "folder")
     out = Path(folder)
     run = _run_folder_of(out.absolute())
     if run is not None:

@@ -162,3 +162,19 @@ def test_demo_twice_into_one_folder_needs_force(tmp_path: Path, capsys) -> None:
     _refused(argv, capsys, "summary.txt: exists; give --force")
     assert (out / "summary.txt").read_text(encoding="utf-8") == "an earlier demo"
     shutil.rmtree(out)
+
+
+@pytest.mark.parametrize("command", ["export", "replay"])
+def test_a_dash_for_the_output_is_refused_and_no_file_named_dash_appears(
+    command: str, run_folder: Path, tmp_path: Path, monkeypatch, capsys
+) -> None:
+    """``--out -`` reads as standard output by Unix habit; forcelens writes files, so it
+    says so instead of leaving a file named ``-`` behind."""
+    monkeypatch.chdir(tmp_path)
+    _refused([command, str(run_folder), "--out", "-"], capsys, "not to standard output")
+    assert not (tmp_path / "-").exists()
+
+
+def test_a_dash_for_an_output_folder_is_refused(tmp_path: Path) -> None:
+    with pytest.raises(OutputRefusedError, match="not to standard output"):
+        claim_folder("-", ["report.html"])
