@@ -66,6 +66,10 @@ is Bayes' rule over the suspect sample and the next one.
 Nothing here allocates per sample; every decision depends only on past samples, so a
 record fed in blocks of any size gives bit-identical results (the suspect branch is part
 of the carried state).
+
+The kernel is one file on purpose: numba's on-disk cache follows the file of the function
+it compiled, not the files of the functions it calls, so a helper moved to another module
+would leave stale machine code running after an edit (DEVELOPERS.md, Conventions).
 """
 
 from __future__ import annotations
