@@ -165,9 +165,11 @@ def backward(
     log: tuple[SpillArray, SpillArray, SpillArray],
     emit: Callable[[int, np.ndarray], None],
     chunk: int = CHUNK,
+    emit_var: Callable[[int, np.ndarray], None] | None = None,
 ) -> None:
     """The Rauch–Tung–Striebel pass over the filter's ``log`` of rows ``a..b``, slices
-    last to first: ``emit(first row, smoothed state (m, 4))`` for each."""
+    last to first: ``emit(first row, smoothed state (m, 4))`` for each, and with
+    ``emit_var`` the variances of those states (m, 4)."""
     fx, fP, fmu = log
     sx, sP, smu = np.empty((1, 4)), np.empty((1, 4, 4)), np.empty(1)
     for ca, cb in chunks_backward(a, b, chunk):
@@ -181,6 +183,8 @@ def backward(
         kim_backward_block(rows, model.PHI, model.Q, model.PI, x[:n], P[:n], mu[:n],
                            sx, sP, smu, out_x[:n], out_var[:n], out_mu[:n])  # fmt: skip
         emit(ca, out_x)
+        if emit_var is not None:
+            emit_var(ca, out_var)
 
 
 def smooth_pass(
@@ -192,12 +196,14 @@ def smooth_pass(
     scratch: SpillFolder,
     emit: Callable[[int, np.ndarray], None],
     chunk: int = CHUNK,
+    emit_var: Callable[[int, np.ndarray], None] | None = None,
 ) -> None:
     """Filter then smooth rows ``a..b`` of ``record`` (slices in order, as `forward`);
-    the filter's log is kept in ``scratch`` (the same three arrays on every call)."""
+    the filter's log is kept in ``scratch`` (the same three arrays on every call).
+    ``emit`` and ``emit_var`` as in `backward`."""
     log = _log_arrays(scratch, steps.rows.n)
     forward(model, steps, a, b, record, log, chunk)
-    backward(model, steps, a, b, log, emit, chunk)
+    backward(model, steps, a, b, log, emit, chunk, emit_var)
 
 
 def _log_arrays(scratch: SpillFolder, n: int) -> tuple[SpillArray, SpillArray, SpillArray]:
