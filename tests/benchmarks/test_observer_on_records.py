@@ -18,10 +18,24 @@ from estimator.observer import FLAG_DEFERRED, FLAG_OUTLIER_BEFORE, judged_outlie
 _SCORED_FROM_S = 0.05  # as the benchmark: the start-up is not scored
 
 
-def _live_rmse(record: object) -> float:
+def _records(seed: int, only: str, cells: object, variants: tuple[str, ...]) -> dict:
+    """The benchmark's records of one cell and shape, by variant."""
+    records, _ = build_records(seed, 3.0, only=(only,), cells=cells, variants=variants)
+    return {r.variant: r for r in records}
+
+
+def _rmse(record: object, force: np.ndarray) -> float:
+    """RMSE (N) of ``force`` against the record's truth, the start-up left out."""
     first = int(_SCORED_FROM_S / record.cell.dt_s)
-    force, _ = ours.live(record.cell, record.t_s, record.z_m)
     return float(np.sqrt(np.mean((force[first:] - record.force_true_n[first:]) ** 2)))
+
+
+def _live_rmse(record: object) -> float:
+    return _rmse(record, ours.live(record.cell, record.t_s, record.z_m)[0])
+
+
+def _smoothed_rmse(record: object) -> float:
+    return _rmse(record, ours.smoothed(record.cell, record.t_s, record.z_m)[0])
 
 
 def test_a_spike_just_after_a_sine_starts_is_not_held_with_the_sine() -> None:
@@ -31,10 +45,7 @@ def test_a_spike_just_after_a_sine_starts_is_not_held_with_the_sine() -> None:
     # next of a burst held that spike with the sine's first samples and used it with them
     # (10 N off on one row; RMSE 6.05 times the spike-free record's). Measured now: 1.68
     # (the spike row itself, shown before the next sample decides it).
-    records, _ = build_records(
-        2024, 3.0, only=("sine/floaty",), cells=OTHER_CELLS, variants=("clean", "spikes")
-    )
-    by_variant = {r.variant: r for r in records}
+    by_variant = _records(2024, "sine/floaty", OTHER_CELLS, ("clean", "spikes"))
     ratio = _live_rmse(by_variant["spikes"]) / _live_rmse(by_variant["clean"])
     assert ratio < 2.5
 
@@ -46,10 +57,7 @@ def test_a_spike_the_next_sample_cannot_judge_waits_for_one_more() -> None:
     # put the next rows 4.6 and 3.8 N off (outliers' spread 50σ then). Now that sample is
     # used by both hypotheses (flagged deferred), the one after decides, and the spike
     # alone is judged an outlier.
-    records, _ = build_records(
-        7, 3.0, only=("random/r01",), cells=random_cells(12, 7), variants=("clean", "spikes")
-    )
-    by_variant = {r.variant: r for r in records}
+    by_variant = _records(7, "random/r01", random_cells(12, 7), ("clean", "spikes"))
     clean, spiky = by_variant["clean"], by_variant["spikes"]
     spikes = np.flatnonzero(spiky.z_m != clean.z_m)
     est = ours._observer(spiky.cell).process(spiky.t_s, spiky.z_m)
@@ -60,12 +68,6 @@ def test_a_spike_the_next_sample_cannot_judge_waits_for_one_more() -> None:
     assert np.array_equal(np.flatnonzero(judged_outliers(flags)), spikes)
 
 
-def _smoothed_rmse(record: object) -> float:
-    first = int(_SCORED_FROM_S / record.cell.dt_s)
-    force, _ = ours.smoothed(record.cell, record.t_s, record.z_m)
-    return float(np.sqrt(np.mean((force[first:] - record.force_true_n[first:]) ** 2)))
-
-
 def test_the_smoother_decides_again_a_spike_the_live_pass_took_for_motion() -> None:
     # Random cell r06 of seed 13 under a random load (fast: 2–3 N a sample on a 330 N
     # span), with five ±50σ spikes. Live, the spike at row 511 was used and the good
@@ -73,10 +75,7 @@ def test_the_smoother_decides_again_a_spike_the_live_pass_took_for_motion() -> N
     # decisions, put the rows about it 2 N off: smoothed RMSE 1.41 times the spike-free
     # record's. Against the trajectory of all the other samples the two are told apart
     # (estimator.smoother._redecide): measured 1.001.
-    records, _ = build_records(
-        13, 3.0, only=("random/r06",), cells=random_cells(12, 13), variants=("clean", "spikes")
-    )
-    by_variant = {r.variant: r for r in records}
+    by_variant = _records(13, "random/r06", random_cells(12, 13), ("clean", "spikes"))
     clean, spiky = by_variant["clean"], by_variant["spikes"]
     spikes = np.flatnonzero(spiky.z_m != clean.z_m)
     flags = ours._observer(spiky.cell).process(spiky.t_s, spiky.z_m)["flags"]
@@ -94,16 +93,12 @@ def test_the_smoother_keeps_the_corners_of_a_pulse_it_cannot_follow() -> None:
     # it, is used again (estimator.smoother._unconfirmed): measured 0.80. The yardstick
     # is the benchmark's Kalman filter and RTS smoother with q fitted by likelihood
     # (accuracy.yardsticks; checked against filterpy in test_yardsticks.py).
-    records, _ = build_records(
-        23, 3.0, only=("pulse/r11",), cells=random_cells(12, 23), variants=("clean",)
-    )
-    (record,) = records
-    first = int(_SCORED_FROM_S / record.cell.dt_s)
+    record = _records(23, "pulse/r11", random_cells(12, 23), ("clean",))["clean"]
     best = min(
-        float(np.sqrt(np.mean((fit.smoothed.force_n[first:] - record.force_true_n[first:]) ** 2)))
-        for fit in (
-            run_fitted(model(record.cell), record.cell, record.t_s, record.z_m)
-            for model in (random_walk_model, integrated_random_walk_model)
+        _rmse(
+            record,
+            run_fitted(model(record.cell), record.cell, record.t_s, record.z_m).smoothed.force_n,
         )
+        for model in (random_walk_model, integrated_random_walk_model)
     )
     assert _smoothed_rmse(record) / best < 0.95
