@@ -66,8 +66,8 @@ def _run_folder_of(path: Path) -> Path | None:
 def _refuse_dash(path: str | os.PathLike[str], what: str) -> None:
     if os.fspath(path) == "-":
         raise OutputRefusedError(
-            f"-: forcelens writes this output to a {what}, not to standard output; name the "
-            f"{what} (for example --out estimates.csv)"
+            f"-: forcelens writes this output to a {what}, not to standard output; give a "
+            f"{what} name instead of '-'"
         )
 
 
