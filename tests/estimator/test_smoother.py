@@ -230,3 +230,62 @@ def test_smoothed_uncertainty_covers_the_rows_around_each_step() -> None:
         size = abs(force[s] - force[s - 1])
         wide = np.flatnonzero(sm["force_u_n"][s - 8 : s + 12] > 0.05 * size) - 8
         assert set(wide.tolist()) <= {-1, 0, 1, 2, 3}, (s, wide)
+
+
+def _residual_case(
+    residual_sd: list[float], left_out: list[int], jump_at: list[int], wide: int | None = None
+):
+    """Readings whose residuals against a flat smoothed trajectory are the given multiples
+    of the noise σ (k = 1, R = 1), its variance P = R/2 (on row ``wide``, 2R), rows
+    ``left_out`` left out live, the live jump models leading on the rows ``jump_at``;
+    returns what `_redecide` needs."""
+    from estimator.observer import ESTIMATE_DTYPE, FLAG_JUMP
+    from estimator.smoother import _Residuals
+    from estimator.spill import SpillFolder
+
+    n = len(residual_sd)
+    scratch = SpillFolder(in_files=False)
+    z = scratch.array("z", n, np.float64)
+    z.write(0, np.asarray(residual_sd, dtype=float))
+    used = np.asarray(residual_sd, dtype=float)
+    used[left_out] = np.nan
+    z_clean = scratch.array("z_clean", n, np.float64)
+    z_clean.write(0, used)
+    state = scratch.array("state", n, np.float64, (4,))
+    state.write(0, np.zeros((n, 4)))
+    state_var = scratch.array("state_var", n, np.float64, (4,))
+    P = np.full((n, 4), 0.5)
+    if wide is not None:
+        P[wide] = 2.0
+    state_var.write(0, P)
+    live = scratch.array("live", n, ESTIMATE_DTYPE)
+    rows = np.zeros(n, ESTIMATE_DTYPE)
+    rows["flags"][jump_at] = FLAG_JUMP
+    live.write(0, rows)
+    return _Residuals(z, z_clean, state, state_var, 1.0, 1.0), live, z_clean
+
+
+def test_a_reading_far_off_the_smoothed_trajectory_is_left_out_unless_a_jump_led_near_it():
+    # estimator.smoother._redecide on hand-made residuals (in noise σ; the rule's
+    # thresholds: 8σ for a used reading, the largest within 8 rows; 4σ to use a left-out
+    # one again). With P = R/2 a used reading's deletion residual is r/√(R − P) = r·√2.
+    from estimator.smoother import _redecide
+
+    quiet = [0.5, -0.3] * 15
+    far = quiet.copy()
+    far[10] = 7.0  # 9.9σ as a deletion residual
+    far[11] = 6.0  # 8.5σ, but not the largest within 8 rows: kept
+    res, live, z_clean = _residual_case(far, left_out=[20], jump_at=[])
+    tried: list[int] = []
+    changed, candidates = _redecide(res, live, 0, len(far), 7, tried)
+    assert candidates == [10] and tried == [10]
+    clean = z_clean.read(0, len(far))
+    assert np.isnan(clean[10]) and clean[11] == 6.0
+    assert clean[20] == far[20]  # left out live, 0.5σ off: used again
+    assert changed == 2
+    # a live jump within 3 rows: the reading is the first of a load change, kept
+    res, live, z_clean = _residual_case(far, left_out=[], jump_at=[13])
+    assert _redecide(res, live, 0, len(far), 7, []) == (0, [])
+    # a left-out reading where the trajectory is known less well than a reading stays out
+    res, live, z_clean = _residual_case(quiet, left_out=[5], jump_at=[], wide=5)
+    assert _redecide(res, live, 0, len(quiet), 7, []) == (0, [])
