@@ -65,6 +65,20 @@ def test_tune_fits_the_noise_on_the_whole_record_without_a_quiet_stretch(
     assert "log-likelihood" in capsys.readouterr().out
 
 
+def test_tune_refuses_a_csv_without_a_profile(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    # Issue 12's rule: the demo cell's model serves the simulated cell only. A CSV names no
+    # cell, and tune used to fit the demo cell's model to it without a word (as replay
+    # refuses, it now asks for the profile); with the profile it runs.
+    record = _whole_run_csv(tmp_path, "hold 0.3 0; hold 0.5 50; hold 0.5 0")
+    assert main(["tune", str(record)]) == 1
+    err = capsys.readouterr().err
+    assert "a CSV carries no profile; give --profile FILE" in err and "Traceback" not in err
+    assert main(["tune", str(record), "--profile", str(DEMO)]) == 0
+    assert "log-likelihood" in capsys.readouterr().out
+
+
 def _whole_run_csv(tmp_path: Path, programme: str, seed: int = 5) -> Path:
     """A whole record of the simulated demo cell (invented data) as forcelens CSV."""
     from daq.csv_dialect import write_csv_table

@@ -79,7 +79,7 @@ def register(subparsers: Any) -> None:
     p.add_argument(
         "--profile",
         metavar="FILE.toml",
-        help="cell profile (default: the run's own; for a CSV the demo cell)",
+        help="cell profile (default: the run's own; a CSV needs one)",
     )
     p.add_argument(
         "--out",
@@ -94,19 +94,23 @@ def run(args: argparse.Namespace) -> int:
     import numpy as np
 
     from estimator.observer import process_noise_for_bandwidth
-    from estimator.profile import default_demo_profile, load_profile, save_profile
+    from estimator.profile import load_profile, save_profile
     from estimator.tuning import fit_observer, noise_from_quiet
     from ui.commands.identify import _record
 
     if (args.quiet_from is None) != (args.quiet_to is None):
         raise ValueError("give both --quiet-from and --quiet-to, or neither")
+    if not args.profile and Path(args.record).is_file():
+        # the demo cell's model would be fitted to another cell's record without a word
+        raise ValueError(f"{args.record}: a CSV carries no profile; give --profile FILE")
     replaced = None
     if args.out:  # checked before the fit: an output never replaces an input unasked
         inputs = [args.record] + ([args.profile] if args.profile else [])
         replaced = claim_file(args.out, inputs=inputs, force=args.force)
     t, x, digest, run_profile = _record(Path(args.record))
     profile = load_profile(args.profile) if args.profile else run_profile
-    profile = profile or default_demo_profile()
+    if profile is None:
+        raise ValueError(f"{args.record}: it names no profile; give --profile FILE")
     tr, obs = profile.transducer, profile.observer
     noise_m = tr.noise_m
     if args.quiet_from is not None:
