@@ -35,6 +35,7 @@ from estimator.plant import Plant
 from estimator.validation import finite_float as _finite
 
 __all__ = [
+    "MIN_SAMPLES",
     "STEP_PARAMETERS",
     "Estimate",
     "IdentifiedPlant",
@@ -50,7 +51,8 @@ __all__ = [
 #: Order of the parameters in `StepFitResult.covariance`.
 STEP_PARAMETERS = ("gain_m", "natural_freq_rad_s", "damping_ratio", "start_time_s", "offset_m")
 
-_MIN_SAMPLES = 20
+#: The fewest samples a fit takes (a ring-down's window or a step's).
+MIN_SAMPLES = 20
 # An extremum is usable when its distance from the rest level is at least this many
 # noise standard deviations (or 1e-6 of the largest excursion on noiseless records).
 _USABLE_SNR = 8.0
@@ -244,9 +246,9 @@ def _record(time_s: ArrayLike, displacement_m: ArrayLike) -> tuple[np.ndarray, n
             f"time_s has {t.size} samples but displacement_m has {x.size}; give one "
             "displacement per time"
         )
-    if t.size < _MIN_SAMPLES:
+    if t.size < MIN_SAMPLES:
         raise EstimatorError(
-            f"the record has {t.size} samples; at least {_MIN_SAMPLES} are needed, "
+            f"the record has {t.size} samples; at least {MIN_SAMPLES} are needed, "
             "record longer or at a higher rate"
         )
     steps = np.diff(t)
@@ -704,10 +706,10 @@ def identify_ringdown(
             )
         first = int(np.searchsorted(t, start, side="left"))
         t, x = t[first:], x[first:]
-        if t.size < _MIN_SAMPLES:
+        if t.size < MIN_SAMPLES:
             raise EstimatorError(
                 f"only {t.size} samples after start_s = {start!r} s; at least "
-                f"{_MIN_SAMPLES} are needed, record longer after the release"
+                f"{MIN_SAMPLES} are needed, record longer after the release"
             )
         n_tail = max(5, int(_TAIL_FRACTION * t.size))
     rest0 = float(np.median(x[-n_tail:]))
@@ -715,10 +717,10 @@ def identify_ringdown(
     if start_s is None:
         first = _auto_start(x, rest0, noise)
         t, x = t[first:], x[first:]
-        if t.size < _MIN_SAMPLES:
+        if t.size < MIN_SAMPLES:
             raise EstimatorError(
                 f"only {t.size} samples after the largest excursion; at least "
-                f"{_MIN_SAMPLES} are needed, record longer after the release"
+                f"{MIN_SAMPLES} are needed, record longer after the release"
             )
     dev = x - rest0
     biggest = float(np.max(np.abs(dev)))

@@ -25,6 +25,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from estimator.identify import MIN_SAMPLES
 from estimator.record_windows.activity import WindowNotFoundError, find_activity
 
 __all__ = ["RingdownWindow", "find_ringdown_window"]
@@ -71,7 +72,8 @@ def find_ringdown_window(time_s: np.ndarray, displacement_m: np.ndarray) -> Ring
     """The free decay in a whole record (arrays of shape (n,), s and m); see the module.
 
     Raises:
-        WindowNotFoundError: no decay that rings above 20σ and comes back to rest.
+        WindowNotFoundError: no decay that rings above 20σ, comes back to rest and holds
+            the samples a fit needs.
     """
     act = find_activity(time_s, displacement_m, "ring-down")
     t, x, n, w, sigma = act.t, act.x, act.n, act.w, act.sigma
@@ -98,8 +100,16 @@ def find_ringdown_window(time_s: np.ndarray, displacement_m: np.ndarray) -> Ring
                 f"{_MIN_DECAY_SNR:g}× is needed"
             )
         raise WindowNotFoundError(f"no ring-down found ({why})")
-    top = max(c[4] for c in strong)
-    start, b, stop, rest, excursion = [c for c in strong if c[4] >= (1 - _TIE) * top][-1]
+    fit = [c for c in strong if c[2] - c[0] + 1 >= MIN_SAMPLES]
+    if not fit:
+        start, _, stop, _, _ = max(strong, key=lambda c: c[4])
+        raise WindowNotFoundError(
+            f"no ring-down found (the largest decay, {t[start]:.6g} s to {t[stop]:.6g} s, "
+            f"holds {stop - start + 1} samples and a fit needs {MIN_SAMPLES}: no free "
+            "ringing, or too short for this sample rate)"
+        )
+    top = max(c[4] for c in fit)
+    start, b, stop, rest, excursion = [c for c in fit if c[4] >= (1 - _TIE) * top][-1]
     return RingdownWindow(
         start_s=float(t[start]),
         end_s=float(t[stop]),

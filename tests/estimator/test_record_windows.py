@@ -75,3 +75,13 @@ def test_a_record_with_no_step_is_refused_with_the_reason():
         find_step_window(t, x)
     with pytest.raises(WindowNotFoundError, match="only 50 samples"):
         find_step_window(t[:50], x[:50])
+
+
+def test_a_release_too_quick_to_fit_is_refused_with_the_reason():
+    # An invented critically damped 3 kHz cell read at 2 kHz: its release is over within a
+    # sample, and the window round it (17 samples) is too short for identify_ringdown (20
+    # or more). The finder used to return it, and identify then said "the record has 17
+    # samples" of a record of 4800; now the finder refuses and says why.
+    t, x = _record(3000.0, 1.0, 2000.0, [(0.4, 0.0), (1.0, 20.0), (1.0, 0.0)])
+    with pytest.raises(WindowNotFoundError, match="holds 17 samples and a fit needs 20"):
+        find_ringdown_window(t, x)
