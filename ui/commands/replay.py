@@ -111,8 +111,10 @@ def _replay_csv(args: argparse.Namespace, source: Path, speed: float) -> int:
 
     if not args.profile:
         raise ValueError(f"{source}: a CSV carries no profile; give --profile FILE")
-    if not args.out:
-        raise ValueError(f"{source}: give --out FILE for the estimates")
+    if not args.out and not args.steps:
+        raise ValueError(
+            f"{source}: give --out FILE for the estimates, or --steps for the load changes"
+        )
     profile = load_profile(args.profile)
     replay = _Replay(args, profile, [], speed)
     with replay.writing():
