@@ -41,7 +41,7 @@ from daq.runs.layout import (
     new_run_id,
     utc_text,
 )
-from daq.runs.reader import RunData, RunInfo, read_run, read_run_info
+from daq.runs.reader import RunData, RunInfo, check_run_folder, read_run, read_run_info
 from daq.runs.verify import VerifyReport, verify_run
 from daq.runs.writer import RunWriter
 
@@ -58,6 +58,7 @@ __all__ = [
     "RunInfo",
     "RunWriter",
     "VerifyReport",
+    "check_run_folder",
     "csv_column_name",
     "export_run_csv",
     "export_run_hdf5",

@@ -320,6 +320,26 @@ def _check_count_entry(path: Path, where: str, entry: object, count_key: str) ->
         )
 
 
+def check_run_folder(folder: str | os.PathLike[str]) -> Path:
+    """``folder`` as a Path when it is a folder holding a run description; else raises
+    RunFormatError saying what it is instead (missing, a file, a folder of something
+    else). Nothing is read."""
+    root = Path(folder)
+    if not root.is_dir():
+        if root.exists():
+            raise RunFormatError(
+                f"{root}: a file, not a run folder (a recorded run is a folder holding "
+                f"{DESCRIPTION_FILE})"
+            )
+        raise RunFormatError(f"{root}: run folder is missing")
+    if not (root / DESCRIPTION_FILE).exists():
+        raise RunFormatError(
+            f"{root / DESCRIPTION_FILE}: missing (not a run folder, or a run that lost its "
+            "description)"
+        )
+    return root
+
+
 def read_run_info(folder: str | os.PathLike[str]) -> RunInfo:
     """Read and check ``run.json`` and ``closing.json`` and measure the stream files.
 
@@ -327,9 +347,7 @@ def read_run_info(folder: str | os.PathLike[str]) -> RunInfo:
     the file and the problem (missing folder, bad JSON, unknown format or version,
     unsupported layout, missing stream file...).
     """
-    root = Path(folder)
-    if not root.is_dir():
-        raise RunFormatError(f"{root}: run folder is missing")
+    root = check_run_folder(folder)
     desc_path = root / DESCRIPTION_FILE
     description = _load_json(desc_path)
     dtypes = _check_description(desc_path, description)

@@ -398,6 +398,14 @@ def test_missing_folder(tmp_path: Path) -> None:
     assert not report.ok and "missing" in report.problems[0]
 
 
+def test_a_file_given_as_a_run_is_named_a_file(tmp_path: Path) -> None:
+    # a CSV passed where a run folder belongs was "run folder is missing"
+    path = tmp_path / "record.csv"
+    path.write_text("time_s,displacement_m\n0,0\n")
+    with pytest.raises(RunFormatError, match="a file, not a run folder"):
+        read_run(path)
+
+
 # --------------------------------------------------------------------------- verify
 
 

@@ -87,6 +87,19 @@ def test_audit_names_a_swapped_profile(tmp_path: Path, capsys: pytest.CaptureFix
     assert "replayed estimates differ from those computed live" in text
 
 
+def test_audit_of_what_is_not_a_run_is_an_error_not_a_difference(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    # a CSV or a folder of something else gave "note: the run was not closed" and two
+    # DIFFERENCE lines with a cause about edited runs; it is one error line
+    path = tmp_path / "record.csv"
+    path.write_text("time_s,displacement_m\n0,0\n")
+    for given, words in ((path, "a file, not a run folder"), (tmp_path, "run.json: missing")):
+        assert main(["audit", str(given)]) == 1
+        captured = capsys.readouterr()
+        assert words in captured.err and "DIFFERENCE" not in captured.out
+
+
 def test_audit_names_a_truncated_run(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
     folder = _record(tmp_path / "runs")
     path = folder / "samples.bin"

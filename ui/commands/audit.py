@@ -97,10 +97,13 @@ def run(args: argparse.Namespace) -> int:
 
 
 def _audit_one(args: argparse.Namespace) -> int:
+    from daq.runs import check_run_folder
     from estimator.profile import load_profile
     from ui.auditing import audit_run
     from ui.progress import wanted
 
+    # what is not a run at all is an error, not a difference found in a run
+    check_run_folder(args.run_folder)
     profile = load_profile(args.profile) if args.profile else None
     with wanted():  # one run: its replay may show a bar on a terminal
         result = audit_run(
