@@ -12,6 +12,7 @@ import numpy as np
 import pytest
 import scipy.signal
 
+from estimator.errors import EstimatorError
 from estimator.identify import identify_ringdown, identify_step
 from estimator.record_windows import (
     WindowNotFoundError,
@@ -85,3 +86,15 @@ def test_a_release_too_quick_to_fit_is_refused_with_the_reason():
     t, x = _record(3000.0, 1.0, 2000.0, [(0.4, 0.0), (1.0, 20.0), (1.0, 0.0)])
     with pytest.raises(WindowNotFoundError, match="holds 17 samples and a fit needs 20"):
         find_ringdown_window(t, x)
+
+
+def test_a_fit_beyond_the_nyquist_frequency_is_refused():
+    # An invented critically damped 1000 Hz cell read at 2 kHz, released: its decay is over
+    # within a couple of samples. The two-exponential fit gave fn = 2166 Hz with a 95 %
+    # interval of ±3 % (truth 1000 Hz), above the record's Nyquist frequency (half the
+    # sample rate: sampling theorem), where samples cannot tell one frequency from another.
+    t, x = _record(1000.0, 1.0, 2000.0, [(0.4, 0.0), (1.0, 20.0), (1.0, 0.0)])
+    window = find_ringdown_window(t, x)
+    keep = (t >= window.start_s) & (t <= window.end_s)
+    with pytest.raises(EstimatorError, match="above the record's Nyquist frequency"):
+        identify_ringdown(t[keep], x[keep])
