@@ -34,24 +34,12 @@ def test_help_does_not_import_qt() -> None:
 def test_replay_csv_with_steps_alone_prints_the_load_changes(tmp_path: Path, capsys) -> None:
     # `replay RUN --steps` needs no --out; a CSV was refused without one even when only the
     # table of load changes was asked for. Invented programme: rest, then 30 N.
-    from daq.csv_dialect import write_csv_table
-    from daq.programme import parse_programme
     from estimator.profile import default_demo_profile, save_profile
-    from ui.wiring import scaling_for, simulated_cell_for
+    from tests.ui.invented_records import simulated_record_csv
 
-    profile = default_demo_profile()
     prof = tmp_path / "cell.toml"
-    save_profile(profile, prof)
-    run = simulated_cell_for(profile, seed=3).generate(parse_programme("hold 0.3 0; hold 0.5 30"))
-    src = tmp_path / "in.csv"
-    write_csv_table(
-        src,
-        title="invented record (simulated cell)",
-        columns=[
-            ("time_s", "s", run.device_time_us * 1e-6),
-            ("displacement_m", "m", scaling_for(profile).to_metres(run.counts)),
-        ],
-    )
+    save_profile(default_demo_profile(), prof)
+    src = simulated_record_csv(tmp_path / "in.csv", "hold 0.3 0; hold 0.5 30", seed=3)
     assert main(["replay", str(src), "--profile", str(prof), "--steps"]) == 0
     rows = [line.split() for line in capsys.readouterr().out.splitlines() if line[:1] == "1"]
     assert len(rows) == 1 and abs(float(rows[0][3]) - 30.0) < 0.1  # "after N": the 30 N held

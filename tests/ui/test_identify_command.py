@@ -8,6 +8,7 @@ from pathlib import Path
 import pytest
 
 from estimator.profile import default_demo_profile, load_profile
+from tests.ui.invented_records import simulated_record_csv
 from ui.cli import main
 
 RUN = sorted((Path(__file__).resolve().parents[2] / "recordings").glob("*/run.json"))[0].parent
@@ -71,32 +72,12 @@ def test_tune_refuses_a_csv_without_a_profile(
     # Issue 12's rule: the demo cell's model serves the simulated cell only. A CSV names no
     # cell, and tune used to fit the demo cell's model to it without a word (as replay
     # refuses, it now asks for the profile); with the profile it runs.
-    record = _whole_run_csv(tmp_path, "hold 0.3 0; hold 0.5 50; hold 0.5 0")
+    record = simulated_record_csv(tmp_path / "whole.csv", "hold 0.3 0; hold 0.5 50; hold 0.5 0")
     assert main(["tune", str(record)]) == 1
     err = capsys.readouterr().err
     assert "a CSV carries no profile; give --profile FILE" in err and "Traceback" not in err
     assert main(["tune", str(record), "--profile", str(DEMO)]) == 0
     assert "log-likelihood" in capsys.readouterr().out
-
-
-def _whole_run_csv(tmp_path: Path, programme: str, seed: int = 5) -> Path:
-    """A whole record of the simulated demo cell (invented data) as forcelens CSV."""
-    from daq.csv_dialect import write_csv_table
-    from daq.programme import parse_programme
-    from ui.wiring import scaling_for, simulated_cell_for
-
-    profile = default_demo_profile()
-    run = simulated_cell_for(profile, seed=seed).generate(parse_programme(programme))
-    path = tmp_path / "whole.csv"
-    write_csv_table(
-        path,
-        title="invented whole run (simulated cell)",
-        columns=[
-            ("time_s", "s", run.device_time_us * 1e-6),
-            ("displacement_m", "m", scaling_for(profile).to_metres(run.counts)),
-        ],
-    )
-    return path
 
 
 def test_ringdown_on_a_whole_run_finds_the_free_decay_after_the_release(
@@ -106,7 +87,7 @@ def test_ringdown_on_a_whole_run_finds_the_free_decay_after_the_release(
     # ζ ≈ 5e-29 and exited 0. Reference: the simulated cell integrates the invented demo
     # plant exactly, fn = √(k/m)/2π (textbook), ζ = 0.12; tolerances as in the step test
     # above (1e-3 on k and m, 1e-2 on ζ); and the result of a hand-picked window.
-    record = _whole_run_csv(tmp_path, "hold 0.3 0; hold 0.5 50; hold 0.5 0")
+    record = simulated_record_csv(tmp_path / "whole.csv", "hold 0.3 0; hold 0.5 50; hold 0.5 0")
     out = tmp_path / "found.toml"
     assert main(["identify", str(record), "--test", "ringdown", "--profile", str(DEMO),
                  "--out", str(out)]) == 0  # fmt: skip
@@ -135,7 +116,7 @@ def test_ringdown_on_a_whole_run_finds_the_free_decay_after_the_release(
 def test_ringdown_without_a_usable_decay_is_refused_in_one_line(
     tmp_path: Path, capsys: pytest.CaptureFixture[str], programme: str, why: str
 ) -> None:
-    record = _whole_run_csv(tmp_path, programme)
+    record = simulated_record_csv(tmp_path / "whole.csv", programme)
     assert main(["identify", str(record), "--test", "ringdown"]) == 1
     err = capsys.readouterr().err
     assert why in err and "--from S --to S" in err
@@ -150,7 +131,7 @@ def test_step_on_a_whole_run_finds_the_load_step(
     # in the step test above: the simulated cell integrates the invented demo plant
     # exactly (k = 4e5 N/m, m = 0.4 kg, ζ = 0.12); tolerances 1e-3 on k and m, 1e-2 on ζ;
     # and the result of a hand-picked window.
-    record = _whole_run_csv(tmp_path, "hold 0.3 0; hold 0.5 50; hold 0.5 0")
+    record = simulated_record_csv(tmp_path / "whole.csv", "hold 0.3 0; hold 0.5 50; hold 0.5 0")
     out = tmp_path / "found.toml"
     assert main(["identify", str(record), "--test", "step", "--step-force-n", "50",
                  "--profile", str(DEMO), "--out", str(out)]) == 0  # fmt: skip
@@ -184,7 +165,7 @@ def test_step_on_a_whole_run_finds_the_load_step(
 def test_step_without_a_usable_step_is_refused_in_one_line(
     tmp_path: Path, capsys: pytest.CaptureFixture[str], programme: str, why: str
 ) -> None:
-    record = _whole_run_csv(tmp_path, programme)
+    record = simulated_record_csv(tmp_path / "whole.csv", programme)
     assert main(["identify", str(record), "--test", "step"]) == 1
     err = capsys.readouterr().err
     assert why in err and "--from S --to S" in err

@@ -10,11 +10,9 @@ from pathlib import Path
 
 import pytest
 
-from daq.csv_dialect import write_csv_table
-from daq.programme import parse_programme
 from estimator.profile import default_demo_profile, save_profile
+from tests.ui.invented_records import simulated_record_csv
 from ui.cli import main
-from ui.wiring import scaling_for, simulated_cell_for
 
 
 class _Terminal(io.StringIO):
@@ -27,19 +25,9 @@ class _Terminal(io.StringIO):
 @pytest.fixture(scope="module")
 def record(tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, Path]:
     tmp = tmp_path_factory.mktemp("progress")
-    profile = default_demo_profile()
-    run = simulated_cell_for(profile, seed=3).generate(parse_programme("hold 0.2 0; hold 0.3 20"))
-    path = tmp / "in.csv"
-    write_csv_table(
-        path,
-        title="invented record (simulated cell)",
-        columns=[
-            ("time_s", "s", run.device_time_us * 1e-6),
-            ("displacement_m", "m", scaling_for(profile).to_metres(run.counts)),
-        ],
-    )
+    path = simulated_record_csv(tmp / "in.csv", "hold 0.2 0; hold 0.3 20", seed=3)
     prof = tmp / "cell.toml"
-    save_profile(profile, prof)
+    save_profile(default_demo_profile(), prof)
     return path, prof
 
 
