@@ -660,7 +660,7 @@ def _check_resolved(wn: float, t: np.ndarray, what: str) -> None:
     """Refuse a fitted ωn above the record's Nyquist frequency (half its sample rate): the
     samples cannot show such motion (sampling theorem), and a fit there returns numbers
     with tight intervals that mean nothing (a critically damped 1000 Hz cell read at
-    2 kHz gave fn = 2166 Hz ± 1.5 %)."""
+    2 kHz gave fn = 2166 Hz, u 1.5 %)."""
     dt = float(np.median(np.diff(t)))
     if wn * dt > math.pi:
         fs = 1.0 / dt
