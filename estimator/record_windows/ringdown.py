@@ -25,7 +25,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from estimator.identify import MIN_SAMPLES
+from estimator.identify.common import MIN_SAMPLES
 from estimator.record_windows.activity import WindowNotFoundError, find_activity
 
 __all__ = ["RingdownWindow", "find_ringdown_window"]
