@@ -8,8 +8,6 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-import scipy.optimize
-import scipy.signal
 import scipy.stats
 from numpy.typing import ArrayLike
 

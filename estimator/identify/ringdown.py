@@ -11,7 +11,6 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.optimize
 import scipy.signal
-import scipy.stats
 from numpy.typing import ArrayLike
 
 from estimator.errors import EstimatorError, ParameterError
