@@ -15,10 +15,14 @@ from estimator.errors import EstimatorError, ParameterError
 from estimator.plant import Plant
 from estimator.validation import finite_float as _finite
 
-__all__ = ["MIN_SAMPLES", "Estimate"]
+__all__ = ["MIN_DECAY_SNR", "MIN_SAMPLES", "Estimate"]
 
 #: The fewest samples a fit takes (a ring-down's window or a step's).
 MIN_SAMPLES = 20
+
+#: The largest excursion of a free decay, in noise standard deviations, below which no
+#: decay is fitted (the ring-down fit and the window finder both refuse it).
+MIN_DECAY_SNR = 20.0
 
 
 _TAIL_FRACTION = 0.2

@@ -17,6 +17,7 @@ from estimator.errors import EstimatorError, ParameterError
 from estimator.identify.common import (
     _TAIL_FRACTION,
     _TWO_PI,
+    MIN_DECAY_SNR,
     MIN_SAMPLES,
     Estimate,
     _check_resolved,
@@ -38,10 +39,6 @@ _USABLE_SNR = 8.0
 
 
 _RELATIVE_FLOOR = 1e-6
-
-
-# The largest excursion must reach this many noise standard deviations to call it a decay.
-_MIN_DECAY_SNR = 20.0
 
 
 # Extrema are used while their fitted envelope is at least this times the usable floor.
@@ -478,11 +475,11 @@ def identify_ringdown(
             )
     dev = x - rest0
     biggest = float(np.max(np.abs(dev)))
-    if biggest == 0.0 or biggest < _MIN_DECAY_SNR * noise:
+    if biggest == 0.0 or biggest < MIN_DECAY_SNR * noise:
         raise EstimatorError(
             f"no decay found: the largest excursion from the rest level is {biggest:.3g} m, "
             f"{biggest / noise if noise > 0 else 0.0:.1f} times the noise ({noise:.3g} m); "
-            f"at least {_MIN_DECAY_SNR:g} are needed, release or tap harder"
+            f"at least {MIN_DECAY_SNR:g} are needed, release or tap harder"
         )
     floor = max(_USABLE_SNR * noise, _RELATIVE_FLOOR * biggest)
     idx, sgn = _extrema(dev, noise, floor)

@@ -25,12 +25,11 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from estimator.identify.common import MIN_SAMPLES
+from estimator.identify.common import MIN_DECAY_SNR, MIN_SAMPLES
 from estimator.record_windows.activity import WindowNotFoundError, find_activity
 
 __all__ = ["RingdownWindow", "find_ringdown_window"]
 
-_MIN_DECAY_SNR = 20.0  # as estimator.identify: a decay's excursion, in σ
 _TIE = 0.10  # excursions within 10 % of the largest are ties; the last one wins
 _TAIL = 0.5  # rest after the decay, as a share of the decay's length
 
@@ -86,7 +85,7 @@ def find_ringdown_window(time_s: np.ndarray, displacement_m: np.ndarray) -> Ring
         excursion = float(np.max(np.abs(x[a:b] - rest)))
         stop = min(next_start - 1, n - 1, b + max(w, int(_TAIL * (b - a))))
         candidates.append((max(0, a - 1), b, stop, rest, excursion))
-    strong = [c for c in candidates if c[4] >= _MIN_DECAY_SNR * sigma]
+    strong = [c for c in candidates if c[4] >= MIN_DECAY_SNR * sigma]
     if not strong:
         if not act.stretches:
             why = act.nothing_moves()
@@ -97,7 +96,7 @@ def find_ringdown_window(time_s: np.ndarray, displacement_m: np.ndarray) -> Ring
             why = (
                 f"the largest decay, {t[start]:.6g} s to {t[stop]:.6g} s, is {best:.3g} m, "
                 f"{best / sigma:.1f}× the noise ({sigma:.3g} m); at least "
-                f"{_MIN_DECAY_SNR:g}× is needed"
+                f"{MIN_DECAY_SNR:g}× is needed"
             )
         raise WindowNotFoundError(f"no ring-down found ({why})")
     fit = [c for c in strong if c[2] - c[0] + 1 >= MIN_SAMPLES]
