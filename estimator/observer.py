@@ -16,7 +16,8 @@ The reported force is the mean of the mixture of models and ``force_u_n`` its st
 deviation: it contains each model's covariance *and the spread between the models*, so
 the lag of a prior that no longer fits shows as uncertainty, and, when one smooth-load
 model leads, how far the next faster one differs from it (the lag of the leading prior;
-docs/method-observer.md, section 7). Models whose probability
+docs/method-observer.md, section 7), and what averaging cannot remove from readings
+quantised more coarsely than their noise (`estimator.quantisation`). Models whose probability
 is below ``ObserverTuning.prune`` are left out of that mixture and pass nothing on to
 the others (a standard reduction of Gaussian mixtures; with ``prune = 0`` the estimator
 is the textbook IMM).
@@ -57,6 +58,7 @@ from estimator.mm_kernel import (
     imm_block,
 )
 from estimator.plant import Plant
+from estimator.quantisation import residual_bias_sd_m
 
 if TYPE_CHECKING:
     from estimator.profile import CellProfile
@@ -299,6 +301,9 @@ class ForceObserver:
                 "give the transducer noise or the ADC resolution"
             )
         k = plant.stiffness_n_per_m
+        #: the force variance (N²) no averaging removes: the bias of readings quantised more
+        #: coarsely than their noise (estimator.quantisation); 0.0 when the noise dithers them
+        self.quantisation_var_n2 = (k * residual_bias_sd_m(resolution_m, noise_m)) ** 2
         if self.tuning.process_noise_n2_per_s is not None:
             q_hold = float(self.tuning.process_noise_n2_per_s)
         else:
@@ -512,7 +517,7 @@ class ForceObserver:
         D = self._D
         out["time_s"] = t
         out["force_n"] = ox[:, 2]
-        out["force_u_n"] = np.sqrt(ov[:, 2])
+        out["force_u_n"] = np.sqrt(ov[:, 2] + self.quantisation_var_n2)
         out["displacement_m"] = ox[:, 0] / D[0]
         out["velocity_m_s"] = ox[:, 1] / D[1]
         out["innovation_m"] = oy / k

@@ -18,9 +18,10 @@ The expanded uncertainty is U = k_p·u_c with the coverage factor k_p = 2 (about
 a normal distribution), and is always stated with its coverage factor.
 
 Note: the observer's measurement variance already holds the quantisation variance
-LSB²/12 as white noise; a static reading averages that part away, which is why the
-resolution is counted here once more as a fixed rectangular term (the conservative
-choice).
+LSB²/12 as white noise, which a static reading averages away, and its σ holds the bias
+averaging cannot remove when the noise is narrower than a step (`estimator.quantisation`,
+0 when the noise dithers the readings); the resolution is counted here once more as a
+fixed rectangular term (the conservative choice).
 """
 
 from __future__ import annotations
