@@ -140,6 +140,28 @@ def test_show_prints_a_summary_with_units(capsys: pytest.CaptureFixture[str]) ->
     assert "never" in out  # calibration_date ""
 
 
+def test_show_names_the_bias_of_a_count_coarser_than_the_noise(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    # An invented cell read by an ADC whose count is 4 noise σ: the bias that averaging
+    # leaves (estimator.quantisation; checked there against scipy.stats.norm) is shown in
+    # metres and newtons. The demo cell's 24-bit reading has none, and no such line.
+    out = tmp_path / "coarse.toml"
+    argv = new_args(out, "--mass-kg", "0.3")
+    argv[argv.index("--resolution-m") + 1] = "1.6e-7"
+    assert run(argv) == 0
+    capsys.readouterr()
+    assert run(["profile", "show", str(out)]) == 0
+    line = next(x for x in capsys.readouterr().out.splitlines() if "quantisation bias" in x)
+    bias_m = float(line.split()[2])
+    # the series' first term, (Δ/π)·exp(−2π²σ²/Δ²)/√2, is 0.0655 of a count here
+    leading = 1.6e-7 / math.pi * math.exp(-2 * math.pi**2 / 16) / math.sqrt(2)
+    assert bias_m == pytest.approx(leading, rel=0.01)
+    assert f"{250000 * bias_m:.3g} N" in line
+    assert run(["profile", "show", str(DEMO_FILE)]) == 0
+    assert "quantisation bias" not in capsys.readouterr().out
+
+
 def test_show_refuses_a_broken_profile(tmp_path: Path) -> None:
     path = tmp_path / "broken.toml"
     path.write_text(

@@ -2,7 +2,7 @@
 
 ``profile new OUT.toml ...`` writes a validated profile; ``profile show FILE``
 prints a readable summary with SI units. Only the standard library and
-``estimator.profile`` are imported (no Qt, no SciPy).
+``estimator.profile`` and ``estimator.quantisation`` are imported (no Qt, no SciPy).
 """
 
 from __future__ import annotations
@@ -22,6 +22,7 @@ from estimator.profile import (
     load_profile,
     save_profile,
 )
+from estimator.quantisation import residual_bias_sd_m
 from ui.outputs import add_force_option, claim_file
 
 __all__ = ["DEFAULT_VOLTS_PER_COUNT", "register", "run_new", "run_show", "summary_lines"]
@@ -270,6 +271,15 @@ def summary_lines(profile: CellProfile) -> list[str]:
         f"  resolution           {tr.resolution_m:.6g} m per count "
         f"({k * tr.resolution_m:.6g} N static)",
         f"  noise (1σ)           {tr.noise_m:.6g} m ({k * tr.noise_m:.6g} N static)",
+    ]
+    bias_m = residual_bias_sd_m(tr.resolution_m, tr.noise_m)
+    if bias_m >= 1e-3 * tr.resolution_m:
+        lines.append(
+            f"  quantisation bias    {bias_m:.3g} m ({k * bias_m:.3g} N, standard): the noise is "
+            "narrower than a count, so held readings keep a bias averaging cannot remove "
+            "(in the observer's σ)"
+        )
+    lines += [
         "acquisition",
         f"  sample rate          {acq.sample_rate_hz:.6g} Hz",
         f"  port                 {acq.port or '(built-in simulated cell)'}",
