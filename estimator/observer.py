@@ -274,6 +274,10 @@ class ForceObserver:
         tuning: see :class:`ObserverTuning`.
         force_range_n: rated span of the cell (N): the start-up prior and the scale
             of the force priors.
+        mass_u_kg, damping_u_n_s_per_m: standard uncertainties of the plant's mass and
+            damping (a profile's, from identification); the force they carry, ``m·ẍ``
+            and ``b·ẋ``, is uncertain by ``u(m)·|ẍ|`` and ``u(b)·|ẋ|``, which ``force_u_n``
+            then includes (0 on a held load). 0 by default: the plant taken as exact.
     """
 
     def __init__(
@@ -284,8 +288,18 @@ class ForceObserver:
         resolution_m: float = 0.0,
         tuning: ObserverTuning | None = None,
         force_range_n: float | None = None,
+        *,
+        mass_u_kg: float = 0.0,
+        damping_u_n_s_per_m: float = 0.0,
     ) -> None:
         _positive("sample_period_s", sample_period_s)
+        given_u = (("mass_u_kg", mass_u_kg), ("damping_u_n_s_per_m", damping_u_n_s_per_m))
+        for name, value in given_u:
+            if not (math.isfinite(value) and value >= 0):
+                raise ParameterError(f"{name} = {value!r}: must be a finite number >= 0")
+        #: standard uncertainties of the plant's mass (kg) and damping (N·s/m)
+        self.mass_u_kg = float(mass_u_kg)
+        self.damping_u_n_s_per_m = float(damping_u_n_s_per_m)
         if not (math.isfinite(noise_m) and noise_m >= 0):
             raise ParameterError(f"noise_m = {noise_m!r}: must be a finite number >= 0")
         if not (math.isfinite(resolution_m) and resolution_m >= 0):
@@ -366,6 +380,8 @@ class ForceObserver:
             profile.transducer.resolution_m,
             tuning,
             force_range_n=span,
+            mass_u_kg=profile.plant.mass_u_kg,
+            damping_u_n_s_per_m=profile.plant.damping_u_n_s_per_m,
         )
 
     def reset(self) -> None:
@@ -421,6 +437,28 @@ class ForceObserver:
         return math.sqrt(self.R)
 
     # -------------------------------------------------------------- processing
+
+    def stated_variance_n2(
+        self,
+        force_var_n2: np.ndarray,
+        force_n: np.ndarray,
+        displacement_m: np.ndarray,
+        velocity_m_s: np.ndarray,
+    ) -> np.ndarray:
+        """``force_u_n²`` (N²) of estimates whose own force variance is ``force_var_n2``:
+        plus the bias of coarse quantisation (`quantisation_var_n2`) and the force carried
+        through the uncertain mass and damping, ``(u(m)·ẍ)² + (u(b)·ẋ)²`` with
+        ``ẍ = (F − b·ẋ − k·x)/m`` (JCGM 100:2008, eq. 10, inputs uncorrelated). Arrays of
+        one shape; the live and the smoothed estimate both state their σ through this."""
+        var = force_var_n2 + self.quantisation_var_n2
+        if self.mass_u_kg > 0.0 or self.damping_u_n_s_per_m > 0.0:
+            p = self.plant
+            accel = (
+                force_n - p.damping_n_s_per_m * velocity_m_s - p.stiffness_n_per_m * displacement_m
+            ) / p.mass_kg
+            damping = self.damping_u_n_s_per_m * velocity_m_s
+            var = var + (self.mass_u_kg * accel) ** 2 + damping**2
+        return var
 
     def process(self, time_s: np.ndarray, displacement_m: np.ndarray) -> np.ndarray:
         """Estimate force for a block of samples.
@@ -517,9 +555,13 @@ class ForceObserver:
         D = self._D
         out["time_s"] = t
         out["force_n"] = ox[:, 2]
-        out["force_u_n"] = np.sqrt(ov[:, 2] + self.quantisation_var_n2)
         out["displacement_m"] = ox[:, 0] / D[0]
         out["velocity_m_s"] = ox[:, 1] / D[1]
+        out["force_u_n"] = np.sqrt(
+            self.stated_variance_n2(
+                ov[:, 2], out["force_n"], out["displacement_m"], out["velocity_m_s"]
+            )
+        )
         out["innovation_m"] = oy / k
         out["nis"] = oy * oy / os_
         fam = self._families

@@ -384,9 +384,13 @@ def _smooth_stretch(
         rows = live.copy()
         x = state.read(ca, cb)
         rows["force_n"] = x[:, 2]
-        rows["force_u_n"] = np.sqrt(var.read(ca, cb) + obs.quantisation_var_n2)
         rows["displacement_m"] = x[:, 0] / D[0]
         rows["velocity_m_s"] = x[:, 1] / D[1]
+        rows["force_u_n"] = np.sqrt(
+            obs.stated_variance_n2(
+                var.read(ca, cb), rows["force_n"], rows["displacement_m"], rows["velocity_m_s"]
+            )
+        )
         rows["p_hold"] = float(model.family == FAMILY_HOLD)
         rows["p_rate"] = float(model.family == FAMILY_RATE)
         rows["p_jump"] = 0.0

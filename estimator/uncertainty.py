@@ -6,8 +6,9 @@ uncertainty (JCGM 100:2008, eq. 10) gives
 
     u_c²(F) = u_obs² + (F·u(k)/k)² + (k·r)²/12 + (w·F)²
 
-* ``u_obs``: the observer's standard uncertainty (its covariance: transducer noise and the
-  force random walk), N;
+* ``u_obs``: the observer's standard uncertainty (``force_u_n``: its covariance, the bias of
+  coarse quantisation, and on a moving load the force the plant's uncertain mass and
+  damping carry; docs/method-observer.md, section 7), N;
 * ``F·u(k)/k``: the calibration, with sensitivity coefficient ∂F/∂k = F/k;
 * ``k·r/√12``: the resolution r of the displacement reading, a rectangular distribution
   of width one count (JCGM 100:2008, 4.3.7 and F.2.2.1);
@@ -65,7 +66,7 @@ class UncertaintyBudget:
     def text(self) -> str:
         """The budget as a small table with units (standard uncertainties, k = 1)."""
         rows = [
-            ("observer (noise, force model)", self.observer_n),
+            ("observer (noise, force model, m and b)", self.observer_n),
             ("calibration (stiffness)", self.calibration_n),
             ("resolution (one count, rectangular)", self.resolution_n),
             ("model (relative term)", self.model_n),

@@ -107,6 +107,17 @@ class PlantSection:
         """Viscous damping coefficient c = 2ζ·sqrt(k·m), N·s/m."""
         return 2.0 * self.damping_ratio * math.sqrt(self.stiffness_n_per_m * self.mass_kg)
 
+    @property
+    def damping_u_n_s_per_m(self) -> float:
+        """Standard uncertainty of c = 2ζ·sqrt(k·m), N·s/m: GUM 5.1.6 for a product of
+        powers, ζ, k and m taken as uncorrelated."""
+        rel = math.hypot(
+            self.damping_ratio_u / self.damping_ratio,  # ζ > 0 in every profile
+            0.5 * self.stiffness_u_n_per_m / self.stiffness_n_per_m,
+            0.5 * self.mass_u_kg / self.mass_kg,
+        )
+        return self.damping_n_s_per_m * rel
+
     def plant(self) -> Plant:
         """Return the :class:`~estimator.plant.Plant` (mass, c = 2ζ·sqrt(k·m), k)."""
         from estimator.plant import Plant  # imported here: keeps this module light

@@ -34,7 +34,7 @@ def change_rows(changes: list[dict[str, Any]]) -> list[list[str]]:
 def budget_lines(u: dict[str, Any]) -> list[str]:
     """The GUM budget of a settled reading, one line per contribution."""
     rows = [
-        ("observer (noise, force model)", u["observer_n"]),
+        ("observer (noise, force model, m and b)", u["observer_n"]),
         ("calibration (stiffness)", u["calibration_n"]),
         ("resolution (one count, rectangular)", u["resolution_n"]),
         ("model (relative term)", u["model_n"]),
