@@ -116,6 +116,7 @@ FLAG_OUTLIER_BEFORE = 32
 
 _TABLE_CACHE = 256  # distinct step lengths kept
 _DISPLACEMENT_MAX_M = 1.0  # a reading this far from zero is a unit error
+_START_MOVING = 0.03  # start-up probability that the cell is already moving (_start)
 
 
 @dataclass(frozen=True)
@@ -397,24 +398,38 @@ class ForceObserver:
         self.log_likelihood = 0.0
 
     def _start(self, z0: float) -> None:
-        """At rest at the first sample, force = k·z0, broad prior (scaled units)."""
+        """The first sample (scaled units). The cell is taken at rest: x̃ = F = k·z0, both
+        known to that reading's noise and fully correlated (F = k·x at rest), ṽ within one
+        noise σ of 0, Ḟ within one span per second. The first force jump model carries the
+        other possibility, a cell already moving (ṽ, F and Ḟ/ωn each within one span), at
+        `_START_MOVING` of the probability: below its prune level, so it passes nothing on
+        unless the next samples raise it (docs/method-observer.md, section 8)."""
         st = self._state
         k = self.plant.stiffness_n_per_m
         f0 = 0.0 if math.isnan(z0) else k * z0
         s = self.force_span_n
         st.x[:] = np.array([f0, 0.0, f0, 0.0])
-        # x̃ known to the noise; ṽ of the energy of a span-sized force; Ḟ/ωn one span
-        st.P[:] = np.diag([k * k * self.R, s * s, s * s, s * s])
+        r = k * k * self.R
+        at_rest = np.zeros((4, 4))
+        at_rest[0, 0] = at_rest[0, 2] = at_rest[2, 0] = at_rest[2, 2] = at_rest[1, 1] = r
+        at_rest[3, 3] = (s / self.plant.natural_freq_rad_s) ** 2
+        st.P[:] = at_rest
+        n_reg = self.models.regular
+        moving = self.models.count > max(n_reg, 2)
+        if moving:
+            st.P[:, n_reg] = np.diag([r, s * s, s * s, s * s])
         st.PD[:] = st.P
         st.mu[:] = 0.0
         st.mu[:, 0] = 0.5
-        n_reg = self.models.regular
         st.mu[:, 1:n_reg] = 0.5 / max(n_reg - 1, 1)
         if self.models.count == 1:
             st.mu[:, 0] = 1.0
         elif self.models.count == 2:
             st.mu[:, 0] = 0.9
             st.mu[:, 1] = 0.1
+        if moving:
+            st.mu[:, :n_reg] *= 1.0 - _START_MOVING
+            st.mu[:, n_reg] = _START_MOVING
         st.pend[:] = 0.0
 
     def warm_up(self) -> None:

@@ -772,6 +772,27 @@ def test_zero_measurement_variance_is_refused() -> None:
         ForceObserver(CELL, DT, 0.0, 0.0)
 
 
+def test_a_cell_at_rest_when_the_record_starts_reads_calm_from_its_first_row() -> None:
+    # The start-up takes the cell at rest (F = k·x, both known to the noise of the first
+    # reading; the same assumption as the closed-form diffuse-prior start of a Kalman filter
+    # on an at-rest cell). An invented soft, moderately damped cell (42 Hz, ζ 0.49, read at
+    # 10 kHz: a force barely moves it within a sample) holding 9.35 N from t = 0, so that
+    # x = F/k throughout (statics): over the first 5 ms the error stays within twice that of
+    # k·z, one reading's noise (measured 1.6 times; with the earlier broad start, ẋ and F
+    # each within one span, the second row read -141 N and those 5 ms had 800 times it).
+    k, rate = 3.1e5, 10_000.0
+    wn = 2 * math.pi * 42.1
+    m = k / wn**2
+    plant = Plant(m, 2 * 0.4921 * math.sqrt(k * m), k)
+    t = np.arange(2000) / rate
+    force = np.full(t.size, 9.35)
+    z = force / k + np.random.default_rng(3).normal(0.0, 9.4e-8, t.size)
+    est = ForceObserver(plant, 1 / rate, 9.4e-8, 0.0, force_range_n=190.0).process(t, z)
+    err = est["force_n"] - force
+    assert np.sqrt(np.mean(err[t < 0.005] ** 2)) < 2 * k * 9.4e-8
+    assert np.mean(np.abs(err[t < 0.2]) <= 2 * est["force_u_n"][t < 0.2]) > 0.9
+
+
 def test_a_wild_first_sample_does_not_stop_the_observer() -> None:
     # Found by the fuzzing suite: a record whose first displacement is -0.5 m (the start-up
     # then sets F = k·z0, thousands of newtons off), then an invented held load of 10 N.
