@@ -26,7 +26,7 @@ Every record is estimated by:
   random walk);
 * **k·x**: stiffness × reading.
 
-Scores per record, leaving out the first 50 ms (start-up): RMSE of force (N), ±2σ
+Scores per record, from the first row (``SCORED_FROM_S``): RMSE of force (N), ±2σ
 coverage (share of samples with ``|F̂ − F| ≤ 2σ``), and for staircase and pulse
 records the 2 % settling time after each step or pulse end; for staircases, how many of
 the rows at each step are covered (live: the first, the second, the third to tenth row at
@@ -67,7 +67,7 @@ from accuracy import ours
 from accuracy.cells import CELLS, OTHER_CELLS, Cell, random_cells
 from accuracy.loads import SHAPES, SMOOTH_SHAPES
 from accuracy.models import integrated_random_walk_model, random_walk_model
-from accuracy.records import START_UP_S, Record, build_records, wanted
+from accuracy.records import SCORED_FROM_S, Record, build_records, wanted
 from accuracy.scoring import coverage, coverage_near_steps, median_z, rmse, settling_times
 from accuracy.variants import VARIANTS
 from accuracy.yardsticks import (
@@ -186,7 +186,7 @@ def print_record(row: Row, record: Record) -> None:
     """The per-record table."""
     print(
         f"\n{row['record']}  (seed {row['seed']}; {row['n']} samples, "
-        f"{row['n_scored']} scored after {START_UP_S * 1e3:.0f} ms)"
+        f"{row['n_scored']} scored from {SCORED_FROM_S * 1e3:.0f} ms)"
     )
     print(f"  load: {record.load.note}")
     print(f"  fitted on the readings: {row['fit_rw']};  {row['fit_irw']}")
@@ -211,8 +211,8 @@ def verdict(ok: bool | None) -> str:
 def summary(rows: list[Row]) -> None:
     """Print the targets, the measured figures and PASS/FAIL."""
     print(
-        f"\n=== Summary: {len(rows)} records of invented data; first "
-        f"{START_UP_S * 1e3:.0f} ms of each record not scored ==="
+        f"\n=== Summary: {len(rows)} records of invented data, scored from "
+        f"{SCORED_FROM_S * 1e3:.0f} ms ==="
     )
     # 1. Live RMSE against the better of (RW fit, k·x).
     r1 = [

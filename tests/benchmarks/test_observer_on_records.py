@@ -10,12 +10,10 @@ import numpy as np
 from accuracy import ours
 from accuracy.cells import OTHER_CELLS, random_cells
 from accuracy.models import integrated_random_walk_model, random_walk_model
-from accuracy.records import build_records
+from accuracy.records import SCORED_FROM_S, build_records
 from accuracy.yardsticks import run_fitted
 
 from estimator.observer import FLAG_DEFERRED, FLAG_OUTLIER_BEFORE, judged_outliers
-
-_SCORED_FROM_S = 0.05  # as the benchmark: the start-up is not scored
 
 
 def _records(seed: int, only: str, cells: object, variants: tuple[str, ...]) -> dict:
@@ -25,8 +23,8 @@ def _records(seed: int, only: str, cells: object, variants: tuple[str, ...]) -> 
 
 
 def _rmse(record: object, force: np.ndarray) -> float:
-    """RMSE (N) of ``force`` against the record's truth, the start-up left out."""
-    first = int(_SCORED_FROM_S / record.cell.dt_s)
+    """RMSE (N) of ``force`` against the record's truth, scored as the benchmark scores."""
+    first = int(SCORED_FROM_S / record.cell.dt_s)
     return float(np.sqrt(np.mean((force[first:] - record.force_true_n[first:]) ** 2)))
 
 

@@ -20,8 +20,12 @@ from accuracy.transducer import measure
 from accuracy.truth import simulate
 from accuracy.variants import VARIANTS, apply_variant
 
-#: Samples before this time (s) are left out of every score (start-up of the filters).
+#: No spike is placed before this time (s): a spiked first reading would be a wrong start.
 START_UP_S = 0.05
+#: Samples before this time (s) are left out of every score. None since 2026-12-05: the
+#: observer, like the yardsticks, starts with the cell at rest, and is scored from its
+#: first row (it was 0.05 s, which hid start-up swings of tens of newtons on soft cells).
+SCORED_FROM_S = 0.0
 
 
 @dataclass(frozen=True)
@@ -55,8 +59,8 @@ class Record:
 
     @property
     def scored(self) -> np.ndarray:
-        """Boolean mask of the samples that count in the scores (after the start-up)."""
-        return self.t_s >= START_UP_S
+        """Boolean mask of the samples that count in the scores (from `SCORED_FROM_S` on)."""
+        return self.t_s >= SCORED_FROM_S
 
 
 def wanted(only: Sequence[str], cell: str, shape: str) -> bool:
