@@ -379,8 +379,10 @@ def _cells(text: str) -> str:
     if text in ("tuned", "other", "all"):
         return text
     kind, _, count = text.partition(":")
-    if kind != "random" or not count.isdigit() or int(count) < 1:
-        raise argparse.ArgumentTypeError(f"{text!r}: give tuned, other, all or random:N (N ≥ 1)")
+    if kind not in ("random", "coarse") or not count.isdigit() or int(count) < 1:
+        raise argparse.ArgumentTypeError(
+            f"{text!r}: give tuned, other, all, random:N or coarse:N (N ≥ 1)"
+        )
     return text
 
 
@@ -388,6 +390,8 @@ def cells_for(choice: str, seed: int) -> tuple[Cell, ...]:
     """The cells of ``--cells`` for one base seed (random cells are drawn per seed)."""
     if choice.startswith("random:"):
         return random_cells(int(choice.partition(":")[2]), seed)
+    if choice.startswith("coarse:"):
+        return random_cells(int(choice.partition(":")[2]), seed, (0.5, 3.0), "c")
     return {"tuned": CELLS, "other": OTHER_CELLS, "all": CELLS + OTHER_CELLS}[choice]
 
 
@@ -421,10 +425,11 @@ def parse_args(argv: Sequence[str] | None) -> argparse.Namespace:
         "--cells",
         type=_cells,
         default="tuned",
-        metavar="tuned|other|all|random:N",
+        metavar="tuned|other|all|random:N|coarse:N",
         help="the three cells the observer's defaults were tuned on (default), three other "
-        "invented cells it never saw (crisp, floaty, critical), all six, or N cells drawn at "
-        "random for each seed (r01, r02, ...; accuracy/cells.py, random_cells)",
+        "invented cells it never saw (crisp, floaty, critical), all six, N cells drawn at "
+        "random for each seed (r01, r02, ...; accuracy/cells.py, random_cells), or the same N "
+        "read by an ADC whose step is 0.5-3 noise σ instead of 0.1-0.5 (c01, c02, ...)",
     )
     p.add_argument("--csv", type=Path, metavar="OUT", help="write the per-record table here")
     return p.parse_args(argv)

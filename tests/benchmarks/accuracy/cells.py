@@ -171,7 +171,9 @@ RANDOM_RATES_HZ: tuple[float, ...] = (1_000.0, 2_000.0, 4_000.0, 5_000.0, 10_000
 RANDOM_MIN_SAMPLES_PER_PERIOD = 2.5
 
 
-def random_cells(n: int, seed: int) -> tuple[Cell, ...]:
+def random_cells(
+    n: int, seed: int, adc_step: tuple[float, float] = (0.1, 0.5), prefix: str = "r"
+) -> tuple[Cell, ...]:
     """``n`` invented cells drawn at random, to look for where the defaults break.
 
     Each cell: fn log-uniform in 30–1000 Hz (the loads' sines reach 8 Hz, their
@@ -181,7 +183,9 @@ def random_cells(n: int, seed: int) -> tuple[Cell, ...]:
     samples per natural period; noise log-uniform in 10–300 nm, ADC step 0.1–0.5 of it;
     stiffness log-uniform in 10³–10⁷ N/m; rated range such that full-scale displacement is
     5·10³–10⁵ noise σ (log-uniform). Names ``r01``, ``r02``…; the draw depends only on
-    ``(n, seed)``.
+    ``(n, seed)``. ``adc_step`` (as multiples of the noise) and ``prefix`` give the same
+    cells read by another ADC: ``(0.5, 3)`` and ``"c"`` are ``--cells coarse:N``, whose steps
+    reach past the noise (docs/method-observer.md, section 7).
     """
 
     def log_uniform(lo: float, hi: float) -> float:
@@ -199,14 +203,14 @@ def random_cells(n: int, seed: int) -> tuple[Cell, ...]:
         stiffness = log_uniform(1e3, 1e7)
         cells.append(
             Cell(
-                name=f"r{i + 1:02d}",
+                name=f"{prefix}{i + 1:02d}",
                 regime=f"random, {words}",
                 natural_freq_hz=round(fn, 1),
                 damping_ratio=round(log_uniform(z_lo, z_hi), 4),
                 stiffness_n_per_m=float(f"{stiffness:.2g}"),
                 sample_rate_hz=rates[int(rng.integers(len(rates)))],
                 noise_m=float(f"{noise:.2g}"),
-                resolution_m=float(f"{noise * rng.uniform(0.1, 0.5):.2g}"),
+                resolution_m=float(f"{noise * rng.uniform(*adc_step):.2g}"),
                 force_range_n=float(f"{stiffness * noise * log_uniform(5e3, 1e5):.2g}"),
             )
         )
