@@ -472,7 +472,8 @@ class ForceObserver:
                 force_n - p.damping_n_s_per_m * velocity_m_s - p.stiffness_n_per_m * displacement_m
             ) / p.mass_kg
             damping = self.damping_u_n_s_per_m * velocity_m_s
-            var = var + (self.mass_u_kg * accel) ** 2 + damping**2
+            with np.errstate(over="ignore"):  # absurd stated uncertainties: an infinite σ
+                var = var + (self.mass_u_kg * accel) ** 2 + damping**2
         return var
 
     def process(self, time_s: np.ndarray, displacement_m: np.ndarray) -> np.ndarray:

@@ -365,6 +365,23 @@ class CellProfile:
                 f"must be below the Nyquist frequency, [acquisition] sample_rate_hz / 2 = "
                 f"{nyquist_hz:g} Hz; lower it or raise the sample rate",
             )
+        plant = self.plant
+        for key, of in (("mass_u_kg", "mass_kg"), ("stiffness_u_n_per_m", "stiffness_n_per_m")):
+            if not getattr(plant, key) < getattr(plant, of):  # the observer's σ carries them
+                raise _fail(
+                    "plant",
+                    key,
+                    getattr(plant, key),
+                    f"must be below {of} = {getattr(plant, of)!r}: a standard uncertainty as "
+                    "large as the value says nothing of it",
+                )
+        if not math.isfinite(plant.damping_u_n_s_per_m):
+            raise _fail(
+                "plant",
+                "damping_ratio_u",
+                plant.damping_ratio_u,
+                "gives the damping coefficient an infinite uncertainty",
+            )
 
     def with_updates(self, **sections: Any) -> CellProfile:
         """Return a copy with whole sections replaced, e.g. ``with_updates(plant=new_plant)``.

@@ -265,6 +265,11 @@ INVALID_CASES = [
     ("count of a metre", _set("transducer", "metres_per_volt", 1e300), "one count"),
     ("stiffness 1.7e308", _set("plant", "stiffness_n_per_m", 1.7e308), "natural frequency of inf"),
     ("mass 1e-320", _set("plant", "mass_kg", 1e-320), "natural frequency of inf"),
+    # found by the long fuzz run: the observer's σ carries these (u(m)·ẍ, u(c)·ẋ) and
+    # overflowed; an uncertainty as large as a positive value says nothing of it
+    ("mass u as large as the mass", _set("plant", "mass_u_kg", 0.4), "mass_u_kg = 0.4"),
+    ("stiffness u 1e308", _set("plant", "stiffness_u_n_per_m", 1e308), "must be below"),
+    ("damping ratio u 1e308", _set("plant", "damping_ratio_u", 1e308), "infinite uncertainty"),
     ("cell past Nyquist", _set("plant", "stiffness_n_per_m", 4.0e8), "below the Nyquist"),
     ("cell slower than 1 mHz", _set("plant", "stiffness_n_per_m", 1e-8), "from 0.001 Hz"),
     ("missing key", _delete("plant", "stiffness_n_per_m"), "stiffness_n_per_m is missing"),
