@@ -108,114 +108,128 @@ _PEND_SIZE = 8  # entries of ``pend`` (see `imm_block`)
 _LOG_BURST_GO_ON = math.log(0.1)  # log probability that an outlier is followed by another
 
 
-@numba.njit(cache=True, nogil=True, inline="always")
-def _interact_predict(it, PHI, Q, QD, PI, prune, floor, x, P, PD, mu, cbar, x0, P0, PD0, w, src):
+#: packed upper triangle of a symmetric 4×4 covariance: entry (a, b) is row ``_U[a, b]``
+_U = np.array([[0, 1, 2, 3], [1, 4, 5, 6], [2, 5, 7, 8], [3, 6, 8, 9]])
+_DIAG = np.array([0, 4, 7, 9])  # rows of (0, 0), (1, 1), (2, 2), (3, 3)
+_JIT = {"cache": True, "nogil": True, "error_model": "numpy"}
+
+
+@numba.njit(inline="always", **_JIT)
+def _interact_predict(it, phi, q, qd, PI, prune, floor, x, P, PD, mu, cbar, tot, W, x0, P0, PD0):
     """Steps 1 and 2: mixed priors, then each model's prediction, in place in x, P (and
     PD of the floor models).
 
     A model whose probability is below its ``prune`` entry passes nothing on: each
-    model's sources (``src[:n]``, ascending, weights ``w[:n]``) are the models kept and
-    itself.
+    model's sources are the models kept and itself, summed in ascending order. The loops
+    run over the receiving models, which the layout (model index last) makes vectors.
     """
     r = mu.shape[0]
     for j in range(r):
-        c = 0.0
-        for i in range(r):
-            c += PI[it, i, j] * mu[i]
-        cbar[j] = c
+        cbar[j] = 0.0
+        tot[j] = 0.0
+    for i in range(r):
+        m = mu[i]
+        for j in range(r):
+            cbar[j] += PI[it, i, j] * m
+        if mu[i] >= prune[i]:  # kept: a source of every model
+            for j in range(r):
+                tot[j] += PI[it, i, j] * m
+        else:  # a source of itself only
+            tot[i] += PI[it, i, i] * m
+    for i in range(r):
+        if mu[i] >= prune[i]:
+            for j in range(r):
+                W[i, j] = PI[it, i, j] * mu[i] / tot[j]
+        else:
+            W[i, i] = PI[it, i, i] * mu[i] / tot[i]
+    for a in range(4):
+        for j in range(r):
+            x0[a, j] = 0.0
+    for u in range(10):
+        for j in range(r):
+            P0[u, j] = 0.0
+    for i in range(r):
+        if mu[i] >= prune[i]:
+            for a in range(4):
+                for j in range(r):
+                    x0[a, j] += W[i, j] * x[a, i]
+        else:
+            for a in range(4):
+                x0[a, i] += W[i, i] * x[a, i]
+    for i in range(r):
+        if mu[i] >= prune[i]:
+            for j in range(r):
+                _mix_term(W[i, j], x, P, i, x0, P0, j)
+        else:
+            _mix_term(W[i, i], x, P, i, x0, P0, i)
     for j in range(r):
-        tot = 0.0
-        n = 0
-        for i in range(r):
-            if i == j or mu[i] >= prune[i]:
-                w[n] = PI[it, i, j] * mu[i]
-                src[n] = i
-                tot += w[n]
-                n += 1
-        if tot <= 0.0:  # every source pruned: the model keeps its own state
-            n = 1
-            src[0] = j
-            w[0] = 1.0
-            tot = 1.0
-        for m in range(n):
-            w[m] /= tot
-        for a in range(4):
-            s = 0.0
-            for m in range(n):
-                s += w[m] * x[src[m], a]
-            x0[j, a] = s
-        _mix_cov(j, n, w, src, x, x0, P, PD, floor, False, P0)
+        if tot[j] <= 0.0:  # every source pruned: the model keeps its own state
+            for a in range(4):
+                x0[a, j] = x[a, j]
+            for u in range(10):
+                P0[u, j] = P[u, j]
+    for j in range(r):
         if floor[j]:
             # the gain's design covariance: the same mixture of the sources' design
             # covariances (a regular model's is its own)
-            _mix_cov(j, n, w, src, x, x0, P, PD, floor, True, PD0)
+            for u in range(10):
+                PD0[u, j] = 0.0
+            if tot[j] <= 0.0:
+                for u in range(10):
+                    PD0[u, j] = PD[u, j]
+            else:
+                for i in range(r):
+                    if i == j or mu[i] >= prune[i]:
+                        _mix_term(W[i, j], x, PD if floor[i] else P, i, x0, PD0, j)
     for j in range(r):
-        _predict_cov(it, j, PHI, Q, P0, P)
-        if floor[j]:
-            _predict_cov(it, j, PHI, QD, PD0, PD)
+        _predict_cov(it, j, phi, q, P0, P)
+        a0, a1, a2, a3 = x0[0, j], x0[1, j], x0[2, j], x0[3, j]
         for a in range(4):
-            s = 0.0
-            for b in range(4):
-                s += PHI[it, j, a, b] * x0[j, b]
-            x[j, a] = s
+            x[a, j] = (
+                0.0
+                + phi[it, 4 * a, j] * a0
+                + phi[it, 4 * a + 1, j] * a1
+                + phi[it, 4 * a + 2, j] * a2
+                + phi[it, 4 * a + 3, j] * a3
+            )
+    for j in range(r):
+        if floor[j]:
+            _predict_cov(it, j, phi, qd, PD0, PD)
     for j in range(r):
         mu[j] = cbar[j]
 
 
-@numba.njit(cache=True, nogil=True, inline="always")
-def _mix_cov(j, n, w, src, x, x0, P, PD, floor, design, P0):
-    """``P0[j] = Σ_m w_m (P_i + (x_i − x0_j)(x_i − x0_j)ᵀ)`` over the sources ``i =
-    src[m]``; with ``design``, the floor sources contribute their design covariance
-    ``PD_i`` instead of ``P_i``."""
-    c00 = c01 = c02 = c03 = c11 = c12 = c13 = c22 = c23 = c33 = 0.0
-    m0, m1, m2, m3 = x0[j, 0], x0[j, 1], x0[j, 2], x0[j, 3]
-    for m in range(n):
-        wm = w[m]
-        if wm == 0.0:
-            continue
-        i = src[m]
-        S = PD if (design and floor[i]) else P
-        d0 = x[i, 0] - m0
-        d1 = x[i, 1] - m1
-        d2 = x[i, 2] - m2
-        d3 = x[i, 3] - m3
-        c00 += wm * (S[i, 0, 0] + d0 * d0)
-        c01 += wm * (S[i, 0, 1] + d0 * d1)
-        c02 += wm * (S[i, 0, 2] + d0 * d2)
-        c03 += wm * (S[i, 0, 3] + d0 * d3)
-        c11 += wm * (S[i, 1, 1] + d1 * d1)
-        c12 += wm * (S[i, 1, 2] + d1 * d2)
-        c13 += wm * (S[i, 1, 3] + d1 * d3)
-        c22 += wm * (S[i, 2, 2] + d2 * d2)
-        c23 += wm * (S[i, 2, 3] + d2 * d3)
-        c33 += wm * (S[i, 3, 3] + d3 * d3)
-    P0[j, 0, 0] = c00
-    P0[j, 0, 1] = P0[j, 1, 0] = c01
-    P0[j, 0, 2] = P0[j, 2, 0] = c02
-    P0[j, 0, 3] = P0[j, 3, 0] = c03
-    P0[j, 1, 1] = c11
-    P0[j, 1, 2] = P0[j, 2, 1] = c12
-    P0[j, 1, 3] = P0[j, 3, 1] = c13
-    P0[j, 2, 2] = c22
-    P0[j, 2, 3] = P0[j, 3, 2] = c23
-    P0[j, 3, 3] = c33
+@numba.njit(inline="always", **_JIT)
+def _mix_term(wm, x, S, i, x0, P0, j):
+    """``P0[:, j] += wm (S_i + (x_i − x0_j)(x_i − x0_j)ᵀ)``, packed."""
+    d0 = x[0, i] - x0[0, j]
+    d1 = x[1, i] - x0[1, j]
+    d2 = x[2, i] - x0[2, j]
+    d3 = x[3, i] - x0[3, j]
+    P0[0, j] += wm * (S[0, i] + d0 * d0)
+    P0[1, j] += wm * (S[1, i] + d0 * d1)
+    P0[2, j] += wm * (S[2, i] + d0 * d2)
+    P0[3, j] += wm * (S[3, i] + d0 * d3)
+    P0[4, j] += wm * (S[4, i] + d1 * d1)
+    P0[5, j] += wm * (S[5, i] + d1 * d2)
+    P0[6, j] += wm * (S[6, i] + d1 * d3)
+    P0[7, j] += wm * (S[7, i] + d2 * d2)
+    P0[8, j] += wm * (S[8, i] + d2 * d3)
+    P0[9, j] += wm * (S[9, i] + d3 * d3)
 
 
-@numba.njit(cache=True, nogil=True, inline="always")
-def _predict_cov(it, j, PHI, Q, P0, out):
-    """``out[j] = Φ_j P0_j Φ_jᵀ + Q_j``, written out term by term (each sum in the
+@numba.njit(inline="always", **_JIT)
+def _predict_cov(it, j, phi, q, P0, out):
+    """``out_j = Φ_j P0_j Φ_jᵀ + Q_j``, written out term by term (each sum in the
     order of the matrix product). Φ's lower left block (the force does not depend on the
     cell's state) and ``Φ[3, 2]`` (nor its rate on the force) are zero, `_check_structure`
-    makes sure, and their terms are left out: a third of the products, and the largest
-    share of a step."""
-    F = PHI[it, j]
-    p = P0[j]
-    f00, f01, f02, f03 = F[0, 0], F[0, 1], F[0, 2], F[0, 3]
-    f10, f11, f12, f13 = F[1, 0], F[1, 1], F[1, 2], F[1, 3]
-    f22, f23, f33 = F[2, 2], F[2, 3], F[3, 3]
-    p00, p01, p02, p03 = p[0, 0], p[0, 1], p[0, 2], p[0, 3]
-    p11, p12, p13 = p[1, 1], p[1, 2], p[1, 3]
-    p22, p23, p33 = p[2, 2], p[2, 3], p[3, 3]
+    makes sure, and their terms are left out: a third of the products."""
+    f00, f01, f02, f03 = phi[it, 0, j], phi[it, 1, j], phi[it, 2, j], phi[it, 3, j]
+    f10, f11, f12, f13 = phi[it, 4, j], phi[it, 5, j], phi[it, 6, j], phi[it, 7, j]
+    f22, f23, f33 = phi[it, 10, j], phi[it, 11, j], phi[it, 15, j]
+    p00, p01, p02, p03 = P0[0, j], P0[1, j], P0[2, j], P0[3, j]
+    p11, p12, p13 = P0[4, j], P0[5, j], P0[6, j]
+    p22, p23, p33 = P0[7, j], P0[8, j], P0[9, j]
     # T = Φ P0 (the rows and columns needed)
     t00 = f00 * p00 + f01 * p01 + f02 * p02 + f03 * p03
     t01 = f00 * p01 + f01 * p11 + f02 * p12 + f03 * p13
@@ -228,21 +242,19 @@ def _predict_cov(it, j, PHI, Q, P0, out):
     t22 = f22 * p22 + f23 * p23
     t23 = f22 * p23 + f23 * p33
     t33 = f33 * p33
-    q = Q[it, j]
-    o = out[j]
-    o[0, 0] = q[0, 0] + t00 * f00 + t01 * f01 + t02 * f02 + t03 * f03
-    o[0, 1] = o[1, 0] = q[0, 1] + t00 * f10 + t01 * f11 + t02 * f12 + t03 * f13
-    o[1, 1] = q[1, 1] + t10 * f10 + t11 * f11 + t12 * f12 + t13 * f13
-    o[0, 2] = o[2, 0] = q[0, 2] + t02 * f22 + t03 * f23
-    o[1, 2] = o[2, 1] = q[1, 2] + t12 * f22 + t13 * f23
-    o[2, 2] = q[2, 2] + t22 * f22 + t23 * f23
-    o[0, 3] = o[3, 0] = q[0, 3] + t03 * f33
-    o[1, 3] = o[3, 1] = q[1, 3] + t13 * f33
-    o[2, 3] = o[3, 2] = q[2, 3] + t23 * f33
-    o[3, 3] = q[3, 3] + t33 * f33
+    out[0, j] = q[it, 0, j] + t00 * f00 + t01 * f01 + t02 * f02 + t03 * f03
+    out[1, j] = q[it, 1, j] + t00 * f10 + t01 * f11 + t02 * f12 + t03 * f13
+    out[4, j] = q[it, 4, j] + t10 * f10 + t11 * f11 + t12 * f12 + t13 * f13
+    out[2, j] = q[it, 2, j] + t02 * f22 + t03 * f23
+    out[5, j] = q[it, 5, j] + t12 * f22 + t13 * f23
+    out[7, j] = q[it, 7, j] + t22 * f22 + t23 * f23
+    out[3, j] = q[it, 3, j] + t03 * f33
+    out[6, j] = q[it, 6, j] + t13 * f33
+    out[8, j] = q[it, 8, j] + t23 * f33
+    out[9, j] = q[it, 9, j] + t33 * f33
 
 
-@numba.njit(cache=True, nogil=True, inline="always")
+@numba.njit(inline="always", **_JIT)
 def _weigh(z, R, x, P, mu, w):
     """Each model's prior probability times its likelihood of ``z``, scaled by
     ``e^(−lmax)`` into ``w``; returns ``(lmax, Σ w)``.
@@ -253,8 +265,8 @@ def _weigh(z, R, x, P, mu, w):
     r = mu.shape[0]
     emax = -np.inf
     for j in range(r):
-        s_ = P[j, 0, 0] + R
-        y_ = z - x[j, 0]
+        s_ = P[0, j] + R
+        y_ = z - x[0, j]
         w[j] = -0.5 * y_ * y_ / s_
         if mu[j] > 0.0 and w[j] > emax:  # a model ruled out must not set the scale
             emax = w[j]
@@ -266,13 +278,13 @@ def _weigh(z, R, x, P, mu, w):
         return _LOWEST_LOG_DENSITY, 1.0
     total = 0.0
     for j in range(r):
-        w[j] = mu[j] * math.exp(w[j] - emax) / math.sqrt(P[j, 0, 0] + R) if mu[j] > 0.0 else 0.0
+        w[j] = mu[j] * math.exp(w[j] - emax) / math.sqrt(P[0, j] + R) if mu[j] > 0.0 else 0.0
         total += w[j]
     return emax - 0.5 * _LOG_2PI, total
 
 
-@numba.njit(cache=True, nogil=True, inline="always")
-def _apply(z, R, floor, x, P, PD, mu, w, lmax, total, d, T):
+@numba.njit(inline="always", **_JIT)
+def _apply(z, R, floor, x, P, PD, mu, w, lmax, total, K):
     """Steps 3 and 4 in place from the weights of `_weigh`; returns the log predictive
     density of ``z``. A floor model takes its gain from its design covariance ``PD``
     (updated as its own Kalman filter) and carries ``P`` through the same gain."""
@@ -281,52 +293,72 @@ def _apply(z, R, floor, x, P, PD, mu, w, lmax, total, d, T):
         mu[j] = w[j] / total
     for j in range(r):
         G = PD if floor[j] else P
-        s_ = G[j, 0, 0] + R
-        y_ = z - x[j, 0]
+        s_ = G[0, j] + R
+        y_ = z - x[0, j]
         for a in range(4):
-            d[a] = G[j, a, 0] / s_  # gain K
+            K[a, j] = G[a, j] / s_  # gain (column 0 of G is its rows 0-3)
         for a in range(4):
-            x[j, a] += d[a] * y_
-        _joseph(j, P, R, d, T)
+            x[a, j] += K[a, j] * y_
+    for j in range(r):
+        _joseph(j, P, R, K)
+    for j in range(r):
         if floor[j]:
-            _joseph(j, PD, R, d, T)
+            _joseph(j, PD, R, K)
     return lmax + math.log(total)
 
 
-@numba.njit(cache=True, nogil=True, inline="always")
-def _joseph(j, P, R, K, T):
+@numba.njit(inline="always", **_JIT)
+def _joseph(j, P, R, K):
     """``P_j ← (I − K e1ᵀ) P_j (I − K e1ᵀ)ᵀ + K R Kᵀ``: right for any gain ``K``,
-    symmetric and positive under rounding."""
-    for a in range(4):
-        for b in range(4):
-            T[a, b] = P[j, a, b] - K[a] * P[j, 0, b]
-    for a in range(4):
-        for b in range(a, 4):
-            v = T[a, b] - T[a, 0] * K[b] + K[a] * R * K[b]
-            P[j, a, b] = v
-            P[j, b, a] = v
+    symmetric and positive under rounding. ``T = P − K P[0, :]``; only the entries the
+    packed result needs."""
+    k0, k1, k2, k3 = K[0, j], K[1, j], K[2, j], K[3, j]
+    p00, p01, p02, p03 = P[0, j], P[1, j], P[2, j], P[3, j]
+    t00 = p00 - k0 * p00
+    t01 = p01 - k0 * p01
+    t02 = p02 - k0 * p02
+    t03 = p03 - k0 * p03
+    t10 = p01 - k1 * p00
+    t11 = P[4, j] - k1 * p01
+    t12 = P[5, j] - k1 * p02
+    t13 = P[6, j] - k1 * p03
+    t20 = p02 - k2 * p00
+    t22 = P[7, j] - k2 * p02
+    t23 = P[8, j] - k2 * p03
+    t30 = p03 - k3 * p00
+    t33 = P[9, j] - k3 * p03
+    P[0, j] = t00 - t00 * k0 + k0 * R * k0
+    P[1, j] = t01 - t00 * k1 + k0 * R * k1
+    P[2, j] = t02 - t00 * k2 + k0 * R * k2
+    P[3, j] = t03 - t00 * k3 + k0 * R * k3
+    P[4, j] = t11 - t10 * k1 + k1 * R * k1
+    P[5, j] = t12 - t10 * k2 + k1 * R * k2
+    P[6, j] = t13 - t10 * k3 + k1 * R * k3
+    P[7, j] = t22 - t20 * k2 + k2 * R * k2
+    P[8, j] = t23 - t20 * k3 + k2 * R * k3
+    P[9, j] = t33 - t30 * k3 + k3 * R * k3
 
 
-@numba.njit(cache=True, nogil=True, inline="always")
-def _update(z, R, floor, x, P, PD, mu, w, d, T):
+@numba.njit(inline="always", **_JIT)
+def _update(z, R, floor, x, P, PD, mu, w, K):
     """Steps 3 and 4 in place; returns the log predictive density of ``z``."""
     lmax, total = _weigh(z, R, x, P, mu, w)
-    return _apply(z, R, floor, x, P, PD, mu, w, lmax, total, d, T)
+    return _apply(z, R, floor, x, P, PD, mu, w, lmax, total, K)
 
 
-@numba.njit(cache=True, nogil=True, inline="always")
+@numba.njit(inline="always", **_JIT)
 def _copy_branch(x, P, PD, mu, to_x, to_P, to_PD, to_mu):
     """One branch's states, covariances and probabilities into another's arrays."""
     for j in range(mu.shape[0]):
         to_mu[j] = mu[j]
         for a in range(4):
-            to_x[j, a] = x[j, a]
-            for b in range(4):
-                to_P[j, a, b] = P[j, a, b]
-                to_PD[j, a, b] = PD[j, a, b]
+            to_x[a, j] = x[a, j]
+        for u in range(10):
+            to_P[u, j] = P[u, j]
+            to_PD[u, j] = PD[u, j]
 
 
-@numba.njit(cache=True, nogil=True, inline="always")
+@numba.njit(inline="always", **_JIT)
 def _decided(wa):
     """The weight of branch "used", made hard beyond ``_DECIDED`` of either side.
 
@@ -341,14 +373,14 @@ def _decided(wa):
     return wa
 
 
-@numba.njit(cache=True, nogil=True, inline="always")
+@numba.njit(inline="always", **_JIT)
 def _logaddexp(a, b):
     """``log(e^a + e^b)`` without overflow."""
     m = max(a, b)
     return m + math.log(math.exp(a - m) + math.exp(b - m))
 
 
-@numba.njit(cache=True, nogil=True, inline="always")
+@numba.njit(inline="always", **_JIT)
 def _outlier_log_density(y, s2, tail):
     """Log density of an outlier's innovation ``y``: ``(1 − tail)·N(y; 0, s2)`` plus
     ``tail`` times a Cauchy density of scale ``√s2``.
@@ -365,7 +397,7 @@ def _outlier_log_density(y, s2, tail):
     return _logaddexp(core, math.log(tail) - _LOG_PI - 0.5 * math.log(s2) - math.log1p(q))
 
 
-@numba.njit(cache=True, nogil=True, inline="always")
+@numba.njit(inline="always", **_JIT)
 def _resolve(la, lb, pend, floor, x, P, PD, mu):
     """Decide the pending suspect from the log weights of its branches ("used", "an
     outlier"); merge them into branch 0; True when it was judged an outlier."""
@@ -377,14 +409,14 @@ def _resolve(la, lb, pend, floor, x, P, PD, mu):
     return wa < 0.5
 
 
-@numba.njit(cache=True, nogil=True, inline="always")
+@numba.njit(inline="always", **_JIT)
 def _odds_open(la, lb):
     """Are the odds of branch "used" (log weight ``la``) against "an outlier" (``lb``)
     short of ``_DECIDED`` either way?"""
     return abs(la - lb) < _LOG_DECIDED_ODDS
 
 
-@numba.njit(cache=True, nogil=True, inline="always")
+@numba.njit(inline="always", **_JIT)
 def _merge(wa, floor, xa, Pa, PDa, mua, xb, Pb, PDb, mub):
     """Per-model moment matching of branch a (weight wa) and b (1 − wa), into a."""
     r = mua.shape[0]
@@ -401,23 +433,24 @@ def _merge(wa, floor, xa, Pa, PDa, mua, xb, Pb, PDb, mub):
         if floor[j]:
             _merge_cov(j, fa, fb, xa, PDa, xb, PDb)
         for a in range(4):
-            xa[j, a] = fa * xa[j, a] + fb * xb[j, a]
+            xa[a, j] = fa * xa[a, j] + fb * xb[a, j]
         mua[j] = m
 
 
-@numba.njit(cache=True, nogil=True, inline="always")
+@numba.njit(inline="always", **_JIT)
 def _merge_cov(j, fa, fb, xa, Pa, xb, Pb):
     """``Pa_j`` ← the covariance of the two-component mixture (weights fa, fb)."""
     for a in range(4):
-        xm = fa * xa[j, a] + fb * xb[j, a]
-        for b in range(4):
-            xmb = fa * xa[j, b] + fb * xb[j, b]
-            Pa[j, a, b] = fa * (Pa[j, a, b] + (xa[j, a] - xm) * (xa[j, b] - xmb)) + fb * (
-                Pb[j, a, b] + (xb[j, a] - xm) * (xb[j, b] - xmb)
+        xm = fa * xa[a, j] + fb * xb[a, j]
+        for b in range(a, 4):
+            xmb = fa * xa[b, j] + fb * xb[b, j]
+            u = _U[a, b]
+            Pa[u, j] = fa * (Pa[u, j] + (xa[a, j] - xm) * (xa[b, j] - xmb)) + fb * (
+                Pb[u, j] + (xb[a, j] - xm) * (xb[b, j] - xmb)
             )
 
 
-@numba.njit(cache=True, nogil=True, inline="always")
+@numba.njit(inline="always", **_JIT)
 def _drop_tail(ca, cb, budget):
     """Zero the smallest weights of ``ca`` and ``cb`` while their sum stays within
     ``budget``; the largest weight always stays."""
@@ -443,7 +476,7 @@ def _drop_tail(ca, cb, budget):
             cb[at - r] = 0.0
 
 
-@numba.njit(cache=True, nogil=True, inline="always")
+@numba.njit(inline="always", **_JIT)
 def _combine(k, wa, xa, Pa, mua, xb, Pb, mub, prune, tail, ca, cb, keep, out_x, out_var):
     """Mean and variance (per component) of the two-branch, r-model mixture.
 
@@ -473,19 +506,19 @@ def _combine(k, wa, xa, Pa, mua, xb, Pb, mub, prune, tail, ca, cb, keep, out_x, 
         s = 0.0
         for i in range(n):
             j = keep[i]
-            s += ca[j] * xa[j, a] + cb[j] * xb[j, a]
+            s += ca[j] * xa[a, j] + cb[j] * xb[a, j]
         out_x[k, a] = s
     for a in range(4):
         s = 0.0
         m = out_x[k, a]
         for i in range(n):
             j = keep[i]
-            s += ca[j] * (Pa[j, a, a] + (xa[j, a] - m) ** 2)
-            s += cb[j] * (Pb[j, a, a] + (xb[j, a] - m) ** 2)
+            s += ca[j] * (Pa[_DIAG[a], j] + (xa[a, j] - m) ** 2)
+            s += cb[j] * (Pb[_DIAG[a], j] + (xb[a, j] - m) ** 2)
         out_var[k, a] = s
 
 
-@numba.njit(cache=True, nogil=True, inline="always")
+@numba.njit(inline="always", **_JIT)
 def _reach_other(k, out_x, out_var, other_x, other_var):
     """Widen row ``k``'s variances so that its ±2σ interval holds the ±2σ interval of the
     hypothesis not shown (mean ``x_o``, σ ``σ_o``): ``σ' = max(σ, |x − x_o|/2 + σ_o)``.
@@ -499,7 +532,7 @@ def _reach_other(k, out_x, out_var, other_x, other_var):
             out_var[k, a] = reach * reach
 
 
-@numba.njit(cache=True, nogil=True, inline="always")
+@numba.njit(inline="always", **_JIT)
 def _add_lag(xa, mua, jump, floor, k, out_var):
     """The lag of the prior in the force's variance (row ``k``): when a rate model other
     than the fastest leads the mixture, the load may be moving faster than it assumes, and
@@ -514,11 +547,11 @@ def _add_lag(xa, mua, jump, floor, k, out_var):
         if mua[j] > mua[jd]:
             jd = j
     if 1 <= jd < jump - 1:
-        lag = xa[jd + 1, 2] - xa[jd, 2]
+        lag = xa[2, jd + 1] - xa[2, jd]
         out_var[k, 2] += lag * lag / (3.0 if floor[jd] else 12.0)
 
 
-@numba.njit(cache=True, nogil=True, inline="always")
+@numba.njit(inline="always", **_JIT)
 def _predicted(R, prune, x, P, mu):
     """The branch's prediction of the measurement: the mixture's mean and variance (models
     below ``prune`` left out, as in the reported mixture) and the most probable model."""
@@ -531,17 +564,17 @@ def _predicted(R, prune, x, P, mu):
     wsum = 0.0
     for j in range(r):
         if mu[j] >= prune[j] or j == jbest:
-            zhat += mu[j] * x[j, 0]
+            zhat += mu[j] * x[0, j]
             wsum += mu[j]
     zhat /= wsum
     smix = 0.0
     for j in range(r):
         if mu[j] >= prune[j] or j == jbest:
-            smix += mu[j] * (P[j, 0, 0] + R + (x[j, 0] - zhat) ** 2)
+            smix += mu[j] * (P[0, j] + R + (x[0, j] - zhat) ** 2)
     return zhat, smix / wsum, jbest
 
 
-@numba.njit(cache=True, nogil=True, inline="always")
+@numba.njit(inline="always", **_JIT)
 def _suspect_weighed(z, R, gate2, jump, jump_end, x, P, jbest, lw, lmax, total, lout, far):
     """Is ``z`` suspect for the branch whose weights `_weigh` left in ``lw`` (``lmax``,
     ``total`` as it returned them; ``lout`` the log of ``ε`` times the outlier density of
@@ -554,8 +587,8 @@ def _suspect_weighed(z, R, gate2, jump, jump_end, x, P, jbest, lw, lmax, total, 
     a model predicts the reading with a spread of ten noise σ or more, and a 50σ spike stays
     inside its gate; with a tight prediction the gate decides as before (the odds alone made
     the first sample of slow-starting steps suspect, a few σ out, and delayed their rows)."""
-    y = z - x[jbest, 0]
-    if y * y > gate2 * (P[jbest, 0, 0] + R):
+    y = z - x[0, jbest]
+    if y * y > gate2 * (P[0, jbest] + R):
         return True
     if far and lout - lmax - math.log(total) > _LOG_OUTLIER_SUSPECT_ODDS:
         return True
@@ -567,7 +600,7 @@ def _suspect_weighed(z, R, gate2, jump, jump_end, x, P, jbest, lw, lmax, total, 
     return lsum > _JUMP_SUSPECT * total
 
 
-@numba.njit(cache=True, nogil=True, inline="always")
+@numba.njit(inline="always", **_JIT)
 def _burst_goes_on(z, R, gate2, la, lb, outlier_sd, outlier_tail, prune, xb, Pb, mub, lw):
     """Hold ``z`` as the next sample of a burst? Returns the log weight it adds to the
     "outliers" branch if so, NaN if not. Held when ``z`` is beyond the gate of that
@@ -578,8 +611,8 @@ def _burst_goes_on(z, R, gate2, la, lb, outlier_sd, outlier_tail, prune, xb, Pb,
     used" explains it at once; without the second condition a spike soon after the start
     of a change was held with the change's first samples and used with them."""
     zb, sb, jb = _predicted(R, prune, xb, Pb, mub)
-    yb = z - xb[jb, 0]
-    if yb * yb <= gate2 * (Pb[jb, 0, 0] + R):
+    yb = z - xb[0, jb]
+    if yb * yb <= gate2 * (Pb[0, jb] + R):
         return math.nan
     so2 = outlier_sd * outlier_sd + sb
     added = _LOG_BURST_GO_ON + _outlier_log_density(z - zb, so2, outlier_tail)
@@ -589,7 +622,7 @@ def _burst_goes_on(z, R, gate2, la, lb, outlier_sd, outlier_tail, prune, xb, Pb,
     return added if wa < 1.0 - _DECIDED else math.nan
 
 
-@numba.njit(cache=True, nogil=True)
+@numba.njit(**_JIT)
 def imm_block(
     z: np.ndarray,  # (n,) measurements (scaled units), NaN when missing
     table: np.ndarray,  # (n,) int: row of the model tables for each step
@@ -638,14 +671,16 @@ def imm_block(
     r = mu.shape[1]
     keep_log = log_x.shape[0] > 0
     keep_before = x.shape[0] > 2  # a third slot: the prediction before the last sample
-    x0 = np.empty((r, 4))
-    P0 = np.empty((r, 4, 4))
-    PD0 = np.empty((r, 4, 4))
+    phi, q, qd = _packed_tables(PHI, Q, QD)
+    # the branches in the kernel's layout (model index last), written back at the end
+    X, PV, PDV = _packed_state(x, P, PD)
+    x0 = np.empty((4, r))
+    P0 = np.empty((10, r))
+    PD0 = np.empty((10, r))
     cbar = np.empty(r)
-    w = np.empty(r)
-    src = np.empty(r, np.int64)
-    d = np.empty(4)
-    T = np.empty((4, 4))
+    tot = np.empty(r)
+    W = np.empty((r, r))
+    K = np.empty((4, r))
     lj = np.empty(r)
     lw = np.empty(r)
     ca = np.empty(r)
@@ -653,8 +688,8 @@ def imm_block(
     keep = np.empty(r, np.int64)
     other_x = np.empty((1, 4))
     other_var = np.empty((1, 4))
-    xa, Pa, PDa, mua = x[0], P[0], PD[0], mu[0]
-    xb, Pb, PDb, mub = x[1], P[1], PD[1], mu[1]
+    xa, Pa, PDa, mua = X[0], PV[0], PDV[0], mu[0]
+    xb, Pb, PDb, mub = X[1], PV[1], PDV[1], mu[1]
     log_eps = math.log(outlier_prob)
     log_1m_eps = math.log1p(-outlier_prob)
     rejected = 0
@@ -668,19 +703,19 @@ def imm_block(
         if keep_before:
             pend[4] = 0.0
         _interact_predict(
-            it, PHI, Q, QD, PI, prune, floor, xa, Pa, PDa, mua, cbar, x0, P0, PD0, w, src
+            it, phi, q, qd, PI, prune, floor, xa, Pa, PDa, mua, cbar, tot, W, x0, P0, PD0
         )
         if pending:
             _interact_predict(
-                it, PHI, Q, QD, PI, prune, floor, xb, Pb, PDb, mub, cbar, x0, P0, PD0, w, src
+                it, phi, q, qd, PI, prune, floor, xb, Pb, PDb, mub, cbar, tot, W, x0, P0, PD0
             )
         # prediction of the measurement (branch "used": the suspect is undecided)
         zhat, smix, jbest = _predicted(R, prune, xa, Pa, mua)
         # the innovation and its variance under the most probable model: χ²(1) when
         # that model is right (the mixture's own variance includes the spread of the
         # improbable models and would make the NIS too small)
-        out_y[k] = zk - xa[jbest, 0]
-        out_s[k] = Pa[jbest, 0, 0] + R
+        out_y[k] = zk - xa[0, jbest]
+        out_s[k] = Pa[0, jbest] + R
         if math.isnan(zk):
             flag |= FLAG_OUT_UNUSED
             out_ll[k] = 0.0
@@ -704,7 +739,7 @@ def imm_block(
                 if not math.isnan(added):
                     # both branches go on: "used" takes the sample, "outliers" holds it
                     # as the next of a burst; a sample that comes back decides
-                    pend[1] += _apply(zk, R, floor, xa, Pa, PDa, mua, lj, lmax, total, d, T)
+                    pend[1] += _apply(zk, R, floor, xa, Pa, PDa, mua, lj, lmax, total, K)
                     pend[2] += added
                     pend[0] += 1.0
                     flag |= FLAG_OUT_SUSPECT
@@ -714,8 +749,8 @@ def imm_block(
                     # since the first; their joint log density, less what the held rows
                     # entered, is this row's share of the likelihood
                     la = log_1m_eps + pend[1]
-                    la += _apply(zk, R, floor, xa, Pa, PDa, mua, lj, lmax, total, d, T)
-                    lb = log_eps + pend[2] + _update(zk, R, floor, xb, Pb, PDb, mub, lj, d, T)
+                    la += _apply(zk, R, floor, xa, Pa, PDa, mua, lj, lmax, total, K)
+                    lb = log_eps + pend[2] + _update(zk, R, floor, xb, Pb, PDb, mub, lj, K)
                     out_ll[k] = _logaddexp(la, lb) - before
                     held = int(pend[0])
                     if pend[7] < _DEFER_MAX and _odds_open(la, lb):
@@ -724,7 +759,7 @@ def imm_block(
                         pend[2] = lb - log_eps
                         pend[7] += 1.0
                         flag |= FLAG_OUT_DEFERRED
-                    elif _resolve(la, lb, pend, floor, x, P, PD, mu):
+                    elif _resolve(la, lb, pend, floor, X, PV, PDV, mu):
                         rejected += held
                         flag |= FLAG_OUT_REJECTED_BEFORE
             else:
@@ -744,10 +779,10 @@ def imm_block(
                 if suspect and hindsight:
                     # was the sample before this one the outlier? ("before": that sample
                     # left out, this one used, from the prediction kept before it)
-                    _copy_branch(x[2], P[2], PD[2], mu[2], xb, Pb, PDb, mub)
+                    _copy_branch(X[2], PV[2], PDV[2], mu[2], xb, Pb, PDb, mub)
                     _interact_predict(
-                        it, PHI, Q, QD, PI, prune, floor, xb, Pb, PDb, mub, cbar, x0, P0, PD0,
-                        w, src,
+                        it, phi, q, qd, PI, prune, floor, xb, Pb, PDb, mub, cbar, tot, W, x0, P0,
+                        PD0,
                     )  # fmt: skip
                     lmax2, total2 = _weigh(zk, R, xb, Pb, mub, lw)
                     l_before = log_eps + pend[6] + lmax2 + math.log(total2)
@@ -757,9 +792,9 @@ def imm_block(
                         # the likeliest reading: both samples used, merged by their odds
                         # (hard beyond 19 to 1, as a suspect's decision)
                         wb = _decided(1.0 / (1.0 + math.exp(l_both - l_before)))
-                        _apply(zk, R, floor, xb, Pb, PDb, mub, lw, lmax2, total2, d, T)
+                        _apply(zk, R, floor, xb, Pb, PDb, mub, lw, lmax2, total2, K)
                         if wb < 1.0:
-                            _apply(zk, R, floor, xa, Pa, PDa, mua, lj, lmax, total, d, T)
+                            _apply(zk, R, floor, xa, Pa, PDa, mua, lj, lmax, total, K)
                             _merge(1.0 - wb, floor, xa, Pa, PDa, mua, xb, Pb, PDb, mub)
                         else:
                             _copy_branch(xb, Pb, PDb, mub, xa, Pa, PDa, mua)
@@ -773,7 +808,7 @@ def imm_block(
                     # suspect: keep the prediction as the "outlier" branch, then update
                     _copy_branch(xa, Pa, PDa, mua, xb, Pb, PDb, mub)
                     pend[2] = lout
-                    pend[1] = _apply(zk, R, floor, xa, Pa, PDa, mua, lj, lmax, total, d, T)
+                    pend[1] = _apply(zk, R, floor, xa, Pa, PDa, mua, lj, lmax, total, K)
                     pend[0] = 1.0
                     flag |= FLAG_OUT_SUSPECT
                     out_ll[k] = _logaddexp(log_1m_eps + pend[1], log_eps + pend[2])
@@ -782,10 +817,10 @@ def imm_block(
                     if kept:
                         # far enough out to be a spike its prediction could not tell: keep
                         # that prediction, for the next sample to weigh it in hindsight
-                        _copy_branch(xa, Pa, PDa, mua, x[2], P[2], PD[2], mu[2])
+                        _copy_branch(xa, Pa, PDa, mua, X[2], PV[2], PDV[2], mu[2])
                         pend[4] = 1.0
                         pend[6] = lout
-                    out_ll[k] = _apply(zk, R, floor, xa, Pa, PDa, mua, lj, lmax, total, d, T)
+                    out_ll[k] = _apply(zk, R, floor, xa, Pa, PDa, mua, lj, lmax, total, K)
                     if kept:
                         pend[5] = out_ll[k]  # its log density used
                     pend[3] = 0.0
@@ -815,13 +850,63 @@ def imm_block(
         if keep_log:
             for j in range(r):
                 for a in range(4):
-                    log_x[k, j, a] = xa[j, a]
+                    log_x[k, j, a] = xa[a, j]
                     for b in range(4):
-                        log_P[k, j, a, b] = Pa[j, a, b]
+                        log_P[k, j, a, b] = Pa[_U[a, b], j]
+    _unpacked_state(X, PV, PDV, x, P, PD)
     return rejected
 
 
-@numba.njit(cache=True, nogil=True)
+@numba.njit(**_JIT)
+def _packed_tables(PHI, Q, QD):
+    """The model tables in the kernel's layout, model index last: ``Φ`` as ``(nt, 16, r)``
+    (row ``4a + b``), ``Q`` and ``QD`` packed as ``(nt, 10, r)`` (row ``_U[a, b]``)."""
+    nt, r = PHI.shape[0], PHI.shape[1]
+    phi = np.empty((nt, 16, r))
+    q = np.empty((nt, 10, r))
+    qd = np.empty((nt, 10, r))
+    for t in range(nt):
+        for j in range(r):
+            for a in range(4):
+                for b in range(4):
+                    phi[t, 4 * a + b, j] = PHI[t, j, a, b]
+                    if b >= a:
+                        q[t, _U[a, b], j] = Q[t, j, a, b]
+                        qd[t, _U[a, b], j] = QD[t, j, a, b]
+    return phi, q, qd
+
+
+@numba.njit(**_JIT)
+def _packed_state(x, P, PD):
+    """The branches' states ``(nb, r, 4)`` and covariances ``(nb, r, 4, 4)`` in the
+    kernel's layout: ``(nb, 4, r)`` and packed ``(nb, 10, r)``."""
+    nb, r = x.shape[0], x.shape[1]
+    X = np.empty((nb, 4, r))
+    PV = np.empty((nb, 10, r))
+    PDV = np.empty((nb, 10, r))
+    for c in range(nb):
+        for j in range(r):
+            for a in range(4):
+                X[c, a, j] = x[c, j, a]
+                for b in range(a, 4):
+                    PV[c, _U[a, b], j] = P[c, j, a, b]
+                    PDV[c, _U[a, b], j] = PD[c, j, a, b]
+    return X, PV, PDV
+
+
+@numba.njit(**_JIT)
+def _unpacked_state(X, PV, PDV, x, P, PD):
+    """`_packed_state` undone, into the caller's arrays (both triangles written)."""
+    for c in range(x.shape[0]):
+        for j in range(x.shape[1]):
+            for a in range(4):
+                x[c, j, a] = X[c, a, j]
+                for b in range(4):
+                    P[c, j, a, b] = PV[c, _U[a, b], j]
+                    PD[c, j, a, b] = PDV[c, _U[a, b], j]
+
+
+@numba.njit(**_JIT)
 def _check_structure(PHI):
     """Refuse transition matrices `_predict_cov` would get wrong: ``Φ[2:, :2]`` and
     ``Φ[3, 2]`` must be exactly zero, as in every table of `force_models.model_tables`."""
