@@ -63,6 +63,13 @@ systems with Markovian switching coefficients", IEEE Trans. Automatic Control 33
 to Tracking and Navigation", Wiley 2001, section 11.6.6; the two-hypothesis weighing
 is Bayes' rule over the suspect sample and the next one.
 
+**Layout.** Inside a block the models' states are held with the model index last,
+``(4, r)`` per branch, and each covariance packed to its upper triangle, ``(10, r)`` (row
+``_U[a, b]``), so that the steps over the models are loops the compiler may vectorise; the
+caller's arrays keep ``(branches, r, 4)`` and ``(branches, r, 4, 4)`` and are converted on
+entry and written back on exit. Every sum runs in the order it had with the model index
+first, so the results are the same bit for bit.
+
 Nothing here allocates per sample; every decision depends only on past samples, so a
 record fed in blocks of any size gives bit-identical results (the suspect branch is part
 of the carried state).
