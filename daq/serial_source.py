@@ -20,6 +20,7 @@ import collections
 import contextlib
 import datetime as _dt
 import math
+import os
 import threading
 import time
 from collections.abc import Callable
@@ -623,13 +624,15 @@ class SerialReader:
                 failures += 1
                 if not reconnect and failures >= self.first_open_attempts:
                     raise SourceError(
-                        f"cannot open {s.port!r} ({exc}), {failures} attempts; is it the "
+                        f"cannot open {s.port!r} ({_open_reason(exc)}), {failures} attempts; "
+                        "is it the "
                         f"right name, is the device plugged in? {LIST_PORTS_HINT}"
                     ) from None
                 if failures == 1:
                     self._log(
                         "open-failed",
-                        f"cannot open {s.port!r} ({exc}); retrying, waits doubling up to "
+                        f"cannot open {s.port!r} ({_open_reason(exc)}); retrying, waits "
+                        "doubling up to "
                         f"{self.backoff_max_s:g} s; {LIST_PORTS_HINT}",
                     )
             self._backoff_wait()
@@ -711,3 +714,16 @@ class SerialReader:
                 f"nobody drained {self.max_unread_samples} samples; dropping the oldest "
                 "(counted in samples_dropped_unread) until the next drain()",
             )
+
+
+def _open_reason(exc: BaseException) -> str:
+    """Why a port did not open, said once: the operating system's words for the error
+    number where there is one (pyserial's text repeats it: "[Errno 2] could not open port
+    X: [Errno 2] No such file or directory: 'X'"), else the exception's own text (an
+    exclusive lock held by another process, say)."""
+    code = getattr(exc, "errno", None)
+    if isinstance(exc, serial.SerialException) and isinstance(code, int) and code > 0:
+        return os.strerror(code)
+    if isinstance(exc, OSError) and exc.strerror:
+        return exc.strerror
+    return str(exc)

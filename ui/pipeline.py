@@ -45,6 +45,7 @@ __all__ = [
     "EstimationPipeline",
     "Tare",
     "estimate_samples",
+    "prepare_estimator",
     "tares_from_events",
 ]
 
@@ -136,6 +137,34 @@ def tares_from_events(events: Iterable[Mapping[str, Any]]) -> list[Tare]:
             raise ValueError(f"event {i} (tare): {problem}; the run's event log is damaged")
         tares.append(Tare(index, float(offset), n_samples, seq))
     return sorted(tares, key=lambda t: t.index)
+
+
+#: how long the compiled kernels may take to load before a session says it is compiling
+_PREPARE_NOTICE_S = 1.0
+
+
+def prepare_estimator(profile: CellProfile, say: Any = print) -> None:
+    """Compile (or load from numba's cache) every kernel a live session runs: the
+    observer's and the settling monitor's, by a throwaway pipeline over a few samples at
+    rest. From the cache this takes a fraction of a second; the first session after an
+    install compiles them (about 20 s on a 2-core machine), and ``say`` is told so when
+    the wait passes `_PREPARE_NOTICE_S`, so that nobody takes the silence for a hang."""
+    import threading
+
+    from daq.samples import empty_block
+
+    text = "preparing the estimator: compiling its kernels (once after an install, about 20 s)..."
+    notice = threading.Timer(_PREPARE_NOTICE_S, say, args=(text,))
+    notice.daemon = True
+    notice.start()
+    try:
+        block = empty_block(64)
+        block["seq"] = np.arange(64)
+        block["device_time_s"] = np.arange(64) / profile.acquisition.sample_rate_hz
+        block["host_time_s"] = block["device_time_s"]
+        EstimationPipeline(profile).process(block)
+    finally:
+        notice.cancel()
 
 
 class EstimationPipeline:

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import datetime
+import errno
 import itertools
 import math
 import os
@@ -379,6 +380,28 @@ def test_a_port_that_never_opens_stops_with_the_command_that_lists_ports() -> No
         with pytest.raises(SourceError, match=r"cannot open '/dev/ttyTYPO'.*forcelens ports"):
             reader.drain()
     assert len(sleeps) == 5
+
+
+def test_the_reason_a_port_did_not_open_is_said_once() -> None:
+    # pyserial's own text repeats the errno ("[Errno 2] could not open port X: [Errno 2]
+    # No such file or directory: 'X'"); the error says the operating system's words once.
+    missing = serial.SerialException(
+        errno.ENOENT, "could not open port /dev/ttyX9: [Errno 2] No such file or directory"
+    )
+    reader = SerialReader(
+        PortSettings("/dev/ttyX9"),
+        LineDecoder(SCALING),
+        open_fn=opener([missing] * 6),
+        sleep=lambda s: None,
+    )
+    with reader:
+        wait_for(lambda: reader.state == "stopped")
+        with pytest.raises(SourceError) as caught:
+            reader.drain()
+    assert str(caught.value).startswith(
+        f"cannot open '/dev/ttyX9' ({os.strerror(errno.ENOENT)}), 6 attempts;"
+    )
+    assert str(caught.value).count("Errno") == 0
 
 
 def test_a_second_process_cannot_open_the_same_port() -> None:

@@ -101,6 +101,9 @@ def run(args: argparse.Namespace) -> int:
         inputs = [p for p in (args.profile, args.open) if p]
         replaced = claim_file(args.screenshot, inputs=inputs, force=args.force)
     profile = load_profile(args.profile) if args.profile else default_demo_profile()
+    from ui.pipeline import prepare_estimator
+
+    prepare_estimator(profile)  # before the window: a first run compiles, and says so
     if args.screenshot and not os.environ.get("DISPLAY") and "QT_QPA_PLATFORM" not in os.environ:
         os.environ["QT_QPA_PLATFORM"] = "offscreen"
     from pyqtgraph.Qt import QtCore, QtWidgets

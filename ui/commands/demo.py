@@ -97,6 +97,9 @@ def run(args: argparse.Namespace) -> int:
     programme = demo_programme()
     truth = cell.generate(programme)
     print(CAUTION)
+    from ui.pipeline import prepare_estimator
+
+    prepare_estimator(profile)  # says so when it compiles (the first run after an install)
     print(
         f"Invented demo: cell '{profile.cell.name}' (fn {pl.natural_freq_hz:.1f} Hz, "
         f"ζ {pl.damping_ratio:g}, k {pl.stiffness_n_per_m:g} N/m) at {acq.sample_rate_hz:g} Hz, "

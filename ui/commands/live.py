@@ -140,14 +140,19 @@ def run_live(args: argparse.Namespace) -> int:
     profile = load_profile(args.profile) if args.profile else default_demo_profile()
     if args.duration is not None and not args.duration > 0:
         raise ValueError(f"--duration = {args.duration}: must be > 0 seconds")
-    print(CAUTION)
-    port = args.port if args.port is not None else profile.acquisition.port
-    if port:
-        return _acquire(args, profile, port, cell=None)
-    cell = _simulated_cell(args, profile)
-    with cell:
-        print(f"built-in simulated cell (invented data) on {cell.port_name}", flush=True)
-        return _acquire(args, profile, cell.port_name, cell=cell)
+    from ui.pipe_safe import stdout_may_close
+    from ui.pipeline import prepare_estimator
+
+    with stdout_may_close():  # a console piped into `head` must not end a recording
+        print(CAUTION)
+        prepare_estimator(profile)  # before the run's clock starts and any port opens
+        port = args.port if args.port is not None else profile.acquisition.port
+        if port:
+            return _acquire(args, profile, port, cell=None)
+        cell = _simulated_cell(args, profile)
+        with cell:
+            print(f"built-in simulated cell (invented data) on {cell.port_name}", flush=True)
+            return _acquire(args, profile, cell.port_name, cell=cell)
 
 
 def _simulated_cell(args: argparse.Namespace, profile: Any) -> Any:
@@ -201,10 +206,14 @@ def _acquire(args: argparse.Namespace, profile: Any, port: str, cell: Any) -> in
             source = f"the built-in simulated cell (invented data) on {port}"
         command = "forcelens " + shlex.join(getattr(args, "argv", None) or ["live"])
         log_start(command, source, profile, args.profile)
+        if getattr(sys.stdout, "broken", False):  # before this log was open
+            session_logger().warning("standard output closed by its reader; the session goes on")
         try:
             return _run(args, profile, port, cell, recording)
         except BaseException as exc:
             session_logger().error("ended by %s: %s", type(exc).__name__, exc)
+            if recording is not None:  # sealed already if the session began (idempotent)
+                recording.close("failed", {"reason": f"error: {type(exc).__name__}: {exc}"})
             raise
 
 
