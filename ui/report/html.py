@@ -131,7 +131,8 @@ uncertainties (k = 1) unless stated:</p>
 <tr><th>replayed estimates</th><td>SHA-256 <code>{figures["estimates_sha256"]}</code></td></tr>
 </table>
 <ul>{hashes or "<li>no closing record</li>"}</ul>
-<p>Reproduce this report: <code>{e(s.reproduce)}</code><br>
+<p>Reproduce this report: <code>{e(s.reproduce)}</code> (the same files, byte for byte,
+with the same software)<br>
 Check it: <code>{e(s.check)}</code></p>
 <h2>Every load change</h2>
 <p>Settling band ±2 % of each step (common practice), never narrower than 2U; "settle" from

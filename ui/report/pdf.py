@@ -122,7 +122,9 @@ def write_pdf(
         " ".join(v.rjust(n) for v, n in zip(row, widths, strict=True))
         for row in change_rows(figures["changes"])
     ]
-    with PdfPages(path, metadata={"Title": f"forcelens run report {s.run_id}"}) as pdf:
+    # no creation date: the same run gives the same bytes (a report made again compares)
+    meta = {"Title": f"forcelens run report {s.run_id}", "CreationDate": None}
+    with PdfPages(path, metadata=meta) as pdf:
         _text_pages(pdf, plt, f"forcelens run report — {s.run_id}", summary_lines(s, figures))
         for fig in figs:
             pdf.savefig(fig)

@@ -132,9 +132,14 @@ def closeups(
 
 
 def svg_text(fig: Any) -> str:
-    """The figure as SVG text, for inlining in HTML."""
+    """The figure as SVG text, for inlining in HTML: the same bytes from the same run (no
+    date, and element ids hashed with a fixed salt instead of a random one), so that a
+    report made again can be compared byte for byte."""
+    import matplotlib
+
     buffer = io.StringIO()
-    fig.savefig(buffer, format="svg")
+    with matplotlib.rc_context({"svg.hashsalt": "forcelens"}):
+        fig.savefig(buffer, format="svg", metadata={"Date": None})
     text = buffer.getvalue()
     return text[text.index("<svg") :]
 
