@@ -97,6 +97,27 @@ def test_new_with_natural_frequency_derives_the_mass(
     assert f"{f_hz:.6g} Hz" in capsys.readouterr().out
 
 
+def test_new_takes_the_plant_s_uncertainties_and_says_when_the_stiffness_s_is_missing(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    # A bench-day walk made its profile the README's way: no option took the stiffness's
+    # uncertainty, and the report then stated U = 0.005 N at 50 N with a calibration term
+    # of 0 N. The options exist now, and their absence is said.
+    out = tmp_path / "cell.toml"
+    extra = ("--mass-kg", "0.25", "--stiffness-u-n-per-m", "500", "--mass-u-kg", "1e-3")
+    assert run(new_args(out, *extra, "--damping-ratio-u", "2e-4")) == 0
+    plant = load_profile(out).plant
+    assert (plant.stiffness_u_n_per_m, plant.mass_u_kg, plant.damping_ratio_u) == (
+        500.0,
+        1e-3,
+        2e-4,
+    )
+    assert "no stiffness uncertainty" not in capsys.readouterr().out
+    assert run(new_args(tmp_path / "bare.toml", "--mass-kg", "0.25")) == 0
+    assert load_profile(tmp_path / "bare.toml").plant.stiffness_u_n_per_m == 0.0
+    assert "note: no stiffness uncertainty given" in capsys.readouterr().out
+
+
 def test_new_refuses_to_overwrite_without_force(tmp_path: Path) -> None:
     out = tmp_path / "cell.toml"
     out.write_text("keep me", encoding="utf-8")

@@ -169,3 +169,15 @@ def test_report_pdf_is_a_multi_page_document(tmp_path: Path) -> None:
     pdf = (out / "report.pdf").read_bytes()
     pages = len(re.findall(rb"/Type\s*/Page[^s]", pdf))
     assert pages >= 4  # summary, overview, close-ups, provenance, every change
+
+
+def test_a_budget_without_a_stated_stiffness_uncertainty_says_u_leaves_it_out() -> None:
+    # A calibration term of 0 N is a profile that states none, not a calibration known
+    # exactly (a bench-day walk found U = 0.005 N at 50 N with no word of it).
+    from ui.report.tables import budget_lines
+
+    u = {"force_n": 50.0, "observer_n": 0.002, "calibration_n": 0.0, "resolution_n": 1e-4,
+         "model_n": 0.0, "combined_n": 0.002, "expanded_n_k2": 0.004}  # fmt: skip
+    assert not any("note" in line for line in budget_lines(u))
+    text = "\n".join(budget_lines(u, calibration_stated=False))
+    assert "states no stiffness uncertainty, so U leaves the calibration" in text

@@ -82,6 +82,19 @@ def register(subparsers: argparse._SubParsersAction) -> None:
         metavar="Z",
         help="damping ratio ζ, dimensionless, > 0 (required)",
     )
+    for option, what, unit in (
+        ("--stiffness-u-n-per-m", "the stiffness, from the cell's calibration", "N/m"),
+        ("--mass-u-kg", "the moving mass", "kg"),
+        ("--damping-ratio-u", "the damping ratio", "dimensionless"),
+    ):
+        new.add_argument(
+            option,
+            type=float,
+            default=0.0,
+            metavar="U",
+            help=f"standard uncertainty (k = 1) of {what}, {unit} (default 0: not stated; "
+            "the expanded uncertainty U then leaves it out)",
+        )
     new.add_argument(
         "--noise-m",
         type=float,
@@ -204,7 +217,14 @@ def run_new(args: argparse.Namespace) -> int:
             name=args.name if args.name is not None else out.stem,
             source="forcelens profile new",
         ),
-        plant=PlantSection(mass_kg=mass_kg, stiffness_n_per_m=k, damping_ratio=args.damping_ratio),
+        plant=PlantSection(
+            mass_kg=mass_kg,
+            stiffness_n_per_m=k,
+            damping_ratio=args.damping_ratio,
+            mass_u_kg=args.mass_u_kg,
+            stiffness_u_n_per_m=args.stiffness_u_n_per_m,
+            damping_ratio_u=args.damping_ratio_u,
+        ),
         transducer=TransducerSection(
             volts_per_count=args.volts_per_count,
             metres_per_volt=args.resolution_m / args.volts_per_count,
@@ -234,6 +254,12 @@ def run_new(args: argparse.Namespace) -> int:
         f"(k × {profile.transducer.resolution_m:.6g} m per count)"
     )
     print(f"  metres per volt        {profile.transducer.metres_per_volt:.6g} m/V")
+    if plant.stiffness_u_n_per_m == 0.0:
+        print(
+            "note: no stiffness uncertainty given, so readings' U will leave the calibration "
+            "out; give --stiffness-u-n-per-m from the cell's calibration, or run forcelens "
+            "calibrate SHEET --profile"
+        )
     return 0
 
 

@@ -114,7 +114,7 @@ step, never narrower than 2U; dashed: the settling time). {e(closeup_note)}</p>
 <h2>Uncertainty of a settled reading</h2>
 <p>GUM law of propagation (JCGM 100:2008) at the largest settled level, standard
 uncertainties (k = 1) unless stated:</p>
-<pre>{e(chr(10).join(budget_lines(figures["uncertainty"])))}</pre>
+<pre>{e(chr(10).join(budget_lines(figures["uncertainty"], s.calibration_stated)))}</pre>
 <h2>Alarms</h2>
 <ul>{alarms or "<li>none</li>"}</ul>
 <h2>Provenance</h2>

@@ -88,7 +88,7 @@ def summary_lines(s: ReportSummary, figures: dict[str, Any]) -> list[str]:
         f"{cell(s.max_overshoot_pct, '.2f')} %",
         "",
         "uncertainty of a settled reading (GUM, JCGM 100:2008; k = 1 unless stated)",
-        *budget_lines(figures["uncertainty"]),
+        *budget_lines(figures["uncertainty"], s.calibration_stated),
         "",
         "reproduce:",
         *_wrap("  " + s.reproduce),

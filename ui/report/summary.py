@@ -44,6 +44,8 @@ class ReportSummary:
     median_static_settle_ms: float | None
     median_ratio: float | None
     max_overshoot_pct: float | None
+    #: the profile states the stiffness's uncertainty (else U leaves calibration out)
+    calibration_stated: bool = True
 
 
 def _median(values: list[Any]) -> float | None:
@@ -90,6 +92,7 @@ def summarise(
         final_state=states[-1] if states else "never settled",
         alarms=len(figures["alarms"]),
         verify=verified,
+        calibration_stated=replayed.profile.plant.stiffness_u_n_per_m > 0.0,
         reproduce=f"forcelens report {run} --out {where} --force",
         check=f"forcelens audit {run} --report {where}",
         changes=len(changes),

@@ -31,8 +31,10 @@ def change_rows(changes: list[dict[str, Any]]) -> list[list[str]]:
     return [[cell(c[key], fmt) for key, _, _, fmt in CHANGE_COLUMNS] for c in changes]
 
 
-def budget_lines(u: dict[str, Any]) -> list[str]:
-    """The GUM budget of a settled reading, one line per contribution."""
+def budget_lines(u: dict[str, Any], calibration_stated: bool = True) -> list[str]:
+    """The GUM budget of a settled reading, one line per contribution; a note when the
+    profile states no stiffness uncertainty (a calibration term of 0 is not a calibration
+    known exactly: U then leaves the calibration out)."""
     rows = [
         ("observer (noise, force model, m and b)", u["observer_n"]),
         ("calibration (stiffness)", u["calibration_n"]),
@@ -43,4 +45,10 @@ def budget_lines(u: dict[str, Any]) -> list[str]:
     ]
     lines = [f"at F = {u['force_n']:.6g} N"]
     lines += [f"  {name:38s} {cell(value, '.3g')} N" for name, value in rows]
+    if not calibration_stated:
+        lines += [
+            "  note: the profile states no stiffness uncertainty, so U leaves the calibration",
+            "  out; give stiffness_u_n_per_m from the cell's calibration (forcelens calibrate",
+            "  --profile writes it, or profile new --stiffness-u-n-per-m)",
+        ]
     return lines
