@@ -42,6 +42,8 @@ __all__ = [
 
 #: Characters of text read per chunk (about 35 000 rows of two columns, ~13 MB to parse).
 CHUNK_CHARS = 1 << 20
+#: a number written with a decimal comma ("0,5", "-1,25e-3"), named in the refusal
+_DECIMAL_COMMA = re.compile(r"[+-]?\d+,\d*([eE][+-]?\d+)?")
 
 
 @dataclass(frozen=True)
@@ -311,10 +313,13 @@ class _ChunkReader:
                 try:
                     out.append(float(field_text) if field_text else np.nan)
                 except ValueError:
+                    hint = ""
+                    if _DECIMAL_COMMA.fullmatch(field_text):
+                        hint = " (a decimal comma? write the decimal mark as '.')"
                     raise FramingError(
                         f"{p}:{lineno}: {line.strip()!r} is not numbers in column "
-                        f"{names[i]} ({field_text!r}); columns {', '.join(self.wanted)} "
-                        "must be numbers"
+                        f"{names[i]} ({field_text!r}){hint}; columns "
+                        f"{', '.join(self.wanted)} must be numbers"
                     ) from None
         return {n: np.array(v, dtype=np.float64) for n, v in zip(self.wanted, values, strict=True)}
 

@@ -20,7 +20,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
-__all__ = ["Selection", "add_selection_options", "parse_utc", "select_runs"]
+__all__ = ["RUN_STATUSES", "Selection", "add_selection_options", "parse_utc", "select_runs"]
 
 
 @dataclass(frozen=True)
@@ -52,6 +52,11 @@ class Selection:
             + " to "
             + (self.until.isoformat() if self.until else "the last")
         )
+
+
+#: what ``--status`` takes: the catalogue's statuses (`daq.catalogue.CATALOGUE_STATUSES`,
+#: not imported here: ``--help`` stays free of numpy)
+RUN_STATUSES = ("complete", "aborted", "failed", "open")
 
 
 def add_selection_options(
@@ -87,6 +92,7 @@ def add_selection_options(
     parser.add_argument(
         "--status",
         metavar="STATUS",
+        choices=RUN_STATUSES,
         help="complete, aborted, failed or open (never closed: crashed or running); default: any",
     )
 

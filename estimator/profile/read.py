@@ -112,7 +112,13 @@ def load_profile(path: str | os.PathLike[str]) -> CellProfile:
     content; OSError if the file cannot be read.
     """
     origin = os.fspath(path)
-    st = os.stat(path)  # FileNotFoundError and the like name the path themselves
+    try:
+        st = os.stat(path)
+    except FileNotFoundError:
+        raise FileNotFoundError(
+            f"{origin}: no such file (a profile is a TOML file; `forcelens profile new` "
+            "makes one)"
+        ) from None
     if not stat.S_ISREG(st.st_mode):
         raise ProfileError(f"{origin}: not a regular file; a profile is a TOML file")
     if st.st_size > _MAX_PROFILE_BYTES:

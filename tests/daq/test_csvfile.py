@@ -210,3 +210,12 @@ def test_a_displacement_of_a_metre_is_refused_at_its_line(
         FramingError, match=re.escape(f"x.csv:{line}: {column} = {shown} is a metre or more")
     ):
         read_displacement_csv(p)
+
+
+def test_a_decimal_comma_is_named_in_the_refusal(tmp_path: Path) -> None:
+    # A spreadsheet in a decimal-comma locale writes "0,5;1,2e-6"; the refusal says what
+    # the likely cause is instead of only "is not numbers".
+    src = tmp_path / "comma.csv"
+    src.write_text("time_s;displacement_m\n0,0;0,0\n0,5;1,2e-6\n", encoding="utf-8")
+    with pytest.raises(FramingError, match=r":2: .*'0,0'\) \(a decimal comma\? write the decimal"):
+        read_displacement_csv(src)

@@ -414,3 +414,13 @@ def test_implausible_acquisition_values_are_refused_with_the_key(
     with pytest.raises(ProfileError, match=re.escape(words)) as err:
         dataclasses.replace(base.acquisition, **fields, **{key: value})
     assert key in str(err.value)
+
+
+def test_a_missing_profile_is_named_without_the_errno(tmp_path: Path) -> None:
+    # `profile show nothere.toml` printed "[Errno 2] No such file or directory: ..."
+    missing = tmp_path / "nothere.toml"
+    with pytest.raises(FileNotFoundError) as caught:
+        load_profile(missing)
+    assert str(caught.value) == (
+        f"{missing}: no such file (a profile is a TOML file; `forcelens profile new` makes one)"
+    )

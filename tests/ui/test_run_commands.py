@@ -225,3 +225,12 @@ def test_an_exported_run_reads_back_in_replay_and_identify(
     assert main(["replay", str(out), "--profile", str(prof), "--out", str(est)]) == 0
     assert main(["identify", str(out), "--test", "step", "--step-force-n", "30"]) == 0
     capsys.readouterr()
+
+
+def test_status_choices_are_the_catalogue_s() -> None:
+    # `runs --status done` named the key ("status = 'done'"), not the option; argparse
+    # now refuses it naming --status, from this list, which must stay the catalogue's.
+    from daq.catalogue import CATALOGUE_STATUSES
+    from ui.run_selection import RUN_STATUSES
+
+    assert sorted(RUN_STATUSES) == sorted(CATALOGUE_STATUSES)
