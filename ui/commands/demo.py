@@ -260,6 +260,7 @@ def _summary(programme: Any, t: Any, est: Any, kx: Any, truth_f: Any, budget: An
         ts_obs = time_to_settle(t, est["force_n"], t0, t_end, f_to, band)
         ts_kx = time_to_settle(t, kx, t0, t_end, f_to, band)
         ratio = ts_kx / ts_obs if ts_obs > 0 else math.inf
+        f_obs, f_kx = (0.0 if round(v, 3) == 0.0 else v for v in (f_obs, f_kx))  # no "-0.000"
         rows.append(
             f"{t0:8.2f} {f_to:9.3f} {f_obs:10.3f} {u_obs:8.3f} {f_kx:10.3f}"
             f" {ts_obs * 1e3:9.1f} {ts_kx * 1e3:9.1f} {ratio:7.1f}"

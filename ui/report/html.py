@@ -50,7 +50,7 @@ def page(
     d = replayed.data.description
     prof = replayed.profile
     readings = "".join(
-        f"<li>{r.force_n:.6g} N ± {r.expanded_u_n:.3g} N (U, k = 2) from {r.t_start_s:.3f} s"
+        f"<li>{e(r.text)} (U, k = 2) from {r.t_start_s:.3f} s"
         + (f", settled in {r.settle_ms:.1f} ms" if r.settle_ms else ", not settled")
         + "</li>"
         for r in s.readings[:_MAX_LISTED]

@@ -69,9 +69,7 @@ def summary_lines(s: ReportSummary, figures: dict[str, Any]) -> list[str]:
     ]
     for r in s.readings[:20]:
         settled = f"settled in {r.settle_ms:.1f} ms" if r.settle_ms else "not settled"
-        lines.append(
-            f"  {r.force_n:12.6g} N ± {r.expanded_u_n:.3g} N  from {r.t_start_s:.3f} s, {settled}"
-        )
+        lines.append(f"  {r.text:>24}  from {r.t_start_s:.3f} s, {settled}")
     if len(s.readings) > 20:
         lines.append(f"  … {len(s.readings) - 20} more in the table at the end")
     if not s.readings:

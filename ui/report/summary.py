@@ -21,6 +21,9 @@ class Reading:
     force_n: float
     expanded_u_n: float
     settle_ms: float | None
+    #: "49.9990 N ± 0.0050 N": U to two significant digits and the value to the same
+    #: decimal place, in the cell's force unit (GUM 7.2.6; `ui.display_units`)
+    text: str = ""
 
 
 @dataclass(frozen=True)
@@ -58,21 +61,19 @@ def summarise(
 ) -> ReportSummary:
     """The summary of a replayed run and its figures; commands with absolute paths."""
     from estimator.uncertainty import ForceUncertainty
+    from ui.display_units import CellUnits
 
     d = replayed.data.description
     t = replayed.column("time_s")
     n = replayed.rows
     budget = ForceUncertainty.from_profile(replayed.profile)
     u_obs = figures["uncertainty"]["observer_n"] or 0.0
-    readings = [
-        Reading(
-            c["t_start_s"],
-            c["after_n"],
-            float(budget.expanded_n(np.float64(c["after_n"]), np.float64(u_obs))),
-            c["settle_ms"],
-        )
-        for c in figures["changes"]
-    ]
+    units = CellUnits.for_profile(replayed.profile)
+    readings = []
+    for c in figures["changes"]:
+        u = float(budget.expanded_n(np.float64(c["after_n"]), np.float64(u_obs)))
+        text = f"{units.force_text(c['after_n'], u)} ± {units.u_text(u)}"
+        readings.append(Reading(c["t_start_s"], c["after_n"], u, c["settle_ms"], text))
     states = [e.get("new") for e in figures["settling"] if e.get("new")]
     changes = figures["changes"]
     run = shlex.quote(str(folder.resolve()))
