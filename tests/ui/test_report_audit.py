@@ -46,6 +46,14 @@ def test_report_is_self_contained_and_an_untouched_run_audits_identical(
         30.0, rel=0.01
     )
     assert (out / "report.pdf").read_bytes()[:5] == b"%PDF-"
+    # readings as GUM 7.2.6 advises: U to two significant digits, the value to its decimal
+    import re
+
+    quoted = re.findall(r"<li>(-?\d+(?:\.(\d+))?) N ± (\d+(?:\.(\d+))?) N \(U", page)
+    assert len(quoted) == 2, quoted
+    for _value, value_decimals, u, u_decimals in quoted:
+        assert len(value_decimals) == len(u_decimals)  # the same decimal place
+        assert len(u.replace(".", "").lstrip("0")) == 2  # two significant digits
     # the summary comes before any long table, the table of every change last
     assert (
         page.index("<h2>Summary")
