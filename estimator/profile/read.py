@@ -116,8 +116,7 @@ def load_profile(path: str | os.PathLike[str]) -> CellProfile:
         st = os.stat(path)
     except FileNotFoundError:
         raise FileNotFoundError(
-            f"{origin}: no such file (a profile is a TOML file; `forcelens profile new` "
-            "makes one)"
+            f"{origin}: no such file (a profile is a TOML file; `forcelens profile new` makes one)"
         ) from None
     if not stat.S_ISREG(st.st_mode):
         raise ProfileError(f"{origin}: not a regular file; a profile is a TOML file")

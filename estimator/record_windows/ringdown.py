@@ -61,9 +61,10 @@ class RingdownWindow:
         """One line saying what was found and how to choose another window."""
         other = f" ({self.candidates - 1} other decay(s) seen)" if self.candidates > 1 else ""
         return (
-            f"window found: {self.start_s:.6g} s to {self.end_s:.6g} s, the free decay "
-            f"of {self.excursion_m:.3g} m to rest at {self.rest_m:.6g} m, ringing until "
-            f"{self.decay_end_s:.6g} s{other}; --from/--to choose another"
+            f"window found: {self.start_s:.6g} s to {self.end_s:.6g} s, a free decay about "
+            f"the rest position {self.rest_m:.6g} m (largest excursion {self.excursion_m:.3g} "
+            f"m), ringing above the noise until {self.decay_end_s:.6g} s and at rest after "
+            f"it{other}; --from/--to choose another"
         )
 
 
