@@ -63,12 +63,16 @@ systems with Markovian switching coefficients", IEEE Trans. Automatic Control 33
 to Tracking and Navigation", Wiley 2001, section 11.6.6; the two-hypothesis weighing
 is Bayes' rule over the suspect sample and the next one.
 
-**Layout.** Inside a block the models' states are held with the model index last,
-``(4, r)`` per branch, and each covariance packed to its upper triangle, ``(10, r)`` (row
-``_U[a, b]``), so that the steps over the models are loops the compiler may vectorise; the
+**Layout.** Inside a block each branch is one flat buffer of rows of `LANES` values, one
+value per model: the states (rows 0-3), the covariances packed to their upper triangle
+(rows 4-13, entry (a, b) in row ``4 + _U[a, b]``) and the floor models' design
+covariances (rows 14-23); the step's scratch and its tables are laid out the same way.
+Every row then lies a constant distance from every other, so the compiler can prove that
+a loop over the models that writes some rows does not overlap the rows it reads, and
+vectorises it (with arrays of ``r`` models per row it could not, and would not). The
 caller's arrays keep ``(branches, r, 4)`` and ``(branches, r, 4, 4)`` and are converted on
 entry and written back on exit. Every sum runs in the order it had with the model index
-first, so the results are the same bit for bit.
+first, so the results are the same bit for bit. A bank has at most `LANES` models.
 
 Nothing here allocates per sample; every decision depends only on past samples, so a
 record fed in blocks of any size gives bit-identical results (the suspect branch is part
@@ -95,6 +99,7 @@ __all__ = [
     "FLAG_OUT_REJECTED_BEFORE",
     "FLAG_OUT_SUSPECT",
     "FLAG_OUT_UNUSED",
+    "LANES",
     "imm_block",
 ]
 
@@ -123,12 +128,26 @@ _LOG_BURST_GO_ON = math.log(0.1)  # log probability that an outlier is followed 
 _U = np.array([[0, 1, 2, 3], [1, 4, 5, 6], [2, 5, 7, 8], [3, 6, 8, 9]])
 _DIAG = np.array([0, 4, 7, 9])  # rows of (0, 0), (1, 1), (2, 2), (3, 3)
 _JIT = {"cache": True, "nogil": True, "error_model": "numpy"}
+#: lanes of a row: the most models a bank may have. A fixed stride puts every row at a
+#: constant distance from the others, so the compiler can prove that a loop over the
+#: models writing some rows does not overlap the rows it reads, and vectorise it.
+LANES = 32
+# a branch: its states (rows 0-3), covariances (4-13) and design covariances (14-23)
+_XO, _PO, _PDO = 0, 4 * LANES, 14 * LANES
+_BRANCH = 24 * LANES
+# the step's scratch: mixed states, covariances and design covariances, gains, the
+# predicted mode probabilities and the mixing sums
+_X0, _P0, _PD0, _K, _CBAR, _TOT = 0, 4 * LANES, 14 * LANES, 24 * LANES, 28 * LANES, 29 * LANES
+_SCRATCH = 30 * LANES
+# one step's tables: Φ (row 4a + b), Q and QD packed
+_PHI, _Q, _QD = 0, 16 * LANES, 26 * LANES
+_TABLE = 36 * LANES
 
 
 @numba.njit(**_JIT)
-def _interact_predict(it, phi, q, qd, PI, prune, floor, x, P, PD, mu, cbar, tot, W, x0, P0, PD0):
-    """Steps 1 and 2: mixed priors, then each model's prediction, in place in x, P (and
-    PD of the floor models).
+def _interact_predict(tt, PIt, prune, floor, B, mu, S, W):
+    """Steps 1 and 2: mixed priors, then each model's prediction, in place in the branch
+    ``B`` (states, covariances, and the design covariances of the floor models).
 
     A model whose probability is below its ``prune`` entry passes nothing on: each
     model's sources are the models kept and itself, summed in ascending order. The loops
@@ -136,111 +155,132 @@ def _interact_predict(it, phi, q, qd, PI, prune, floor, x, P, PD, mu, cbar, tot,
     """
     r = mu.shape[0]
     for j in range(r):
-        cbar[j] = 0.0
-        tot[j] = 0.0
+        S[_CBAR + j] = 0.0
+        S[_TOT + j] = 0.0
     for i in range(r):
         m = mu[i]
-        for j in range(r):
-            cbar[j] += PI[it, i, j] * m
         if mu[i] >= prune[i]:  # kept: a source of every model
             for j in range(r):
-                tot[j] += PI[it, i, j] * m
+                S[_CBAR + j] += PIt[i, j] * m
+                S[_TOT + j] += PIt[i, j] * m
         else:  # a source of itself only
-            tot[i] += PI[it, i, i] * m
+            for j in range(r):
+                S[_CBAR + j] += PIt[i, j] * m
+            S[_TOT + i] += PIt[i, i] * m
     for i in range(r):
         if mu[i] >= prune[i]:
             for j in range(r):
-                W[i, j] = PI[it, i, j] * mu[i] / tot[j]
+                W[i, j] = PIt[i, j] * mu[i] / S[_TOT + j]
         else:
-            W[i, i] = PI[it, i, i] * mu[i] / tot[i]
-    for a in range(4):
+            W[i, i] = PIt[i, i] * mu[i] / S[_TOT + i]
+    for u in range(14):  # the mixed states and covariances (design ones: floor models)
         for j in range(r):
-            x0[a, j] = 0.0
-    for u in range(10):
-        for j in range(r):
-            P0[u, j] = 0.0
+            S[u * LANES + j] = 0.0
     for i in range(r):
+        x0, x1, x2, x3 = B[i], B[LANES + i], B[2 * LANES + i], B[3 * LANES + i]
         if mu[i] >= prune[i]:
-            for a in range(4):
-                for j in range(r):
-                    x0[a, j] += W[i, j] * x[a, i]
+            for j in range(r):
+                w = W[i, j]
+                S[_X0 + j] += w * x0
+                S[_X0 + LANES + j] += w * x1
+                S[_X0 + 2 * LANES + j] += w * x2
+                S[_X0 + 3 * LANES + j] += w * x3
         else:
-            for a in range(4):
-                x0[a, i] += W[i, i] * x[a, i]
+            w = W[i, i]
+            S[_X0 + i] += w * x0
+            S[_X0 + LANES + i] += w * x1
+            S[_X0 + 2 * LANES + i] += w * x2
+            S[_X0 + 3 * LANES + i] += w * x3
     for i in range(r):
         if mu[i] >= prune[i]:
             for j in range(r):
-                _mix_term(W[i, j], x, P, i, x0, P0, j)
+                _mix_term(W[i, j], B, _PO, i, S, _P0, j)
         else:
-            _mix_term(W[i, i], x, P, i, x0, P0, i)
+            _mix_term(W[i, i], B, _PO, i, S, _P0, i)
     for j in range(r):
-        if tot[j] <= 0.0:  # every source pruned: the model keeps its own state
+        if S[_TOT + j] <= 0.0:  # every source pruned: the model keeps its own state
             for a in range(4):
-                x0[a, j] = x[a, j]
+                S[_X0 + a * LANES + j] = B[a * LANES + j]
             for u in range(10):
-                P0[u, j] = P[u, j]
+                S[_P0 + u * LANES + j] = B[_PO + u * LANES + j]
     for j in range(r):
         if floor[j]:
             # the gain's design covariance: the same mixture of the sources' design
             # covariances (a regular model's is its own)
-            for u in range(10):
-                PD0[u, j] = 0.0
-            if tot[j] <= 0.0:
+            if S[_TOT + j] <= 0.0:
                 for u in range(10):
-                    PD0[u, j] = PD[u, j]
+                    S[_PD0 + u * LANES + j] = B[_PDO + u * LANES + j]
             else:
+                for u in range(10):
+                    S[_PD0 + u * LANES + j] = 0.0
                 for i in range(r):
                     if i == j or mu[i] >= prune[i]:
-                        _mix_term(W[i, j], x, PD if floor[i] else P, i, x0, PD0, j)
+                        _mix_term(W[i, j], B, _PDO if floor[i] else _PO, i, S, _PD0, j)
     for j in range(r):
-        _predict_cov(it, j, phi, q, P0, P)
-        a0, a1, a2, a3 = x0[0, j], x0[1, j], x0[2, j], x0[3, j]
-        for a in range(4):
-            x[a, j] = (
-                0.0
-                + phi[it, 4 * a, j] * a0
-                + phi[it, 4 * a + 1, j] * a1
-                + phi[it, 4 * a + 2, j] * a2
-                + phi[it, 4 * a + 3, j] * a3
-            )
+        _predict_cov(tt, _Q, j, S, _P0, B, _PO)
+    for j in range(r):
+        a0, a1 = S[_X0 + j], S[_X0 + LANES + j]
+        a2, a3 = S[_X0 + 2 * LANES + j], S[_X0 + 3 * LANES + j]
+        L = LANES
+        B[j] = 0.0 + tt[j] * a0 + tt[L + j] * a1 + tt[2 * L + j] * a2 + tt[3 * L + j] * a3
+        B[L + j] = (
+            0.0 + tt[4 * L + j] * a0 + tt[5 * L + j] * a1 + tt[6 * L + j] * a2 + tt[7 * L + j] * a3
+        )
+        B[2 * L + j] = (
+            0.0
+            + tt[8 * L + j] * a0
+            + tt[9 * L + j] * a1
+            + tt[10 * L + j] * a2
+            + tt[11 * L + j] * a3
+        )
+        B[3 * L + j] = (
+            0.0
+            + tt[12 * L + j] * a0
+            + tt[13 * L + j] * a1
+            + tt[14 * L + j] * a2
+            + tt[15 * L + j] * a3
+        )
     for j in range(r):
         if floor[j]:
-            _predict_cov(it, j, phi, qd, PD0, PD)
+            _predict_cov(tt, _QD, j, S, _PD0, B, _PDO)
     for j in range(r):
-        mu[j] = cbar[j]
+        mu[j] = S[_CBAR + j]
 
 
 @numba.njit(inline="always", **_JIT)
-def _mix_term(wm, x, S, i, x0, P0, j):
-    """``P0[:, j] += wm (S_i + (x_i − x0_j)(x_i − x0_j)ᵀ)``, packed."""
-    d0 = x[0, i] - x0[0, j]
-    d1 = x[1, i] - x0[1, j]
-    d2 = x[2, i] - x0[2, j]
-    d3 = x[3, i] - x0[3, j]
-    P0[0, j] += wm * (S[0, i] + d0 * d0)
-    P0[1, j] += wm * (S[1, i] + d0 * d1)
-    P0[2, j] += wm * (S[2, i] + d0 * d2)
-    P0[3, j] += wm * (S[3, i] + d0 * d3)
-    P0[4, j] += wm * (S[4, i] + d1 * d1)
-    P0[5, j] += wm * (S[5, i] + d1 * d2)
-    P0[6, j] += wm * (S[6, i] + d1 * d3)
-    P0[7, j] += wm * (S[7, i] + d2 * d2)
-    P0[8, j] += wm * (S[8, i] + d2 * d3)
-    P0[9, j] += wm * (S[9, i] + d3 * d3)
+def _mix_term(wm, B, src, i, S, dst, j):
+    """``S[dst]_j += wm (B[src]_i + (x_i − x0_j)(x_i − x0_j)ᵀ)``, packed covariances at
+    row offsets ``src`` of the branch and ``dst`` of the scratch."""
+    d0 = B[i] - S[_X0 + j]
+    d1 = B[LANES + i] - S[_X0 + LANES + j]
+    d2 = B[2 * LANES + i] - S[_X0 + 2 * LANES + j]
+    d3 = B[3 * LANES + i] - S[_X0 + 3 * LANES + j]
+    S[dst + j] += wm * (B[src + i] + d0 * d0)
+    S[dst + LANES + j] += wm * (B[src + LANES + i] + d0 * d1)
+    S[dst + 2 * LANES + j] += wm * (B[src + 2 * LANES + i] + d0 * d2)
+    S[dst + 3 * LANES + j] += wm * (B[src + 3 * LANES + i] + d0 * d3)
+    S[dst + 4 * LANES + j] += wm * (B[src + 4 * LANES + i] + d1 * d1)
+    S[dst + 5 * LANES + j] += wm * (B[src + 5 * LANES + i] + d1 * d2)
+    S[dst + 6 * LANES + j] += wm * (B[src + 6 * LANES + i] + d1 * d3)
+    S[dst + 7 * LANES + j] += wm * (B[src + 7 * LANES + i] + d2 * d2)
+    S[dst + 8 * LANES + j] += wm * (B[src + 8 * LANES + i] + d2 * d3)
+    S[dst + 9 * LANES + j] += wm * (B[src + 9 * LANES + i] + d3 * d3)
 
 
 @numba.njit(inline="always", **_JIT)
-def _predict_cov(it, j, phi, q, P0, out):
-    """``out_j = Φ_j P0_j Φ_jᵀ + Q_j``, written out term by term (each sum in the
-    order of the matrix product). Φ's lower left block (the force does not depend on the
-    cell's state) and ``Φ[3, 2]`` (nor its rate on the force) are zero, `_check_structure`
-    makes sure, and their terms are left out: a third of the products."""
-    f00, f01, f02, f03 = phi[it, 0, j], phi[it, 1, j], phi[it, 2, j], phi[it, 3, j]
-    f10, f11, f12, f13 = phi[it, 4, j], phi[it, 5, j], phi[it, 6, j], phi[it, 7, j]
-    f22, f23, f33 = phi[it, 10, j], phi[it, 11, j], phi[it, 15, j]
-    p00, p01, p02, p03 = P0[0, j], P0[1, j], P0[2, j], P0[3, j]
-    p11, p12, p13 = P0[4, j], P0[5, j], P0[6, j]
-    p22, p23, p33 = P0[7, j], P0[8, j], P0[9, j]
+def _predict_cov(tt, q, j, S, src, B, dst):
+    """``B[dst]_j = Φ_j S[src]_j Φ_jᵀ + Q_j`` (``Q`` at row offset ``q`` of the step's
+    tables ``tt``), written out term by term (each sum in the order of the matrix
+    product). Φ's lower left block (the force does not depend on the cell's state) and
+    ``Φ[3, 2]`` (nor its rate on the force) are zero, `_check_structure` makes sure, and
+    their terms are left out: a third of the products."""
+    L = LANES
+    f00, f01, f02, f03 = tt[j], tt[L + j], tt[2 * L + j], tt[3 * L + j]
+    f10, f11, f12, f13 = tt[4 * L + j], tt[5 * L + j], tt[6 * L + j], tt[7 * L + j]
+    f22, f23, f33 = tt[10 * L + j], tt[11 * L + j], tt[15 * L + j]
+    p00, p01, p02, p03 = S[src + j], S[src + L + j], S[src + 2 * L + j], S[src + 3 * L + j]
+    p11, p12, p13 = S[src + 4 * L + j], S[src + 5 * L + j], S[src + 6 * L + j]
+    p22, p23, p33 = S[src + 7 * L + j], S[src + 8 * L + j], S[src + 9 * L + j]
     # T = Φ P0 (the rows and columns needed)
     t00 = f00 * p00 + f01 * p01 + f02 * p02 + f03 * p03
     t01 = f00 * p01 + f01 * p11 + f02 * p12 + f03 * p13
@@ -253,20 +293,20 @@ def _predict_cov(it, j, phi, q, P0, out):
     t22 = f22 * p22 + f23 * p23
     t23 = f22 * p23 + f23 * p33
     t33 = f33 * p33
-    out[0, j] = q[it, 0, j] + t00 * f00 + t01 * f01 + t02 * f02 + t03 * f03
-    out[1, j] = q[it, 1, j] + t00 * f10 + t01 * f11 + t02 * f12 + t03 * f13
-    out[4, j] = q[it, 4, j] + t10 * f10 + t11 * f11 + t12 * f12 + t13 * f13
-    out[2, j] = q[it, 2, j] + t02 * f22 + t03 * f23
-    out[5, j] = q[it, 5, j] + t12 * f22 + t13 * f23
-    out[7, j] = q[it, 7, j] + t22 * f22 + t23 * f23
-    out[3, j] = q[it, 3, j] + t03 * f33
-    out[6, j] = q[it, 6, j] + t13 * f33
-    out[8, j] = q[it, 8, j] + t23 * f33
-    out[9, j] = q[it, 9, j] + t33 * f33
+    B[dst + j] = tt[q + j] + t00 * f00 + t01 * f01 + t02 * f02 + t03 * f03
+    B[dst + L + j] = tt[q + L + j] + t00 * f10 + t01 * f11 + t02 * f12 + t03 * f13
+    B[dst + 4 * L + j] = tt[q + 4 * L + j] + t10 * f10 + t11 * f11 + t12 * f12 + t13 * f13
+    B[dst + 2 * L + j] = tt[q + 2 * L + j] + t02 * f22 + t03 * f23
+    B[dst + 5 * L + j] = tt[q + 5 * L + j] + t12 * f22 + t13 * f23
+    B[dst + 7 * L + j] = tt[q + 7 * L + j] + t22 * f22 + t23 * f23
+    B[dst + 3 * L + j] = tt[q + 3 * L + j] + t03 * f33
+    B[dst + 6 * L + j] = tt[q + 6 * L + j] + t13 * f33
+    B[dst + 8 * L + j] = tt[q + 8 * L + j] + t23 * f33
+    B[dst + 9 * L + j] = tt[q + 9 * L + j] + t33 * f33
 
 
 @numba.njit(**_JIT)
-def _weigh(z, R, x, P, mu, w):
+def _weigh(z, R, B, mu, w):
     """Each model's prior probability times its likelihood of ``z``, scaled by
     ``e^(−lmax)`` into ``w``; returns ``(lmax, Σ w)``.
 
@@ -276,8 +316,8 @@ def _weigh(z, R, x, P, mu, w):
     r = mu.shape[0]
     emax = -np.inf
     for j in range(r):
-        s_ = P[0, j] + R
-        y_ = z - x[0, j]
+        s_ = B[_PO + j] + R
+        y_ = z - B[j]
         w[j] = -0.5 * y_ * y_ / s_
         if mu[j] > 0.0 and w[j] > emax:  # a model ruled out must not set the scale
             emax = w[j]
@@ -289,84 +329,84 @@ def _weigh(z, R, x, P, mu, w):
         return _LOWEST_LOG_DENSITY, 1.0
     total = 0.0
     for j in range(r):
-        w[j] = mu[j] * math.exp(w[j] - emax) / math.sqrt(P[0, j] + R) if mu[j] > 0.0 else 0.0
+        w[j] = mu[j] * math.exp(w[j] - emax) / math.sqrt(B[_PO + j] + R) if mu[j] > 0.0 else 0.0
         total += w[j]
     return emax - 0.5 * _LOG_2PI, total
 
 
 @numba.njit(**_JIT)
-def _apply(z, R, floor, x, P, PD, mu, w, lmax, total, K):
+def _apply(z, R, floor, B, mu, w, lmax, total, S):
     """Steps 3 and 4 in place from the weights of `_weigh`; returns the log predictive
-    density of ``z``. A floor model takes its gain from its design covariance ``PD``
-    (updated as its own Kalman filter) and carries ``P`` through the same gain."""
+    density of ``z``. A floor model takes its gain from its design covariance (updated
+    as its own Kalman filter) and carries its covariance through the same gain."""
     r = mu.shape[0]
     for j in range(r):
         mu[j] = w[j] / total
     for j in range(r):
-        G = PD if floor[j] else P
-        s_ = G[0, j] + R
-        y_ = z - x[0, j]
+        fl = floor[j]
+        s_ = (B[_PDO + j] if fl else B[_PO + j]) + R
+        y_ = z - B[j]
+        for a in range(4):  # gain: column 0 of the covariance is its packed rows 0-3
+            g = B[_PDO + a * LANES + j] if fl else B[_PO + a * LANES + j]
+            S[_K + a * LANES + j] = g / s_
         for a in range(4):
-            K[a, j] = G[a, j] / s_  # gain (column 0 of G is its rows 0-3)
-        for a in range(4):
-            x[a, j] += K[a, j] * y_
+            B[a * LANES + j] += S[_K + a * LANES + j] * y_
     for j in range(r):
-        _joseph(j, P, R, K)
+        _joseph(j, B, _PO, R, S)
     for j in range(r):
         if floor[j]:
-            _joseph(j, PD, R, K)
+            _joseph(j, B, _PDO, R, S)
     return lmax + math.log(total)
 
 
 @numba.njit(inline="always", **_JIT)
-def _joseph(j, P, R, K):
-    """``P_j ← (I − K e1ᵀ) P_j (I − K e1ᵀ)ᵀ + K R Kᵀ``: right for any gain ``K``,
+def _joseph(j, B, at, R, S):
+    """``P_j ← (I − K e1ᵀ) P_j (I − K e1ᵀ)ᵀ + K R Kᵀ`` for the packed covariance at row
+    offset ``at`` of the branch and the gains in the scratch: right for any gain,
     symmetric and positive under rounding. ``T = P − K P[0, :]``; only the entries the
     packed result needs."""
-    k0, k1, k2, k3 = K[0, j], K[1, j], K[2, j], K[3, j]
-    p00, p01, p02, p03 = P[0, j], P[1, j], P[2, j], P[3, j]
+    L = LANES
+    k0, k1, k2, k3 = S[_K + j], S[_K + L + j], S[_K + 2 * L + j], S[_K + 3 * L + j]
+    p00, p01, p02, p03 = B[at + j], B[at + L + j], B[at + 2 * L + j], B[at + 3 * L + j]
     t00 = p00 - k0 * p00
     t01 = p01 - k0 * p01
     t02 = p02 - k0 * p02
     t03 = p03 - k0 * p03
     t10 = p01 - k1 * p00
-    t11 = P[4, j] - k1 * p01
-    t12 = P[5, j] - k1 * p02
-    t13 = P[6, j] - k1 * p03
+    t11 = B[at + 4 * L + j] - k1 * p01
+    t12 = B[at + 5 * L + j] - k1 * p02
+    t13 = B[at + 6 * L + j] - k1 * p03
     t20 = p02 - k2 * p00
-    t22 = P[7, j] - k2 * p02
-    t23 = P[8, j] - k2 * p03
+    t22 = B[at + 7 * L + j] - k2 * p02
+    t23 = B[at + 8 * L + j] - k2 * p03
     t30 = p03 - k3 * p00
-    t33 = P[9, j] - k3 * p03
-    P[0, j] = t00 - t00 * k0 + k0 * R * k0
-    P[1, j] = t01 - t00 * k1 + k0 * R * k1
-    P[2, j] = t02 - t00 * k2 + k0 * R * k2
-    P[3, j] = t03 - t00 * k3 + k0 * R * k3
-    P[4, j] = t11 - t10 * k1 + k1 * R * k1
-    P[5, j] = t12 - t10 * k2 + k1 * R * k2
-    P[6, j] = t13 - t10 * k3 + k1 * R * k3
-    P[7, j] = t22 - t20 * k2 + k2 * R * k2
-    P[8, j] = t23 - t20 * k3 + k2 * R * k3
-    P[9, j] = t33 - t30 * k3 + k3 * R * k3
+    t33 = B[at + 9 * L + j] - k3 * p03
+    B[at + j] = t00 - t00 * k0 + k0 * R * k0
+    B[at + L + j] = t01 - t00 * k1 + k0 * R * k1
+    B[at + 2 * L + j] = t02 - t00 * k2 + k0 * R * k2
+    B[at + 3 * L + j] = t03 - t00 * k3 + k0 * R * k3
+    B[at + 4 * L + j] = t11 - t10 * k1 + k1 * R * k1
+    B[at + 5 * L + j] = t12 - t10 * k2 + k1 * R * k2
+    B[at + 6 * L + j] = t13 - t10 * k3 + k1 * R * k3
+    B[at + 7 * L + j] = t22 - t20 * k2 + k2 * R * k2
+    B[at + 8 * L + j] = t23 - t20 * k3 + k2 * R * k3
+    B[at + 9 * L + j] = t33 - t30 * k3 + k3 * R * k3
 
 
 @numba.njit(inline="always", **_JIT)
-def _update(z, R, floor, x, P, PD, mu, w, K):
+def _update(z, R, floor, B, mu, w, S):
     """Steps 3 and 4 in place; returns the log predictive density of ``z``."""
-    lmax, total = _weigh(z, R, x, P, mu, w)
-    return _apply(z, R, floor, x, P, PD, mu, w, lmax, total, K)
+    lmax, total = _weigh(z, R, B, mu, w)
+    return _apply(z, R, floor, B, mu, w, lmax, total, S)
 
 
 @numba.njit(inline="always", **_JIT)
-def _copy_branch(x, P, PD, mu, to_x, to_P, to_PD, to_mu):
+def _copy_branch(B, mu, to_B, to_mu):
     """One branch's states, covariances and probabilities into another's arrays."""
     for j in range(mu.shape[0]):
         to_mu[j] = mu[j]
-        for a in range(4):
-            to_x[a, j] = x[a, j]
-        for u in range(10):
-            to_P[u, j] = P[u, j]
-            to_PD[u, j] = PD[u, j]
+    for u in range(_BRANCH):
+        to_B[u] = B[u]
 
 
 @numba.njit(inline="always", **_JIT)
@@ -409,11 +449,11 @@ def _outlier_log_density(y, s2, tail):
 
 
 @numba.njit(inline="always", **_JIT)
-def _resolve(la, lb, pend, floor, x, P, PD, mu):
+def _resolve(la, lb, pend, floor, B, mu):
     """Decide the pending suspect from the log weights of its branches ("used", "an
     outlier"); merge them into branch 0; True when it was judged an outlier."""
     wa = _decided(1.0 / (1.0 + math.exp(lb - la)))
-    _merge(wa, floor, x[0], P[0], PD[0], mu[0], x[1], P[1], PD[1], mu[1])
+    _merge(wa, floor, B[0], mu[0], B[1], mu[1])
     pend[0] = 0.0
     pend[7] = 0.0
     pend[3] = 1.0 if wa >= 0.5 else 0.0  # a change confirmed under way
@@ -428,7 +468,7 @@ def _odds_open(la, lb):
 
 
 @numba.njit(**_JIT)
-def _merge(wa, floor, xa, Pa, PDa, mua, xb, Pb, PDb, mub):
+def _merge(wa, floor, Ba, mua, Bb, mub):
     """Per-model moment matching of branch a (weight wa) and b (1 − wa), into a."""
     r = mua.shape[0]
     wb = 1.0 - wa
@@ -440,24 +480,26 @@ def _merge(wa, floor, xa, Pa, PDa, mua, xb, Pb, PDb, mub):
             continue
         fa = pa / m
         fb = pb / m
-        _merge_cov(j, fa, fb, xa, Pa, xb, Pb)
+        _merge_cov(j, fa, fb, Ba, Bb, _PO)
         if floor[j]:
-            _merge_cov(j, fa, fb, xa, PDa, xb, PDb)
+            _merge_cov(j, fa, fb, Ba, Bb, _PDO)
         for a in range(4):
-            xa[a, j] = fa * xa[a, j] + fb * xb[a, j]
+            Ba[a * LANES + j] = fa * Ba[a * LANES + j] + fb * Bb[a * LANES + j]
         mua[j] = m
 
 
 @numba.njit(inline="always", **_JIT)
-def _merge_cov(j, fa, fb, xa, Pa, xb, Pb):
-    """``Pa_j`` ← the covariance of the two-component mixture (weights fa, fb)."""
+def _merge_cov(j, fa, fb, Ba, Bb, at):
+    """Model ``j``'s covariance at row offset ``at`` of branch a ← the covariance of the
+    two-component mixture (weights fa, fb)."""
+    L = LANES
     for a in range(4):
-        xm = fa * xa[a, j] + fb * xb[a, j]
+        xm = fa * Ba[a * L + j] + fb * Bb[a * L + j]
         for b in range(a, 4):
-            xmb = fa * xa[b, j] + fb * xb[b, j]
-            u = _U[a, b]
-            Pa[u, j] = fa * (Pa[u, j] + (xa[a, j] - xm) * (xa[b, j] - xmb)) + fb * (
-                Pb[u, j] + (xb[a, j] - xm) * (xb[b, j] - xmb)
+            xmb = fa * Ba[b * L + j] + fb * Bb[b * L + j]
+            u = at + _U[a, b] * L + j
+            Ba[u] = fa * (Ba[u] + (Ba[a * L + j] - xm) * (Ba[b * L + j] - xmb)) + fb * (
+                Bb[u] + (Bb[a * L + j] - xm) * (Bb[b * L + j] - xmb)
             )
 
 
@@ -488,7 +530,7 @@ def _drop_tail(ca, cb, budget):
 
 
 @numba.njit(**_JIT)
-def _combine(k, wa, xa, Pa, mua, xb, Pb, mub, prune, tail, ca, cb, keep, out_x, out_var):
+def _combine(k, wa, Ba, mua, Bb, mub, prune, tail, ca, cb, keep, out_x, out_var):
     """Mean and variance (per component) of the two-branch, r-model mixture.
 
     Models below their ``prune`` entry are left out, then the least probable of the
@@ -517,15 +559,15 @@ def _combine(k, wa, xa, Pa, mua, xb, Pb, mub, prune, tail, ca, cb, keep, out_x, 
         s = 0.0
         for i in range(n):
             j = keep[i]
-            s += ca[j] * xa[a, j] + cb[j] * xb[a, j]
+            s += ca[j] * Ba[a * LANES + j] + cb[j] * Bb[a * LANES + j]
         out_x[k, a] = s
     for a in range(4):
         s = 0.0
         m = out_x[k, a]
         for i in range(n):
             j = keep[i]
-            s += ca[j] * (Pa[_DIAG[a], j] + (xa[a, j] - m) ** 2)
-            s += cb[j] * (Pb[_DIAG[a], j] + (xb[a, j] - m) ** 2)
+            s += ca[j] * (Ba[_PO + _DIAG[a] * LANES + j] + (Ba[a * LANES + j] - m) ** 2)
+            s += cb[j] * (Bb[_PO + _DIAG[a] * LANES + j] + (Bb[a * LANES + j] - m) ** 2)
         out_var[k, a] = s
 
 
@@ -544,7 +586,7 @@ def _reach_other(k, out_x, out_var, other_x, other_var):
 
 
 @numba.njit(inline="always", **_JIT)
-def _add_lag(xa, mua, jump, floor, k, out_var):
+def _add_lag(Ba, mua, jump, floor, k, out_var):
     """The lag of the prior in the force's variance (row ``k``): when a rate model other
     than the fastest leads the mixture, the load may be moving faster than it assumes, and
     the next faster rate model's force ``Δ`` away says by how much it may lag. For a
@@ -558,12 +600,12 @@ def _add_lag(xa, mua, jump, floor, k, out_var):
         if mua[j] > mua[jd]:
             jd = j
     if 1 <= jd < jump - 1:
-        lag = xa[2, jd + 1] - xa[2, jd]
+        lag = Ba[2 * LANES + jd + 1] - Ba[2 * LANES + jd]
         out_var[k, 2] += lag * lag / (3.0 if floor[jd] else 12.0)
 
 
 @numba.njit(inline="always", **_JIT)
-def _predicted(R, prune, x, P, mu):
+def _predicted(R, prune, B, mu):
     """The branch's prediction of the measurement: the mixture's mean and variance (models
     below ``prune`` left out, as in the reported mixture) and the most probable model."""
     r = mu.shape[0]
@@ -575,18 +617,18 @@ def _predicted(R, prune, x, P, mu):
     wsum = 0.0
     for j in range(r):
         if mu[j] >= prune[j] or j == jbest:
-            zhat += mu[j] * x[0, j]
+            zhat += mu[j] * B[j]
             wsum += mu[j]
     zhat /= wsum
     smix = 0.0
     for j in range(r):
         if mu[j] >= prune[j] or j == jbest:
-            smix += mu[j] * (P[0, j] + R + (x[0, j] - zhat) ** 2)
+            smix += mu[j] * (B[_PO + j] + R + (B[j] - zhat) ** 2)
     return zhat, smix / wsum, jbest
 
 
 @numba.njit(inline="always", **_JIT)
-def _suspect_weighed(z, R, gate2, jump, jump_end, x, P, jbest, lw, lmax, total, lout, far):
+def _suspect_weighed(z, R, gate2, jump, jump_end, B, jbest, lw, lmax, total, lout, far):
     """Is ``z`` suspect for the branch whose weights `_weigh` left in ``lw`` (``lmax``,
     ``total`` as it returned them; ``lout`` the log of ``ε`` times the outlier density of
     ``z``, `_outlier_log_density`, computed only when ``far``: beyond the gate in noise σ
@@ -598,8 +640,8 @@ def _suspect_weighed(z, R, gate2, jump, jump_end, x, P, jbest, lw, lmax, total, 
     a model predicts the reading with a spread of ten noise σ or more, and a 50σ spike stays
     inside its gate; with a tight prediction the gate decides as before (the odds alone made
     the first sample of slow-starting steps suspect, a few σ out, and delayed their rows)."""
-    y = z - x[0, jbest]
-    if y * y > gate2 * (P[0, jbest] + R):
+    y = z - B[jbest]
+    if y * y > gate2 * (B[_PO + jbest] + R):
         return True
     if far and lout - lmax - math.log(total) > _LOG_OUTLIER_SUSPECT_ODDS:
         return True
@@ -612,7 +654,7 @@ def _suspect_weighed(z, R, gate2, jump, jump_end, x, P, jbest, lw, lmax, total, 
 
 
 @numba.njit(**_JIT)
-def _burst_goes_on(z, R, gate2, la, lb, outlier_sd, outlier_tail, prune, xb, Pb, mub, lw):
+def _burst_goes_on(z, R, gate2, la, lb, outlier_sd, outlier_tail, prune, Bb, mub, lw):
     """Hold ``z`` as the next sample of a burst? Returns the log weight it adds to the
     "outliers" branch if so, NaN if not. Held when ``z`` is beyond the gate of that
     branch's most probable model and "all used" (log weight ``la`` with ``z``) is not
@@ -621,13 +663,13 @@ def _burst_goes_on(z, R, gate2, la, lb, outlier_sd, outlier_tail, prune, xb, Pb,
     change that has just started keeps moving away from that branch's prediction, but "all
     used" explains it at once; without the second condition a spike soon after the start
     of a change was held with the change's first samples and used with them."""
-    zb, sb, jb = _predicted(R, prune, xb, Pb, mub)
-    yb = z - xb[0, jb]
-    if yb * yb <= gate2 * (Pb[0, jb] + R):
+    zb, sb, jb = _predicted(R, prune, Bb, mub)
+    yb = z - Bb[jb]
+    if yb * yb <= gate2 * (Bb[_PO + jb] + R):
         return math.nan
     so2 = outlier_sd * outlier_sd + sb
     added = _LOG_BURST_GO_ON + _outlier_log_density(z - zb, so2, outlier_tail)
-    lmax, total = _weigh(z, R, xb, Pb, mub, lw)
+    lmax, total = _weigh(z, R, Bb, mub, lw)
     used_after = lb + lmax + math.log(total)
     wa = 1.0 / (1.0 + math.exp(_logaddexp(lb + added, used_after) - la))
     return added if wa < 1.0 - _DECIDED else math.nan
@@ -682,16 +724,13 @@ def imm_block(
     r = mu.shape[1]
     keep_log = log_x.shape[0] > 0
     keep_before = x.shape[0] > 2  # a third slot: the prediction before the last sample
-    phi, q, qd = _packed_tables(PHI, Q, QD)
+    if r > LANES:
+        raise ValueError("imm_block: a bank has at most 32 models (LANES)")
+    T = _packed_tables(PHI, Q, QD)
     # the branches in the kernel's layout (model index last), written back at the end
-    X, PV, PDV = _packed_state(x, P, PD)
-    x0 = np.empty((4, r))
-    P0 = np.empty((10, r))
-    PD0 = np.empty((10, r))
-    cbar = np.empty(r)
-    tot = np.empty(r)
+    B = _packed_state(x, P, PD)
+    S = np.zeros(_SCRATCH)
     W = np.empty((r, r))
-    K = np.empty((4, r))
     lj = np.empty(r)
     lw = np.empty(r)
     ca = np.empty(r)
@@ -699,8 +738,8 @@ def imm_block(
     keep = np.empty(r, np.int64)
     other_x = np.empty((1, 4))
     other_var = np.empty((1, 4))
-    xa, Pa, PDa, mua = X[0], PV[0], PDV[0], mu[0]
-    xb, Pb, PDb, mub = X[1], PV[1], PDV[1], mu[1]
+    Ba, mua = B[0], mu[0]
+    Bb, mub = B[1], mu[1]
     log_eps = math.log(outlier_prob)
     log_1m_eps = math.log1p(-outlier_prob)
     rejected = 0
@@ -713,44 +752,38 @@ def imm_block(
         hindsight = keep_before and pend[4] != 0.0
         if keep_before:
             pend[4] = 0.0
-        _interact_predict(
-            it, phi, q, qd, PI, prune, floor, xa, Pa, PDa, mua, cbar, tot, W, x0, P0, PD0
-        )
+        _interact_predict(T[it], PI[it], prune, floor, Ba, mua, S, W)
         if pending:
-            _interact_predict(
-                it, phi, q, qd, PI, prune, floor, xb, Pb, PDb, mub, cbar, tot, W, x0, P0, PD0
-            )
+            _interact_predict(T[it], PI[it], prune, floor, Bb, mub, S, W)
         # prediction of the measurement (branch "used": the suspect is undecided)
-        zhat, smix, jbest = _predicted(R, prune, xa, Pa, mua)
+        zhat, smix, jbest = _predicted(R, prune, Ba, mua)
         # the innovation and its variance under the most probable model: χ²(1) when
         # that model is right (the mixture's own variance includes the spread of the
         # improbable models and would make the NIS too small)
-        out_y[k] = zk - xa[0, jbest]
-        out_s[k] = Pa[0, jbest] + R
+        out_y[k] = zk - Ba[jbest]
+        out_s[k] = Ba[_PO + jbest] + R
         if math.isnan(zk):
             flag |= FLAG_OUT_UNUSED
             out_ll[k] = 0.0
             # nothing to decide a pending suspect with: weigh by the suspects alone
             held = int(pend[0])
-            if pending and _resolve(
-                log_1m_eps + pend[1], log_eps + pend[2], pend, floor, x, P, PD, mu
-            ):
+            if pending and _resolve(log_1m_eps + pend[1], log_eps + pend[2], pend, floor, B, mu):
                 rejected += held
                 flag |= FLAG_OUT_REJECTED_BEFORE
         else:
             if pending:
                 before = _logaddexp(log_1m_eps + pend[1], log_eps + pend[2])
-                lmax, total = _weigh(zk, R, xa, Pa, mua, lj)
+                lmax, total = _weigh(zk, R, Ba, mua, lj)
                 added = math.nan
                 if pend[0] < _BURST_MAX and pend[7] == 0.0:
                     added = _burst_goes_on(
                         zk, R, gate2, log_1m_eps + pend[1] + lmax + math.log(total),
-                        log_eps + pend[2], outlier_sd, outlier_tail, prune, xb, Pb, mub, lw,
+                        log_eps + pend[2], outlier_sd, outlier_tail, prune, Bb, mub, lw,
                     )  # fmt: skip
                 if not math.isnan(added):
                     # both branches go on: "used" takes the sample, "outliers" holds it
                     # as the next of a burst; a sample that comes back decides
-                    pend[1] += _apply(zk, R, floor, xa, Pa, PDa, mua, lj, lmax, total, K)
+                    pend[1] += _apply(zk, R, floor, Ba, mua, lj, lmax, total, S)
                     pend[2] += added
                     pend[0] += 1.0
                     flag |= FLAG_OUT_SUSPECT
@@ -760,8 +793,8 @@ def imm_block(
                     # since the first; their joint log density, less what the held rows
                     # entered, is this row's share of the likelihood
                     la = log_1m_eps + pend[1]
-                    la += _apply(zk, R, floor, xa, Pa, PDa, mua, lj, lmax, total, K)
-                    lb = log_eps + pend[2] + _update(zk, R, floor, xb, Pb, PDb, mub, lj, K)
+                    la += _apply(zk, R, floor, Ba, mua, lj, lmax, total, S)
+                    lb = log_eps + pend[2] + _update(zk, R, floor, Bb, mub, lj, S)
                     out_ll[k] = _logaddexp(la, lb) - before
                     held = int(pend[0])
                     if pend[7] < _DEFER_MAX and _odds_open(la, lb):
@@ -770,11 +803,11 @@ def imm_block(
                         pend[2] = lb - log_eps
                         pend[7] += 1.0
                         flag |= FLAG_OUT_DEFERRED
-                    elif _resolve(la, lb, pend, floor, X, PV, PDV, mu):
+                    elif _resolve(la, lb, pend, floor, B, mu):
                         rejected += held
                         flag |= FLAG_OUT_REJECTED_BEFORE
             else:
-                lmax, total = _weigh(zk, R, xa, Pa, mua, lj)
+                lmax, total = _weigh(zk, R, Ba, mua, lj)
                 so2 = outlier_sd * outlier_sd + smix
                 # beyond the gate in noise σ: only there do the outlier's odds count
                 # (on a held load almost no sample is, and the logarithms are spared)
@@ -782,7 +815,7 @@ def imm_block(
                 lout = _outlier_log_density(zk - zhat, so2, outlier_tail) if far else math.nan
                 taken_back = False
                 suspect = _suspect_weighed(
-                    zk, R, gate2, jump, jump_end, xa, Pa, jbest, lj, lmax + log_1m_eps, total,
+                    zk, R, gate2, jump, jump_end, Ba, jbest, lj, lmax + log_1m_eps, total,
                     log_eps + lout, far,
                 )  # fmt: skip
                 if suspect and not far:
@@ -790,12 +823,11 @@ def imm_block(
                 if suspect and hindsight:
                     # was the sample before this one the outlier? ("before": that sample
                     # left out, this one used, from the prediction kept before it)
-                    _copy_branch(X[2], PV[2], PDV[2], mu[2], xb, Pb, PDb, mub)
+                    _copy_branch(B[2], mu[2], Bb, mub)
                     _interact_predict(
-                        it, phi, q, qd, PI, prune, floor, xb, Pb, PDb, mub, cbar, tot, W, x0, P0,
-                        PD0,
+                        T[it], PI[it], prune, floor, Bb, mub, S, W,
                     )  # fmt: skip
-                    lmax2, total2 = _weigh(zk, R, xb, Pb, mub, lw)
+                    lmax2, total2 = _weigh(zk, R, Bb, mub, lw)
                     l_before = log_eps + pend[6] + lmax2 + math.log(total2)
                     l_both = log_1m_eps + pend[5] + lmax + math.log(total)
                     l_this = log_1m_eps + pend[5] + log_eps + lout
@@ -803,12 +835,12 @@ def imm_block(
                         # the likeliest reading: both samples used, merged by their odds
                         # (hard beyond 19 to 1, as a suspect's decision)
                         wb = _decided(1.0 / (1.0 + math.exp(l_both - l_before)))
-                        _apply(zk, R, floor, xb, Pb, PDb, mub, lw, lmax2, total2, K)
+                        _apply(zk, R, floor, Bb, mub, lw, lmax2, total2, S)
                         if wb < 1.0:
-                            _apply(zk, R, floor, xa, Pa, PDa, mua, lj, lmax, total, K)
-                            _merge(1.0 - wb, floor, xa, Pa, PDa, mua, xb, Pb, PDb, mub)
+                            _apply(zk, R, floor, Ba, mua, lj, lmax, total, S)
+                            _merge(1.0 - wb, floor, Ba, mua, Bb, mub)
                         else:
-                            _copy_branch(xb, Pb, PDb, mub, xa, Pa, PDa, mua)
+                            _copy_branch(Bb, mub, Ba, mua)
                         out_ll[k] = _logaddexp(l_before, l_both) - pend[5]
                         flag |= FLAG_OUT_REJECTED_BEFORE
                         rejected += 1
@@ -817,9 +849,9 @@ def imm_block(
                         suspect = False
                 if suspect:
                     # suspect: keep the prediction as the "outlier" branch, then update
-                    _copy_branch(xa, Pa, PDa, mua, xb, Pb, PDb, mub)
+                    _copy_branch(Ba, mua, Bb, mub)
                     pend[2] = lout
-                    pend[1] = _apply(zk, R, floor, xa, Pa, PDa, mua, lj, lmax, total, K)
+                    pend[1] = _apply(zk, R, floor, Ba, mua, lj, lmax, total, S)
                     pend[0] = 1.0
                     flag |= FLAG_OUT_SUSPECT
                     out_ll[k] = _logaddexp(log_1m_eps + pend[1], log_eps + pend[2])
@@ -828,10 +860,10 @@ def imm_block(
                     if kept:
                         # far enough out to be a spike its prediction could not tell: keep
                         # that prediction, for the next sample to weigh it in hindsight
-                        _copy_branch(xa, Pa, PDa, mua, X[2], PV[2], PDV[2], mu[2])
+                        _copy_branch(Ba, mua, B[2], mu[2])
                         pend[4] = 1.0
                         pend[6] = lout
-                    out_ll[k] = _apply(zk, R, floor, xa, Pa, PDa, mua, lj, lmax, total, K)
+                    out_ll[k] = _apply(zk, R, floor, Ba, mua, lj, lmax, total, S)
                     if kept:
                         pend[5] = out_ll[k]  # its log density used
                     pend[3] = 0.0
@@ -843,78 +875,74 @@ def imm_block(
             wa = 1.0 / (1.0 + math.exp(log_eps + pend[2] - log_1m_eps - pend[1]))
             shown_used = pend[3] != 0.0 or wa >= _SHOW_USED
             _combine(
-                k, wa if shown_used else 0.0, xa, Pa, mua, xb, Pb, mub, prune, tail, ca, cb,
+                k, wa if shown_used else 0.0, Ba, mua, Bb, mub, prune, tail, ca, cb,
                 keep, out_x, out_var,
             )  # fmt: skip
             _combine(
-                0, 0.0 if shown_used else 1.0, xa, Pa, mua, xb, Pb, mub, prune, tail, ca, cb,
+                0, 0.0 if shown_used else 1.0, Ba, mua, Bb, mub, prune, tail, ca, cb,
                 keep, other_x, other_var,
             )  # fmt: skip
             _reach_other(k, out_x, out_var, other_x, other_var)
         else:
-            _combine(k, 1.0, xa, Pa, mua, xb, Pb, mub, prune, tail, ca, cb, keep, out_x, out_var)
+            _combine(k, 1.0, Ba, mua, Bb, mub, prune, tail, ca, cb, keep, out_x, out_var)
         if jump > 1:
-            _add_lag(xa, mua, jump, floor, k, out_var)
+            _add_lag(Ba, mua, jump, floor, k, out_var)
         out_flag[k] = flag
         for j in range(r):
             out_mu[k, j] = mua[j]
         if keep_log:
             for j in range(r):
                 for a in range(4):
-                    log_x[k, j, a] = xa[a, j]
+                    log_x[k, j, a] = Ba[a * LANES + j]
                     for b in range(4):
-                        log_P[k, j, a, b] = Pa[_U[a, b], j]
-    _unpacked_state(X, PV, PDV, x, P, PD)
+                        log_P[k, j, a, b] = Ba[_PO + _U[a, b] * LANES + j]
+    _unpacked_state(B, x, P, PD)
     return rejected
 
 
 @numba.njit(**_JIT)
 def _packed_tables(PHI, Q, QD):
-    """The model tables in the kernel's layout, model index last: ``Φ`` as ``(nt, 16, r)``
-    (row ``4a + b``), ``Q`` and ``QD`` packed as ``(nt, 10, r)`` (row ``_U[a, b]``)."""
+    """The model tables in the kernel's layout, one row of `LANES` per entry: per step
+    ``Φ`` (row ``4a + b``), then ``Q`` and ``QD`` packed (row ``_U[a, b]``)."""
     nt, r = PHI.shape[0], PHI.shape[1]
-    phi = np.empty((nt, 16, r))
-    q = np.empty((nt, 10, r))
-    qd = np.empty((nt, 10, r))
+    T = np.zeros((nt, _TABLE))
     for t in range(nt):
         for j in range(r):
             for a in range(4):
                 for b in range(4):
-                    phi[t, 4 * a + b, j] = PHI[t, j, a, b]
+                    T[t, _PHI + (4 * a + b) * LANES + j] = PHI[t, j, a, b]
                     if b >= a:
-                        q[t, _U[a, b], j] = Q[t, j, a, b]
-                        qd[t, _U[a, b], j] = QD[t, j, a, b]
-    return phi, q, qd
+                        T[t, _Q + _U[a, b] * LANES + j] = Q[t, j, a, b]
+                        T[t, _QD + _U[a, b] * LANES + j] = QD[t, j, a, b]
+    return T
 
 
 @numba.njit(**_JIT)
 def _packed_state(x, P, PD):
     """The branches' states ``(nb, r, 4)`` and covariances ``(nb, r, 4, 4)`` in the
-    kernel's layout: ``(nb, 4, r)`` and packed ``(nb, 10, r)``."""
+    kernel's layout: one buffer of `_BRANCH` per branch (see the module notes)."""
     nb, r = x.shape[0], x.shape[1]
-    X = np.empty((nb, 4, r))
-    PV = np.empty((nb, 10, r))
-    PDV = np.empty((nb, 10, r))
+    B = np.zeros((nb, _BRANCH))
     for c in range(nb):
         for j in range(r):
             for a in range(4):
-                X[c, a, j] = x[c, j, a]
+                B[c, _XO + a * LANES + j] = x[c, j, a]
                 for b in range(a, 4):
-                    PV[c, _U[a, b], j] = P[c, j, a, b]
-                    PDV[c, _U[a, b], j] = PD[c, j, a, b]
-    return X, PV, PDV
+                    B[c, _PO + _U[a, b] * LANES + j] = P[c, j, a, b]
+                    B[c, _PDO + _U[a, b] * LANES + j] = PD[c, j, a, b]
+    return B
 
 
 @numba.njit(**_JIT)
-def _unpacked_state(X, PV, PDV, x, P, PD):
+def _unpacked_state(B, x, P, PD):
     """`_packed_state` undone, into the caller's arrays (both triangles written)."""
     for c in range(x.shape[0]):
         for j in range(x.shape[1]):
             for a in range(4):
-                x[c, j, a] = X[c, a, j]
+                x[c, j, a] = B[c, _XO + a * LANES + j]
                 for b in range(4):
-                    P[c, j, a, b] = PV[c, _U[a, b], j]
-                    PD[c, j, a, b] = PDV[c, _U[a, b], j]
+                    P[c, j, a, b] = B[c, _PO + _U[a, b] * LANES + j]
+                    PD[c, j, a, b] = B[c, _PDO + _U[a, b] * LANES + j]
 
 
 @numba.njit(**_JIT)

@@ -55,6 +55,7 @@ from estimator.mm_kernel import (
     FLAG_OUT_REJECTED_BEFORE,
     FLAG_OUT_SUSPECT,
     FLAG_OUT_UNUSED,
+    LANES,
     imm_block,
 )
 from estimator.plant import Plant
@@ -342,6 +343,11 @@ class ForceObserver:
             dt_s=self.dt_s,
             noise_sd_m=math.sqrt(self.R),
         )
+        if self.models.count > LANES:
+            raise ParameterError(
+                f"the force model bank has {self.models.count} models; the kernel takes at "
+                f"most {LANES} (fewer rate models: ForceModels.for_cell(rates=...))"
+            )
         self._families = self.models.families
         # the jump model is broad: below `jump_prune` it passes nothing on (see ObserverTuning)
         self._prune = np.where(
