@@ -84,7 +84,7 @@ would leave stale machine code running after an edit (DEVELOPERS.md, Conventions
 six largest helpers (`_interact_predict`, `_weigh`, `_apply`, `_merge`, `_combine`,
 `_burst_goes_on`) are compiled as functions of their own, not inlined at each of their
 calls: inlined, the kernel took 72 s to compile from a cold cache (the first session after
-an install) for a speed within 2 % of the same; now 18 s (2026-12-06).
+an install) for a speed within 2 % of the same; now 12 s (2026-12-06).
 """
 
 from __future__ import annotations
