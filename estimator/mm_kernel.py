@@ -550,11 +550,12 @@ def _combine(k, wa, Ba, mua, Bb, mub, prune, tail, ca, cb, keep, out_x, out_var)
     # only the models kept take part (a zero weight adds exactly nothing)
     n = 0
     for j in range(r):
-        ca[j] /= tot
-        cb[j] /= tot
-        if ca[j] != 0.0 or cb[j] != 0.0:
-            keep[n] = j
-            n += 1
+        if ca[j] != 0.0 or cb[j] != 0.0:  # (zero over tot stays zero: no division)
+            ca[j] /= tot
+            cb[j] /= tot
+            if ca[j] != 0.0 or cb[j] != 0.0:
+                keep[n] = j
+                n += 1
     for a in range(4):
         s = 0.0
         for i in range(n):
