@@ -221,30 +221,24 @@ def _interact_predict(tt, PIt, prune, floor, B, mu, S, W):
     for j in range(r):
         a0, a1 = S[_X0 + j], S[_X0 + LANES + j]
         a2, a3 = S[_X0 + 2 * LANES + j], S[_X0 + 3 * LANES + j]
-        L = LANES
-        B[j] = 0.0 + tt[j] * a0 + tt[L + j] * a1 + tt[2 * L + j] * a2 + tt[3 * L + j] * a3
-        B[L + j] = (
-            0.0 + tt[4 * L + j] * a0 + tt[5 * L + j] * a1 + tt[6 * L + j] * a2 + tt[7 * L + j] * a3
-        )
-        B[2 * L + j] = (
-            0.0
-            + tt[8 * L + j] * a0
-            + tt[9 * L + j] * a1
-            + tt[10 * L + j] * a2
-            + tt[11 * L + j] * a3
-        )
-        B[3 * L + j] = (
-            0.0
-            + tt[12 * L + j] * a0
-            + tt[13 * L + j] * a1
-            + tt[14 * L + j] * a2
-            + tt[15 * L + j] * a3
-        )
+        # written out, not looped over the rows: constant offsets, a vectorised loop
+        B[j] = _phi_row(tt, 0, j, a0, a1, a2, a3)
+        B[LANES + j] = _phi_row(tt, 1, j, a0, a1, a2, a3)
+        B[2 * LANES + j] = _phi_row(tt, 2, j, a0, a1, a2, a3)
+        B[3 * LANES + j] = _phi_row(tt, 3, j, a0, a1, a2, a3)
     for j in range(r):
         if floor[j]:
             _predict_cov(tt, _QD, j, S, _PD0, B, _PDO)
     for j in range(r):
         mu[j] = S[_CBAR + j]
+
+
+@numba.njit(inline="always", **_JIT)
+def _phi_row(tt, a, j, x0, x1, x2, x3):
+    """Row ``a`` of model ``j``'s ``Φ`` (the step's tables ``tt``) times ``(x0, x1, x2,
+    x3)``, summed from 0.0 in column order."""
+    o = _PHI + 4 * a * LANES + j
+    return 0.0 + tt[o] * x0 + tt[o + LANES] * x1 + tt[o + 2 * LANES] * x2 + tt[o + 3 * LANES] * x3
 
 
 @numba.njit(inline="always", **_JIT)
