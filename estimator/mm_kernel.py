@@ -14,48 +14,22 @@ Bar-Shalom:
    likelihood ``Λ_j = N(y_j; 0, S_j)``;
 4. mode probabilities ``μ_j ∝ c̄_j Λ_j``, computed in logarithms so none underflows.
 
-**Outliers, decided by the next sample.** A single sample cannot tell an isolated
-outlier from the first sample of a sudden load change: both are a large innovation. The
-next sample can: after a load change the data keep moving, after an outlier they come
-back. So a sample whose innovation is beyond ``gate`` standard deviations of the most
-probable model, or that on its own would give the force-jump models more than
-``_JUMP_SUSPECT`` of the probability (at high sample rates one sample of a jump is barely
-above the noise, so a single noisy sample can do that; a kink model, whose first sample
-looks like no change, does not count), is held as *suspect*: two branches are kept,
-"used" (the IMM step above) and "outlier" (prediction only). The next sample runs the
-IMM step from both, and the branches are weighed by everything they predicted — prior
-probability ``ε`` of an outlier, the density of the suspect sample under each hypothesis
-(`_outlier_log_density`: an outlier is spread about the prediction with scale
-``outlier_sd``, Gaussian in its core with a Cauchy share ``outlier_tail``), the density
-of the next sample — and merged per model by moment matching. An isolated outlier is
-thus rejected, and a load change loses none of its samples. The row of a suspect sample
-shows both branches merged with the weights known then; its flag says so. A sample beyond
-``gate`` noise σ that would make "an outlier" at least ``_OUTLIER_SUSPECT`` probable on its
-own is suspect too: where a fast-moving load widens the prediction, a spike can sit inside
-the gate.
-
-**Hindsight.** Some spikes still pass as motion. The prediction made before each sample
-used though beyond ``gate`` noise σ is kept (slot 2 of the state arrays); when the next
-sample is suspect, "the sample before was the outlier" is weighed beside "both used" and
-"this one an outlier", and when it is the likeliest the readings that use the new sample
-are merged by their odds and the sample before is counted as rejected.
-
-**Bursts.** Interference often spoils two or three samples in a row. When the sample
-after a suspect is beyond the gate *as seen from the "outlier" branch*, and "used" is not
-already decided by it (`_burst_goes_on`), nothing is decided yet: "used" takes it,
-"outlier" holds it too as the next of a burst (prior probability ``_LOG_BURST_GO_ON``
-that an outlier is followed by another), up to ``_BURST_MAX`` samples; the first sample
-not held, or the one after the longest burst, decides between "all used" and "all
-outliers". Without this a burst of two 50σ samples on an invented cell sampled 66 times
-a period was taken as two force jumps, out and back: 60 N off on a 200 N cell for a few
-rows.
-
-**Deferred.** When the sample that decides leaves the odds short of 19 to 1 either way
-(`_odds_open`), both branches take it as an ordinary sample and the decision waits for one
-more (`_DEFER_MAX`); its row is flagged deferred and shows both branches. Where the load
-moves fast for the sampling rate one sample after a spike can say little: on an invented
-cell read seven times a period under a random load, "used" stood at 0.905 after the
-spike's next sample and at 0.33 after the one after it.
+**Outliers, decided by the samples after them** (docs/method-observer.md, section 6, gives
+the reasons and the measurements). One sample cannot tell an isolated outlier from the first
+sample of a load change; the next one can. A sample beyond ``gate`` σ of the most probable
+model, or that alone would give the force-jump models more than ``_JUMP_SUSPECT`` of the
+probability, or that lies beyond ``gate`` noise σ and alone makes "an outlier" at least
+``_OUTLIER_SUSPECT`` probable, is held as *suspect*: two branches, "used" (the IMM step) and
+"outlier" (prediction only), weighed by the prior ``ε`` of an outlier, the suspect's
+density under each (`_outlier_log_density`: a Gaussian core of scale ``outlier_sd`` with a
+Cauchy share ``outlier_tail``) and the next sample's, then merged per model by moment
+matching; its row shows both branches with the weights known then. *Hindsight*: the
+prediction before a sample used though beyond ``gate`` noise σ is kept (slot 2 of the
+state arrays), so that "the sample before was the outlier" is weighed too when the next
+one is suspect. *Bursts*: up to ``_BURST_MAX`` samples beyond the outlier branch's gate
+are held together (`_burst_goes_on`, prior ``_LOG_BURST_GO_ON`` that an outlier is
+followed by another). *Deferred*: odds short of 19 to 1 either way (`_odds_open`) wait for
+one more sample (``_DEFER_MAX``).
 
 Sources: H. A. P. Blom, Y. Bar-Shalom, "The interacting multiple model algorithm for
 systems with Markovian switching coefficients", IEEE Trans. Automatic Control 33(8),
